@@ -1,0 +1,30 @@
+"""The event chain: each event's SHA-256 covers its content and the previous hash."""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from collections.abc import Iterable, Mapping
+from typing import Any
+
+GENESIS = "0" * 64
+CHAINED_FIELDS = ("id", "job_id", "seq", "step_id", "kind", "data", "person_id",
+                  "device_time", "received_at", "prev_hash")
+
+
+def event_digest(event: Mapping[str, Any]) -> str:
+    """SHA-256 over the chained fields of one event, as canonical JSON."""
+    body = {name: event[name] for name in CHAINED_FIELDS}
+    text = json.dumps(body, sort_keys=True, separators=(",", ":"), ensure_ascii=False)
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def first_broken_link(events: Iterable[Mapping[str, Any]]) -> int | None:
+    """The seq of the first event whose hash or link does not hold, or None if all do."""
+    previous = GENESIS
+    for expected_seq, event in enumerate(events, start=1):
+        if (event["seq"] != expected_seq or event["prev_hash"] != previous
+                or event_digest(event) != event["hash"]):
+            return int(event["seq"])
+        previous = event["hash"]
+    return None

@@ -1,0 +1,60 @@
+"""The operator's fleet: aircraft, engines and the ignition components installed on them."""
+
+from __future__ import annotations
+
+from sqlite_utils import Database
+
+
+def add_aircraft(db: Database, registration: str, model: str, operator: str) -> int:
+    return int(db["aircraft"].insert({"registration": registration, "model": model,
+                                      "operator": operator}).last_pk)
+
+
+def add_engine(db: Database, aircraft_id: int, position: int, model: str, serial: str) -> int:
+    return int(db["engines"].insert({"aircraft_id": aircraft_id, "position": position,
+                                     "model": model, "serial": serial}).last_pk)
+
+
+def add_component(db: Database, *, kind: str, part_number: str, serial: str, type: str,
+                  engine_id: int | None, channel: str | None) -> int:
+    return int(db["components"].insert({
+        "kind": kind, "part_number": part_number, "serial": serial, "type": type,
+        "engine_id": engine_id, "channel": channel}).last_pk)
+
+
+def add_plug_wear(db: Database, record: dict) -> None:
+    db["plug_wear_history"].insert(record)
+
+
+def component_by_serial(db: Database, part_number: str, serial: str) -> dict | None:
+    rows = list(db["components"].rows_where("part_number = ? and serial = ?",
+                                            [part_number, serial], limit=1))
+    return rows[0] if rows else None
+
+
+def fleet(db: Database) -> list[dict]:
+    """Every aircraft with its engines (by position) and their installed components."""
+    aircraft = {a["id"]: {**a, "engines": []}
+                for a in db["aircraft"].rows_where(order_by="registration")}
+    engines = {}
+    for e in db["engines"].rows_where(order_by="aircraft_id, position"):
+        engine = {**e, "components": []}
+        engines[e["id"]] = engine
+        aircraft[e["aircraft_id"]]["engines"].append(engine)
+    for c in db["components"].rows_where("engine_id is not null",
+                                         order_by="engine_id, channel, kind"):
+        engines[c["engine_id"]]["components"].append(c)
+    return list(aircraft.values())
+
+
+def engine(db: Database, engine_id: int) -> dict | None:
+    """One engine with its aircraft and installed components, or None."""
+    rows = list(db.query(
+        "select e.*, a.registration, a.model as aircraft_model, a.operator "
+        "from engines e join aircraft a on a.id = e.aircraft_id where e.id = ?", [engine_id]))
+    if not rows:
+        return None
+    found = rows[0]
+    found["components"] = list(db["components"].rows_where(
+        "engine_id = ?", [engine_id], order_by="channel, kind"))
+    return found

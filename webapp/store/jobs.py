@@ -1,0 +1,85 @@
+"""Jobs and their append-only event log (with refusals kept beside it)."""
+
+from __future__ import annotations
+
+import json
+from datetime import datetime
+
+from sqlite_utils import Database
+
+
+def create_job(db: Database, *, engine_id: int, procedure_id: str, revision_hash: str,
+               channel: str | None, opened_by: int, now: datetime) -> int:
+    return int(db["jobs"].insert({
+        "engine_id": engine_id, "procedure_id": procedure_id, "revision_hash": revision_hash,
+        "channel": channel, "status": "open", "opened_by": opened_by,
+        "opened_at": now.isoformat()}).last_pk)
+
+
+def set_job_status(db: Database, job_id: int, status: str) -> None:
+    db.execute("update jobs set status = ? where id = ?", [status, job_id])
+
+
+_JOB_SELECT = (
+    "select j.*, p.title as procedure_title, r.number as revision_number, "
+    "e.serial as engine_serial, e.model as engine_model, e.position, "
+    "a.registration, a.id as aircraft_id, o.full_name as opened_by_name "
+    "from jobs j join procedures p on p.id = j.procedure_id "
+    "join procedure_revisions r on r.hash = j.revision_hash "
+    "join engines e on e.id = j.engine_id join aircraft a on a.id = e.aircraft_id "
+    "join people o on o.id = j.opened_by ")
+
+
+def job(db: Database, job_id: int) -> dict | None:
+    rows = list(db.query(_JOB_SELECT + "where j.id = ?", [job_id]))
+    return rows[0] if rows else None
+
+
+def jobs(db: Database, status: str | None = None) -> list[dict]:
+    """Jobs, newest first, optionally only those with one status."""
+    where, params = ("where j.status = ? ", [status]) if status else ("", [])
+    return list(db.query(_JOB_SELECT + where + "order by j.id desc", params))
+
+
+def _event(row: dict) -> dict:
+    return {**row, "data": json.loads(row["data"])}
+
+
+def events(db: Database, job_id: int) -> list[dict]:
+    """The job's events in order, data decoded."""
+    return [_event(r) for r in db["events"].rows_where("job_id = ?", [job_id], order_by="seq")]
+
+
+def event(db: Database, event_id: str) -> dict | None:
+    rows = list(db["events"].rows_where("id = ?", [event_id], limit=1))
+    return _event(rows[0]) if rows else None
+
+
+def last_link(db: Database, job_id: int) -> tuple[int, str | None]:
+    """The last seq and hash of a job's chain (0, None when it has no events)."""
+    rows = list(db.query("select seq, hash from events where job_id = ? "
+                         "order by seq desc limit 1", [job_id]))
+    return (rows[0]["seq"], rows[0]["hash"]) if rows else (0, None)
+
+
+def append_event(db: Database, record: dict) -> None:
+    """Append one fully formed event (hash included). Ignores a UUID already stored."""
+    db.execute(
+        "insert or ignore into events (id, job_id, seq, step_id, kind, data, person_id, "
+        "device_time, received_at, prev_hash, hash) values (?,?,?,?,?,?,?,?,?,?,?)",
+        [record["id"], record["job_id"], record["seq"], record["step_id"], record["kind"],
+         json.dumps(record["data"], sort_keys=True), record["person_id"],
+         record["device_time"], record["received_at"], record["prev_hash"], record["hash"]])
+
+
+def record_refusal(db: Database, *, event_id: str | None, job_id: int, person_id: int,
+                   kind: str, step_id: str | None, data: dict, rule: str, reason: str,
+                   now: datetime) -> None:
+    db["refusals"].insert({
+        "event_id": event_id, "job_id": job_id, "person_id": person_id, "kind": kind,
+        "step_id": step_id, "data": json.dumps(data, sort_keys=True), "rule": rule,
+        "reason": reason, "received_at": now.isoformat()})
+
+
+def refusals(db: Database, job_id: int) -> list[dict]:
+    return list(db["refusals"].rows_where("job_id = ?", [job_id], order_by="id"))
