@@ -1,0 +1,89 @@
+"""Sparkward's station: create_app(config) wires configuration, storage and the rooms."""
+
+from __future__ import annotations
+
+import os
+import secrets
+import tomllib
+from collections.abc import Mapping
+from pathlib import Path
+from typing import Any
+
+from flask import Flask
+
+from .clock import system_clock
+from .resources import shipped_dir
+
+DEFAULTS: dict[str, Any] = {
+    "DB_FILENAME": "sparkward.db",
+    "LOGIN_MAX_FAILURES": 5,
+    "LOGIN_LOCK_MINUTES": 10,
+    "SESSION_COOKIE_HTTPONLY": True,
+    "SESSION_COOKIE_SAMESITE": "Lax",
+    "WTF_CSRF_TIME_LIMIT": None,  # the token lives as long as the session
+    "STATION_NAME": "Sparkward station",
+}
+
+
+def create_app(config: Mapping[str, Any] | None = None) -> Flask:
+    """Build the station. Configuration, later wins: defaults, the instance file
+    (instance/sparkward.toml), the SPARKWARD_DB environment variable, `config`."""
+    instance = Path(os.environ.get("SPARKWARD_INSTANCE", Path.cwd() / "instance")).resolve()
+    app = Flask(__name__, instance_path=str(instance), static_folder=str(shipped_dir("static")),
+                static_url_path="/static")
+    app.config.from_mapping(DEFAULTS)
+    app.config["DB_PATH"] = str(instance / app.config["DB_FILENAME"])
+    app.config["CLOCK"] = system_clock
+    instance_file = instance / "sparkward.toml"
+    if instance_file.is_file():
+        app.config.from_file(str(instance_file), load=tomllib.load, text=False)
+    if os.environ.get("SPARKWARD_DB"):
+        app.config["DB_PATH"] = os.environ["SPARKWARD_DB"]
+    if config:
+        app.config.from_mapping(config)
+    if not app.config.get("SECRET_KEY"):
+        app.config["SECRET_KEY"] = _station_secret(Path(app.config["DB_PATH"]))
+
+    register_extensions(app)
+    register_blueprints(app)
+    register_errorhandlers(app)
+    register_commands(app)
+    return app
+
+
+def _station_secret(db_path: Path) -> str:
+    """A session key kept beside the database, so log-ins survive a restart."""
+    key_file = db_path.with_name(db_path.name + ".secret")
+    if key_file.is_file():
+        return key_file.read_text().strip()
+    key_file.parent.mkdir(parents=True, exist_ok=True)
+    key = secrets.token_hex(32)
+    key_file.write_text(key)
+    key_file.chmod(0o600)
+    return key
+
+
+def register_extensions(app: Flask) -> None:
+    from .web.common import csrf, init_database
+
+    csrf.init_app(app)
+    init_database(app)
+
+
+def register_blueprints(app: Flask) -> None:
+    from .web import admin, api, auth, mechanic, procedures, supervisor
+
+    for room in (auth, mechanic, api, procedures, supervisor, admin):
+        app.register_blueprint(room.bp)
+
+
+def register_errorhandlers(app: Flask) -> None:
+    from .web.errors import register
+
+    register(app)
+
+
+def register_commands(app: Flask) -> None:
+    from .cli import register
+
+    register(app)

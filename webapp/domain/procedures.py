@@ -9,12 +9,14 @@ Every problem is reported at once, with file, step number, step id and field.
 from __future__ import annotations
 
 import hashlib
+import re
 from collections.abc import Iterable, Iterator
 from dataclasses import dataclass
 from typing import Annotated, Any, Literal
 
 import yaml
 from pydantic import AfterValidator, BaseModel, ConfigDict, Field, ValidationError, model_validator
+from pydantic_core import PydanticCustomError
 
 from .units import UnitProblem, parse_quantity, parse_unit
 
@@ -56,8 +58,14 @@ class Effectivity(_Strict):
 class StepCondition(_Strict):
     """Limits a step to some configurations (the job's installed types)."""
 
-    exciter_types: list[ExciterType] | None = None
-    plug_types: list[PlugType] | None = None
+    exciter_types: list[ExciterType] | None = Field(default=None, min_length=1)
+    plug_types: list[PlugType] | None = Field(default=None, min_length=1)
+
+    @model_validator(mode="after")
+    def _says_something(self) -> StepCondition:
+        if self.exciter_types is None and self.plug_types is None:
+            raise ValueError("'when' needs exciter_types, plug_types or both")
+        return self
 
     def matches(self, exciter_types: Iterable[str], plug_types: Iterable[str]) -> bool:
         """True when some installed exciter and some installed plug fit the condition."""
@@ -87,16 +95,20 @@ def _check_unit(value: str, dimension: str | None = None) -> str:
     return value
 
 
-def _check_quantity(value: str, dimension: str) -> str:
+def _check_quantity(value: str | float, dimension: str) -> str:
+    """A procedure's quantity ("2 min", "4 uF"): a positive number with a unit of `dimension`."""
     try:
-        parse_quantity(value, dimension)
+        quantity = parse_quantity(value, dimension)
     except UnitProblem as problem:
         raise ValueError(str(problem)) from None
-    return value
+    if quantity.magnitude <= 0:
+        raise ValueError(f"'{value}' must be more than zero")
+    return str(value)
 
 
 def _quantity_of(dimension: str) -> Any:
-    return Annotated[str, AfterValidator(lambda v: _check_quantity(v, dimension))]
+    # Numbers are let through the type so the check can say "has no unit".
+    return Annotated[str | int | float, AfterValidator(lambda v: _check_quantity(v, dimension))]
 
 
 Duration = _quantity_of("time")
@@ -116,6 +128,11 @@ def _duty_entry(entry: str) -> str:
 
 
 DutyEntry = Annotated[str, AfterValidator(_duty_entry)]
+
+
+def _field_error(field: str, message: str) -> PydanticCustomError:
+    """A whole-step check's error, naming the field the trainer must fix."""
+    return PydanticCustomError("step_field", message, {"field": field})
 
 
 class Limits(_Strict):
@@ -196,9 +213,10 @@ class Reading(_Step):
     def _number_has_unit_and_limits(self) -> Reading:
         if self.value == "number":
             if self.unit is None:
-                raise ValueError("a number reading needs its unit")
+                raise _field_error("unit", "a number reading needs its unit")
             if self.limits is None:
-                raise ValueError("a number reading needs its limits (min, max or both)")
+                raise _field_error("limits", "a number reading needs its limits "
+                                   "(min, max or both)")
         return self
 
 
@@ -254,10 +272,17 @@ Step = Annotated[
 ]
 
 
+def _check_ata(value: str) -> str:
+    if not re.fullmatch(r"74-\d\d", value):
+        raise ValueError(f"'{value}' is not an ignition chapter-section: write 74-xx "
+                         "(for example 74-10)")
+    return value
+
+
 class Procedure(_Strict):
     id: Id
     title: Text
-    ata: Annotated[str, Field(pattern=r"^74-\d0$")]
+    ata: Annotated[str, AfterValidator(lambda v: _check_ata(v))]
     kind: Literal["removal", "installation", "inspection", "functional check"]
     channel: Literal["one", "all"]
     source: Source
@@ -340,8 +365,22 @@ def parse_procedure(text: str, file: str = "<procedure>") -> Procedure:
     return procedure
 
 
+class _UniqueKeyLoader(getattr(yaml, "CSafeLoader", yaml.SafeLoader)):  # type: ignore[misc]
+    """Safe YAML that refuses a key given twice (a silent overwrite loses a trainer's text)."""
+
+    def construct_mapping(self, node: yaml.MappingNode, deep: bool = False) -> dict:
+        seen = set()
+        for key_node, _ in node.value:
+            key = self.construct_object(key_node, deep=deep)
+            if key in seen:
+                raise yaml.constructor.ConstructorError(
+                    None, None, f"the key '{key}' is given twice", key_node.start_mark)
+            seen.add(key)
+        return super().construct_mapping(node, deep=deep)
+
+
 def _loader() -> type:
-    return getattr(yaml, "CSafeLoader", yaml.SafeLoader)
+    return _UniqueKeyLoader
 
 
 def _raw_steps(raw: dict[str, Any]) -> list[Any]:
@@ -393,8 +432,10 @@ def _structural_problems(err: ValidationError, raw: dict[str, Any],
             message = template.format(tag=(error.get("ctx") or {}).get("tag", ""))
         else:
             message = error["msg"].removeprefix("Value error, ")
-        if error["type"] == "union_tag_invalid":
+        if error["type"] in ("union_tag_invalid", "union_tag_not_found"):
             field = "kind"
+        elif error["type"] == "step_field":
+            field = ".".join([*(str(p) for p in loc), error["ctx"]["field"]])
         yield ProcedureProblem(file, message, number, step_id, field)
 
 
@@ -418,6 +459,10 @@ def _order_problems(procedure: Procedure, file: str) -> Iterator[ProcedureProble
             yield ProcedureProblem(file, f"a {step.kind.upper()} must stand before the step it "
                                    f"guards, but '{target.id}' is step {index[target.id]}",
                                    number, step.id, "guards")
+        elif target.when is not None and step.when != target.when:
+            yield ProcedureProblem(file, f"guards '{target.id}', which applies only 'when' "
+                                   f"{_when_text(target.when)}: give this {step.kind.upper()} "
+                                   "the same 'when'", number, step.id, "when")
     # Within a run of advisories: warnings, then cautions, then notes.
     run: list[tuple[int, Advisory]] = []
     for number, step in enumerate([*steps, None], start=1):
@@ -430,6 +475,15 @@ def _order_problems(procedure: Procedure, file: str) -> Iterator[ProcedureProble
                                        f"{earlier.kind.upper()} that guards the same step",
                                        later_number, later.id, "kind")
         run = []
+
+
+def _when_text(when: StepCondition) -> str:
+    parts = []
+    if when.exciter_types:
+        parts.append("exciter_types " + "/".join(when.exciter_types))
+    if when.plug_types:
+        parts.append("plug_types " + "/".join(when.plug_types))
+    return " and ".join(parts)
 
 
 def guarded_step(steps: list[Step], position: int) -> Step | None:

@@ -32,16 +32,18 @@ def registry() -> pint.UnitRegistry:
     return pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
 
 
-def _dimension_of(unit: pint.Unit) -> str:
-    dims = unit.dimensionality
-    return "dimensionless" if not dims else str(dims)
+def _dimensionality(dimension: str) -> object:
+    if dimension == "dimensionless":
+        return registry().get_dimensionality("")
+    return registry().get_dimensionality(DIMENSIONS[dimension])
 
 
-def _dimension_name(dimensionality: str) -> str:
-    for name, dims in DIMENSIONS.items():
-        if dims == dimensionality:
+def _dimension_name(unit: pint.Unit) -> str:
+    """The trade's name for a unit's dimension ("torque", "force"), else pint's own."""
+    for name in DIMENSIONS:
+        if unit.dimensionality == _dimensionality(name):
             return name
-    return dimensionality
+    return str(unit.dimensionality)
 
 
 @lru_cache(maxsize=512)
@@ -58,9 +60,8 @@ def parse_unit(text: str, dimension: str | None = None) -> pint.Unit:
             AttributeError, TypeError, ValueError, SyntaxError):
         raise UnitProblem(f"'{text}' is not a unit this station knows") from None
     if dimension is not None:
-        wanted = DIMENSIONS[dimension]
-        if _dimension_of(unit) != wanted:
-            got = _dimension_name(_dimension_of(unit))
+        if unit.dimensionality != _dimensionality(dimension):
+            got = _dimension_name(unit)
             raise UnitProblem(f"'{text}' is a unit of {got}, but {dimension} is needed here")
     return unit
 

@@ -5,6 +5,12 @@ from __future__ import annotations
 from sqlite_utils import Database
 
 
+def set_operator(db: Database, name: str, approval: str) -> None:
+    """The maintenance organisation's name and approval reference (for records)."""
+    db["settings"].upsert_all([{"key": "operator_name", "value": name},
+                               {"key": "operator_approval", "value": approval}], pk="key")
+
+
 def add_aircraft(db: Database, registration: str, model: str, operator: str) -> int:
     return int(db["aircraft"].insert({"registration": registration, "model": model,
                                       "operator": operator}).last_pk)

@@ -1,0 +1,57 @@
+"""Enrolling people and checking log-ins (with throttling after repeated failures)."""
+
+from __future__ import annotations
+
+from datetime import datetime, timedelta
+
+from werkzeug.security import check_password_hash, generate_password_hash
+
+from . import store
+from .store import people
+from .store.people import Person
+
+MIN_PASSWORD_LENGTH = 8
+# Checked against when a username is unknown, so a wrong name costs the same time.
+_DUMMY_HASH = generate_password_hash("not a password", method="scrypt")
+
+
+class LoginRefused(Exception):
+    """A log-in that did not succeed, with the sentence to show."""
+
+
+def enrol(db: store.Database, *, username: str, full_name: str, roles: list[str],
+          password: str, authorisation: str | None, now: datetime) -> Person:
+    """Add a person; raises ValueError with a sentence when something is wrong."""
+    username = username.strip()
+    if not username or not username.replace("-", "").replace(".", "").isalnum():
+        raise ValueError("a username is letters and digits (dots and dashes allowed)")
+    if not full_name.strip():
+        raise ValueError("the person's full name is needed")
+    if not roles:
+        raise ValueError("give the person at least one role")
+    if len(password) < MIN_PASSWORD_LENGTH:
+        raise ValueError(f"the password must be at least {MIN_PASSWORD_LENGTH} characters")
+    with store.writing(db):
+        return people.add_person(db, username=username, full_name=full_name.strip(),
+                                 roles=roles, authorisation=authorisation or None,
+                                 password_hash=generate_password_hash(password, method="scrypt"),
+                                 now=now)
+
+
+def log_in(db: store.Database, username: str, password: str, *, now: datetime,
+           max_failures: int, lock_minutes: int) -> Person:
+    """The person for these credentials, or LoginRefused (also when throttled)."""
+    username = username.strip()
+    with store.writing(db):
+        window_start = now - timedelta(minutes=lock_minutes)
+        if people.login_failures_since(db, username, window_start) >= max_failures:
+            raise LoginRefused(f"Too many failed log-ins for this name. Wait {lock_minutes} "
+                               "minutes or ask an admin.")
+        stored = people.password_hash_of(db, username)
+        ok = check_password_hash(stored or _DUMMY_HASH, password) and stored is not None
+        found = people.person_by_username(db, username) if ok else None
+        if found is None or not found.active:
+            people.record_login_failure(db, username, now)
+            raise LoginRefused("That username and password do not match an active account.")
+        people.clear_login_failures(db, username)
+    return found

@@ -1,0 +1,158 @@
+"""Station commands: `sparkward init|demo|serve|tasks check|people add` (also under `flask --app webapp`)."""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+import click
+from flask import Flask
+
+from . import store
+from .clock import system_clock
+from .domain.procedures import ProcedureInvalid
+from .library import check_files, load_shop_library
+from .store.people import ROLES
+
+DB_OPTION = click.option("--db", "db_path", type=click.Path(dir_okay=False, path_type=Path),
+                         help="SQLite file (default: $SPARKWARD_DB or ./instance/sparkward.db)")
+HOST_OPTION = click.option("--host", default="127.0.0.1", show_default=True,
+                           help="Address to listen on (0.0.0.0 for tablets on the LAN)")
+PORT_OPTION = click.option("--port", default=8000, show_default=True, type=int)
+
+
+def _app(db_path: Path | None) -> Flask:
+    from . import create_app
+
+    return create_app({"DB_PATH": str(db_path.resolve())} if db_path else None)
+
+
+def _init(app: Flask) -> list[str]:
+    db = store.create(app.config["DB_PATH"])
+    try:
+        return load_shop_library(db, system_clock())
+    finally:
+        db.close()
+
+
+@click.group(help="Sparkward: the ignition maintenance station.")
+def cli() -> None:
+    pass
+
+
+@cli.command(help="Create or update the station database and load the shop's procedure library.")
+@DB_OPTION
+def init(db_path: Path | None) -> None:
+    app = _app(db_path)
+    try:
+        loaded = _init(app)
+    except ProcedureInvalid as invalid:
+        raise click.ClickException("the procedure library has problems:\n" + str(invalid))
+    click.echo(f"Station database ready: {app.config['DB_PATH']}")
+    click.echo(f"Approved revisions loaded: {', '.join(loaded) or 'none new'}")
+
+
+@cli.command(help="Build a fresh database with the demo scenario and serve it.")
+@DB_OPTION
+@HOST_OPTION
+@PORT_OPTION
+@click.option("--scenario", default="bramblecoast", show_default=True)
+def demo(db_path: Path | None, host: str, port: int, scenario: str) -> None:
+    from .scenario import demo_logins, load_scenario, read_scenario, scenario_path
+
+    app = _app(db_path)
+    path = Path(app.config["DB_PATH"])
+    for stale in (path, path.with_name(path.name + "-wal"), path.with_name(path.name + "-shm")):
+        stale.unlink(missing_ok=True)
+    _init(app)
+    chosen = read_scenario(scenario_path(scenario))
+    db = store.connect(path)
+    try:
+        load_scenario(db, chosen, system_clock())
+    finally:
+        db.close()
+    click.echo(f"Demo scenario '{chosen.name}' built in {path}")
+    click.echo("Demo log-ins (username / password / role):")
+    for username, password, roles in demo_logins(chosen):
+        click.echo(f"  {username:8} {password:14} {roles}")
+    _serve(app, host, port)
+
+
+@cli.command(help="Serve the station with a production WSGI server (waitress).")
+@DB_OPTION
+@HOST_OPTION
+@PORT_OPTION
+def serve(db_path: Path | None, host: str, port: int) -> None:
+    _serve(_app(db_path), host, port)
+
+
+def _serve(app: Flask, host: str, port: int) -> None:
+    from waitress import serve as waitress_serve
+
+    shown = "127.0.0.1" if host in ("0.0.0.0", "::") else host
+    click.echo(f"Sparkward station serving {app.config['DB_PATH']}")
+    click.echo(f"Open http://{shown}:{port}/ (press Ctrl+C to stop)", err=False)
+    sys.stdout.flush()
+    waitress_serve(app, host=host, port=port, threads=8, ident="Sparkward")
+
+
+@cli.group(help="The shop's procedure library.")
+def tasks() -> None:
+    pass
+
+
+@tasks.command("check", help="Validate procedure files (default: the shipped library).")
+@click.argument("paths", nargs=-1, type=click.Path(exists=True, path_type=Path))
+def tasks_check(paths: tuple[Path, ...]) -> None:
+    results = check_files(list(paths) or None)
+    problems = [p for r in results for p in r.problems]
+    for r in results:
+        if not r.problems:
+            click.echo(f"ok    {r.path}")
+    for problem in problems:
+        click.echo(f"ERROR {problem}", err=True)
+    if problems:
+        raise click.ClickException(f"{len(problems)} problem(s) in "
+                                   f"{sum(1 for r in results if r.problems)} file(s)")
+    click.echo(f"{len(results)} procedure file(s) valid")
+
+
+@cli.group(help="People enrolled on the station.")
+def people() -> None:
+    pass
+
+
+@people.command("add", help="Enrol a person. The password is the first line of standard input.")
+@DB_OPTION
+@click.option("--username", required=True)
+@click.option("--name", "full_name", required=True, help="Full name as printed on records")
+@click.option("--role", "roles", required=True, multiple=True, type=click.Choice(ROLES),
+              help="Repeat for more than one role")
+@click.option("--authorisation", default=None, help="Certificate or authorisation number")
+@click.option("--password-stdin", is_flag=True, required=True,
+              help="Read the password from the first line of standard input")
+def people_add(db_path: Path | None, username: str, full_name: str, roles: tuple[str, ...],
+               authorisation: str | None, password_stdin: bool) -> None:
+    from .accounts import enrol
+
+    password = sys.stdin.readline().rstrip("\r\n")
+    app = _app(db_path)
+    db = store.create(app.config["DB_PATH"])
+    try:
+        person = enrol(db, username=username, full_name=full_name, roles=list(roles),
+                       password=password, authorisation=authorisation, now=system_clock())
+    except ValueError as err:
+        raise click.ClickException(str(err)) from None
+    finally:
+        db.close()
+    click.echo(f"Enrolled {person.full_name} ({person.username}) as {', '.join(person.roles)}")
+
+
+def register(app: Flask) -> None:
+    """Make the same commands reachable as `flask --app webapp ...`."""
+    for command in cli.commands.values():
+        app.cli.add_command(command)
+
+
+def main() -> None:
+    cli()

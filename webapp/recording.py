@@ -1,0 +1,141 @@
+"""The one path a job's events take, for the htmx views and the JSON API alike.
+
+Open a job, read its state, record an event: each read-then-write happens in
+one BEGIN IMMEDIATE transaction, the domain decides, the store appends.
+"""
+
+from __future__ import annotations
+
+import uuid
+from dataclasses import dataclass
+from datetime import datetime
+from typing import Any, Literal
+
+from . import store
+from .domain.chain import GENESIS, event_digest
+from .domain.errors import RuleRefusal
+from .domain.execution import JobState, check_event, configuration_for, job_state
+from .library import procedure_of_revision
+from .store import fleet, jobs, procedures
+from .store.people import Person
+
+
+class NotFound(LookupError):
+    """A job, engine or procedure that does not exist (answered 404)."""
+
+
+@dataclass(frozen=True)
+class Job:
+    row: dict[str, Any]
+    state: JobState
+    events: list[dict[str, Any]]
+
+
+@dataclass(frozen=True)
+class Outcome:
+    status: Literal["stored", "duplicate", "refused"]
+    event: dict[str, Any] | None = None
+    refusal: RuleRefusal | None = None
+
+
+def _chain(db: store.Database, *, job_id: int, event_id: str, kind: str, step_id: str | None,
+           data: dict[str, Any], person_id: int, device_time: str | None,
+           now: datetime) -> dict[str, Any]:
+    seq, previous = jobs.last_link(db, job_id)
+    record = {"id": event_id, "job_id": job_id, "seq": seq + 1, "step_id": step_id,
+              "kind": kind, "data": data, "person_id": person_id, "device_time": device_time,
+              "received_at": now.isoformat(), "prev_hash": previous or GENESIS}
+    record["hash"] = event_digest(record)
+    jobs.append_event(db, record)
+    return record
+
+
+def open_job(db: store.Database, *, procedure_id: str, engine_id: int, channel: str | None,
+             person: Person, now: datetime) -> int:
+    """Open a job on an engine (and channel) with the approved revision of a procedure."""
+    with store.writing(db):
+        engine = fleet.engine(db, engine_id)
+        if engine is None:
+            raise NotFound(f"engine {engine_id} is not in the fleet")
+        revision = procedures.approved_revision(db, procedure_id)
+        if revision is None:
+            raise NotFound(f"no approved procedure '{procedure_id}'")
+        procedure = procedure_of_revision(revision["hash"], revision["content"])
+        configuration = configuration_for(procedure, engine["model"], engine["components"],
+                                          channel)
+        job_id = jobs.create_job(db, engine_id=engine_id, procedure_id=procedure_id,
+                                 revision_hash=revision["hash"], channel=channel,
+                                 opened_by=person.id, now=now)
+        _chain(db, job_id=job_id, event_id=str(uuid.uuid4()), kind="job_opened", step_id=None,
+               data={"procedure": procedure_id, "revision": revision["hash"],
+                     "engine": engine_id, "engine_serial": engine["serial"],
+                     **configuration.as_data()},
+               person_id=person.id, device_time=None, now=now)
+    return job_id
+
+
+def load_job(db: store.Database, job_id: int) -> Job:
+    row = jobs.job(db, job_id)
+    if row is None:
+        raise NotFound(f"job {job_id} does not exist")
+    revision = procedures.revision(db, row["revision_hash"])
+    assert revision is not None  # a foreign key keeps it
+    procedure = procedure_of_revision(revision["hash"], revision["content"])
+    events = jobs.events(db, job_id)
+    return Job(row, job_state(procedure, events), events)
+
+
+def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
+                 step_id: str | None, data: dict[str, Any], device_time: str | None,
+                 person: Person, now: datetime) -> Outcome:
+    """Check an event against the rules and append it; the same UUID twice stores once."""
+    with store.writing(db):
+        existing = jobs.event(db, event_id)
+        if existing is not None:
+            if (existing["job_id"], existing["kind"], existing["step_id"]) == (
+                    job_id, kind, step_id):
+                return Outcome("duplicate", event=existing)
+            refusal = RuleRefusal("event_id_reused", "This event id was already used for a "
+                                  "different entry; the device must make a new one.")
+            return Outcome("refused", refusal=refusal)
+        job = load_job(db, job_id)
+        try:
+            check_event(job.state, kind, step_id, data)
+        except RuleRefusal as refusal:
+            jobs.record_refusal(db, event_id=event_id, job_id=job_id, person_id=person.id,
+                                kind=kind, step_id=step_id, data=data, rule=refusal.rule,
+                                reason=refusal.reason, now=now)
+            return Outcome("refused", refusal=refusal)
+        record = _chain(db, job_id=job_id, event_id=event_id, kind=kind, step_id=step_id,
+                        data=data, person_id=person.id, device_time=device_time, now=now)
+        after = job_state(job.state.procedure, [*job.events, record])
+        if after.status != job.row["status"]:
+            jobs.set_job_status(db, job_id, after.status)
+    return Outcome("stored", event=record)
+
+
+@dataclass(frozen=True)
+class Openable:
+    """A procedure that may be opened on an engine, for one channel or for both."""
+
+    procedure_id: str
+    title: str
+    kind: str
+    ata: str
+    channel: str | None
+
+
+def openable_procedures(db: store.Database, engine: dict[str, Any]) -> list[Openable]:
+    """The approved procedures whose effectivity fits this engine, per channel choice."""
+    found = []
+    for revision in procedures.approved_revisions(db):
+        procedure = procedure_of_revision(revision["hash"], revision["content"])
+        choices: list[str | None] = ["A", "B"] if procedure.channel == "one" else [None]
+        for channel in choices:
+            try:
+                configuration_for(procedure, engine["model"], engine["components"], channel)
+            except RuleRefusal:
+                continue
+            found.append(Openable(procedure.id, procedure.title, procedure.kind,
+                                  procedure.ata, channel))
+    return found

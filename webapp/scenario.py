@@ -1,0 +1,160 @@
+"""The seeded demo loader: one function builds a scenario for the demo and for the tests."""
+
+from __future__ import annotations
+
+import random
+from datetime import date, datetime, timedelta
+from pathlib import Path
+from typing import Literal
+
+import yaml
+from pydantic import BaseModel, ConfigDict, Field
+
+from . import store
+from .accounts import enrol
+from .resources import shipped_dir
+from .store import fleet, people
+
+
+class _Strict(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+
+
+class DemoPerson(_Strict):
+    username: str
+    full_name: str
+    roles: list[str] = Field(min_length=1)
+    authorisation: str | None
+    password: str
+
+
+class Part(_Strict):
+    part_number: str
+    type: str
+
+
+class DemoEngine(_Strict):
+    position: int
+    serial: str
+
+
+class DemoAircraft(_Strict):
+    registration: str
+    model: str
+    exciter: Part
+    plug: Part
+    engines: list[DemoEngine] = Field(min_length=1)
+
+
+class WearReading(_Strict):
+    measured_on: date
+    engine_hours: float
+    starts: int
+    continuous_ignition_hours: float
+    erosion_mm: float
+
+
+class PlugHistory(_Strict):
+    engine: str
+    channel: Literal["A", "B"]
+    readings: list[WearReading]
+
+
+class OrdinaryWear(_Strict):
+    mm_per_100_hours: float
+    inspection_hours: list[float]
+    continuous_ignition_estimated: bool
+
+
+class Operator(_Strict):
+    name: str
+    approval: str
+
+
+class Scenario(_Strict):
+    name: str
+    seed: int
+    operator: Operator
+    people: list[DemoPerson]
+    fleet: list[DemoAircraft]
+    engine_model: str
+    lead_part_numbers: dict[Literal["A", "B"], str]
+    plug_history: list[PlugHistory]
+    ordinary_wear: OrdinaryWear
+
+
+def scenario_path(name: str = "bramblecoast") -> Path:
+    return shipped_dir("demo_scenarios") / f"{name}.yaml"
+
+
+def read_scenario(path: Path) -> Scenario:
+    return Scenario.model_validate(yaml.safe_load(path.read_text(encoding="utf-8")))
+
+
+def load_scenario(db: store.Database, scenario: Scenario, now: datetime) -> None:
+    """Build the scenario into an empty station database, the same way every time."""
+    rng = random.Random(scenario.seed)
+    for p in scenario.people:
+        enrol(db, username=p.username, full_name=p.full_name, roles=p.roles,
+              password=p.password, authorisation=p.authorisation, now=now)
+    explicit = {(h.engine, h.channel): h for h in scenario.plug_history}
+    with store.writing(db):
+        fleet.set_operator(db, scenario.operator.name, scenario.operator.approval)
+        serial_number = 4400
+        for aircraft in scenario.fleet:
+            aircraft_id = fleet.add_aircraft(db, aircraft.registration, aircraft.model,
+                                             scenario.operator.name)
+            for e in aircraft.engines:
+                engine_id = fleet.add_engine(db, aircraft_id, e.position, scenario.engine_model,
+                                             e.serial)
+                for channel in ("A", "B"):
+                    serial_number += 1
+                    fleet.add_component(db, kind="exciter",
+                                        part_number=aircraft.exciter.part_number,
+                                        serial=f"XE-{serial_number}", type=aircraft.exciter.type,
+                                        engine_id=engine_id, channel=channel)
+                    fleet.add_component(db, kind="lead",
+                                        part_number=scenario.lead_part_numbers[channel],
+                                        serial=f"XL-{serial_number}", type="ht-lead",
+                                        engine_id=engine_id, channel=channel)
+                    plug_id = fleet.add_component(db, kind="plug",
+                                                  part_number=aircraft.plug.part_number,
+                                                  serial=f"XP-{serial_number}",
+                                                  type=aircraft.plug.type,
+                                                  engine_id=engine_id, channel=channel)
+                    history = explicit.get((e.serial, channel))
+                    readings = (history.readings if history is not None
+                                else _ordinary_wear(scenario.ordinary_wear, rng, now.date()))
+                    for r in readings:
+                        fleet.add_plug_wear(db, {
+                            "component_id": plug_id, "engine_id": engine_id,
+                            "channel": channel, "measured_on": r.measured_on.isoformat(),
+                            "erosion_mm": r.erosion_mm, "engine_hours": r.engine_hours,
+                            "starts": r.starts,
+                            "continuous_ignition_hours": r.continuous_ignition_hours,
+                            "continuous_ignition_estimated": int(
+                                history is None
+                                and scenario.ordinary_wear.continuous_ignition_estimated),
+                            "source": "demo history"})
+
+
+def _ordinary_wear(wear: OrdinaryWear, rng: random.Random, today: date) -> list[WearReading]:
+    """Slow, slightly noisy wear at the shop's inspection points (seeded, so repeatable)."""
+    readings = []
+    last = max(wear.inspection_hours)
+    for hours in wear.inspection_hours:
+        erosion = wear.mm_per_100_hours * hours / 100 * rng.uniform(0.85, 1.15)
+        readings.append(WearReading(
+            measured_on=today - timedelta(days=int((last - hours) * 0.45) + 14),
+            engine_hours=hours, starts=int(hours * rng.uniform(0.85, 0.95)),
+            continuous_ignition_hours=round(hours * 0.02, 1), erosion_mm=round(erosion, 3)))
+    return readings
+
+
+def demo_logins(scenario: Scenario) -> list[tuple[str, str, str]]:
+    """(username, password, roles) for the demo's printed log-in list."""
+    return [(p.username, p.password, ", ".join(p.roles)) for p in scenario.people]
+
+
+def is_empty(db: store.Database) -> bool:
+    return not people.all_people(db) and not fleet.fleet(db)

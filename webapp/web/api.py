@@ -1,0 +1,150 @@
+"""The JSON API (session cookie + X-CSRFToken): fleet, jobs and their events.
+
+The tablet's offline outbox replays events through `POST /api/jobs/<id>/events`;
+the same UUID delivered twice is stored once and answered the same.
+"""
+
+from __future__ import annotations
+
+from datetime import datetime
+from typing import Any, Literal
+from uuid import UUID
+
+from flask import Blueprint, jsonify, request, url_for
+from pydantic import AwareDatetime, BaseModel, ConfigDict, Field, ValidationError
+
+from .. import recording
+from ..domain.execution import CLIENT_EVENT_KINDS, JobState
+from ..store import fleet as fleet_store
+from .common import db, now, person, public, requires
+from .openapi import openapi_document
+
+bp = Blueprint("api", __name__)
+
+EventKind = Literal[CLIENT_EVENT_KINDS]  # type: ignore[valid-type]
+
+
+class JobIn(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+    procedure: str = Field(min_length=1)
+    engine: int
+    channel: Literal["A", "B"] | None = None
+
+
+class EventIn(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+    id: UUID
+    kind: EventKind
+    step: str | None = None
+    data: dict[str, Any] = Field(default_factory=dict)
+    device_time: AwareDatetime | None = None
+
+
+def _malformed(err: ValidationError) -> Any:
+    problems = [{"field": ".".join(str(p) for p in e["loc"]) or "(body)", "problem": e["msg"]}
+                for e in err.errors()]
+    return jsonify({"rule": "malformed", "reason": "The request was not understood; nothing "
+                    "was stored.", "problems": problems}), 422
+
+
+def _body(model: type[BaseModel]) -> BaseModel:
+    payload = request.get_json(silent=True)
+    if not isinstance(payload, dict):
+        raise ValidationError.from_exception_data("body", [
+            {"type": "model_type", "loc": (), "input": payload,
+             "ctx": {"class_name": model.__name__}}])
+    return model.model_validate(payload)
+
+
+def event_json(event: dict[str, Any]) -> dict[str, Any]:
+    return {"id": event["id"], "job": event["job_id"], "seq": event["seq"],
+            "step": event["step_id"], "kind": event["kind"], "data": event["data"],
+            "person": event["person_id"], "device_time": event["device_time"],
+            "received_at": event["received_at"], "prev_hash": event["prev_hash"],
+            "hash": event["hash"]}
+
+
+def job_json(row: dict[str, Any], state: JobState) -> dict[str, Any]:
+    upcoming = state.next_step
+    return {
+        "id": row["id"], "status": state.status, "procedure": row["procedure_id"],
+        "procedure_title": row["procedure_title"], "revision": row["revision_hash"],
+        "revision_number": row["revision_number"], "engine": row["engine_id"],
+        "engine_serial": row["engine_serial"], "aircraft": row["registration"],
+        "position": row["position"], "channel": row["channel"],
+        "steps": [{"id": s.id, "number": s.number, "kind": s.step.kind, "text": s.step.text,
+                   "status": s.status, "recordable": s.recordable} for s in state.steps],
+        "done": [s.id for s in state.steps if s.status == "done"],
+        "next_step": upcoming.id if upcoming else None,
+        "readings": list(state.readings),
+        "url": url_for("mechanic.job", job_id=row["id"]),
+    }
+
+
+@bp.get("/healthz")
+@public
+def healthz() -> Any:
+    row = next(db().query("select count(*) as n from procedure_revisions "
+                          "where status = 'approved'"))
+    return jsonify({"status": "ok", "approved_procedures": row["n"],
+                    "time": now().isoformat()})
+
+
+@bp.get("/api/openapi.json")
+@public
+def openapi() -> Any:
+    return jsonify(openapi_document(JobIn, EventIn))
+
+
+@bp.get("/api/fleet")
+@requires("mechanic", "supervisor", "trainer", "admin")
+def fleet() -> Any:
+    return jsonify({"aircraft": [
+        {"id": a["id"], "registration": a["registration"], "model": a["model"],
+         "engines": [{"id": e["id"], "serial": e["serial"], "model": e["model"],
+                      "position": e["position"],
+                      "components": [{"kind": c["kind"], "part_number": c["part_number"],
+                                      "serial": c["serial"], "type": c["type"],
+                                      "channel": c["channel"]} for c in e["components"]]}
+                     for e in a["engines"]]}
+        for a in fleet_store.fleet(db())]})
+
+
+@bp.post("/api/jobs")
+@requires("mechanic")
+def open_job() -> Any:
+    try:
+        body = _body(JobIn)
+    except ValidationError as err:
+        return _malformed(err)
+    assert isinstance(body, JobIn)
+    job_id = recording.open_job(db(), procedure_id=body.procedure, engine_id=body.engine,
+                                channel=body.channel, person=person(), now=now())
+    job = recording.load_job(db(), job_id)
+    return jsonify(job_json(job.row, job.state)), 201
+
+
+@bp.get("/api/jobs/<int:job_id>")
+@requires("mechanic", "supervisor")
+def job(job_id: int) -> Any:
+    found = recording.load_job(db(), job_id)
+    return jsonify(job_json(found.row, found.state))
+
+
+@bp.post("/api/jobs/<int:job_id>/events")
+@requires("mechanic")
+def post_event(job_id: int) -> Any:
+    try:
+        body = _body(EventIn)
+    except ValidationError as err:
+        return _malformed(err)
+    assert isinstance(body, EventIn)
+    device_time = body.device_time.isoformat() if isinstance(body.device_time, datetime) else None
+    outcome = recording.record_event(db(), job_id, event_id=str(body.id), kind=body.kind,
+                                     step_id=body.step, data=body.data,
+                                     device_time=device_time, person=person(), now=now())
+    if outcome.status == "refused":
+        assert outcome.refusal is not None
+        return jsonify(outcome.refusal.as_dict()), 409
+    assert outcome.event is not None
+    return jsonify(event_json(outcome.event)), 201 if outcome.status == "stored" else 200

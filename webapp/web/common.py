@@ -1,0 +1,116 @@
+"""What every room shares: the request's database, who is logged in, roles, page-or-fragment."""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from datetime import UTC, datetime
+from functools import wraps
+from typing import Any, TypeVar
+
+from flask import Flask, abort, current_app, g, redirect, render_template, request, session, url_for
+from flask_wtf.csrf import CSRFProtect
+
+from .. import store
+from ..store import people
+from ..store.people import Person
+
+csrf = CSRFProtect()
+
+F = TypeVar("F", bound=Callable[..., Any])
+
+
+def init_database(app: Flask) -> None:
+    """Apply pending migrations at start, and give each request its own connection."""
+    store.create(app.config["DB_PATH"]).close()
+
+    @app.teardown_appcontext
+    def close_db(_exc: BaseException | None) -> None:
+        db = g.pop("db", None)
+        if db is not None:
+            db.close()
+
+    @app.before_request
+    def load_person() -> None:
+        g.person = None
+        person_id = session.get("person_id")
+        if person_id is not None:
+            person = people.person_by_id(db(), person_id)
+            if person is not None and person.active:
+                g.person = person
+            else:
+                session.clear()
+
+    @app.template_filter("when")
+    def when(iso: str | None) -> str:
+        """A stored ISO time as the station shows it: date, hours and minutes, UTC."""
+        if not iso:
+            return "—"
+        moment = datetime.fromisoformat(iso).astimezone(UTC)
+        return moment.strftime("%Y-%m-%d %H:%M UTC")
+
+    @app.context_processor
+    def inject_person() -> dict[str, Any]:
+        return {"person": g.get("person"), "station_name": app.config["STATION_NAME"]}
+
+
+def db() -> store.Database:
+    if "db" not in g:
+        g.db = store.connect(current_app.config["DB_PATH"])
+    return g.db
+
+
+def now() -> datetime:
+    return current_app.config["CLOCK"]()
+
+
+def person() -> Person:
+    """The logged-in person (routes reach here only through `requires`)."""
+    found = g.get("person")
+    if found is None:
+        abort(401)
+    return found
+
+
+def requires(*roles: str) -> Callable[[F], F]:
+    """Allow a route to people holding any of `roles`; others get 403, strangers the log-in.
+
+    The roles are kept on the view so a test can check that every route names them.
+    """
+    def decorate(view: F) -> F:
+        @wraps(view)
+        def guarded(*args: Any, **kwargs: Any) -> Any:
+            who = g.get("person")
+            if who is None:
+                if wants_json():
+                    abort(401)
+                return redirect(url_for("auth.login", next=request.full_path))
+            if not any(who.has(role) for role in roles):
+                abort(403)
+            return view(*args, **kwargs)
+
+        guarded.allowed_roles = roles  # type: ignore[attr-defined]
+        return guarded  # type: ignore[return-value]
+    return decorate
+
+
+def public(view: F) -> F:
+    """Mark a route as open to anyone (log-in page, health check, API description)."""
+    view.allowed_roles = ("anyone",)  # type: ignore[attr-defined]
+    return view
+
+
+def wants_json() -> bool:
+    return request.path.startswith("/api/") or request.path == "/healthz"
+
+
+def is_fragment_request() -> bool:
+    return request.headers.get("HX-Request") == "true" and not request.headers.get(
+        "HX-History-Restore-Request")
+
+
+def page_or_fragment(page: str, fragment: str, status: int = 200, **context: Any) -> Any:
+    """Render the whole page, or only its fragment when htmx asks for it."""
+    template = fragment if is_fragment_request() else page
+    response = current_app.make_response((render_template(template, **context), status))
+    response.vary.add("HX-Request")
+    return response

@@ -1,0 +1,89 @@
+"""The mechanic's room: fleet, engine, opening a job and working it step by step."""
+
+from __future__ import annotations
+
+import uuid
+from typing import Any
+
+from flask import Blueprint, abort, redirect, render_template, request, url_for
+
+from .. import recording
+from ..store import fleet as fleet_store
+from ..store import jobs as job_store
+from ..store import people
+from .common import db, now, page_or_fragment, person, requires
+
+bp = Blueprint("mechanic", __name__)
+
+
+@bp.get("/fleet")
+@requires("mechanic")
+def fleet() -> Any:
+    open_jobs = job_store.jobs(db(), status="open")
+    mine = [j for j in open_jobs if j["opened_by"] == person().id]
+    others = [j for j in open_jobs if j["opened_by"] != person().id]
+    return render_template("mechanic/fleet.html", aircraft=fleet_store.fleet(db()),
+                           mine=mine, others=others)
+
+
+@bp.get("/fleet/engines/<int:engine_id>")
+@requires("mechanic")
+def engine(engine_id: int) -> Any:
+    found = fleet_store.engine(db(), engine_id)
+    if found is None:
+        abort(404)
+    openable = recording.openable_procedures(db(), found)
+    open_here = [j for j in job_store.jobs(db(), status="open") if j["engine_id"] == engine_id]
+    return render_template("mechanic/engine.html", engine=found, openable=openable,
+                           open_here=open_here)
+
+
+@bp.post("/jobs")
+@requires("mechanic")
+def open_job() -> Any:
+    try:
+        engine_id = int(request.form["engine"])
+    except (KeyError, ValueError):
+        abort(400, "Choose an engine.")
+    channel = request.form.get("channel") or None
+    job_id = recording.open_job(db(), procedure_id=request.form.get("procedure", ""),
+                                engine_id=engine_id, channel=channel, person=person(),
+                                now=now())
+    return redirect(url_for("mechanic.job", job_id=job_id), code=303)
+
+
+def _job_page(job_id: int, error: str | None = None, status: int = 200) -> Any:
+    job = recording.load_job(db(), job_id)
+    names = people.names_by_id(db(), {e["person_id"] for e in job.events})
+    current = job.state.next_step
+    return page_or_fragment("mechanic/job.html", "mechanic/_job.html", status=status,
+                            job=job.row, state=job.state, current=current, names=names,
+                            opened=job.events[0], error=error, event_id=str(uuid.uuid4()))
+
+
+@bp.get("/jobs/<int:job_id>")
+@requires("mechanic")
+def job(job_id: int) -> Any:
+    return _job_page(job_id)
+
+
+@bp.post("/jobs/<int:job_id>/steps/<step_id>")
+@requires("mechanic")
+def record_step(job_id: int, step_id: str) -> Any:
+    form = request.form
+    items = [int(i) for i in form.getlist("items") if i.isdigit()]
+    event_id = form.get("event_id", "")
+    try:
+        uuid.UUID(event_id)
+    except ValueError:
+        abort(400, "The form had no event id; reload the page.")
+    outcome = recording.record_event(
+        db(), job_id, event_id=event_id, kind=form.get("kind", ""), step_id=step_id,
+        data={"items": items} if "items_offered" in form else {},
+        device_time=form.get("device_time") or None, person=person(), now=now())
+    if outcome.status == "refused":
+        assert outcome.refusal is not None
+        return _job_page(job_id, error=outcome.refusal.reason, status=409)
+    if request.headers.get("HX-Request") == "true":
+        return _job_page(job_id)
+    return redirect(url_for("mechanic.job", job_id=job_id), code=303)

@@ -1,0 +1,136 @@
+"""The OpenAPI 3 description of the JSON API, built from the same models that validate it."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from pydantic import BaseModel
+
+from ..domain.execution import CLIENT_EVENT_KINDS, EVENT_KINDS
+
+_REFUSAL = {
+    "type": "object", "required": ["rule", "reason"],
+    "properties": {"rule": {"type": "string", "description": "stable name of the rule"},
+                   "reason": {"type": "string", "description": "words a mechanic understands"}},
+}
+_MALFORMED = {
+    "type": "object", "required": ["rule", "reason", "problems"],
+    "properties": {"rule": {"type": "string", "enum": ["malformed"]},
+                   "reason": {"type": "string"},
+                   "problems": {"type": "array", "items": {
+                       "type": "object", "properties": {"field": {"type": "string"},
+                                                        "problem": {"type": "string"}}}}},
+}
+_EVENT = {
+    "type": "object",
+    "required": ["id", "job", "seq", "kind", "data", "person", "received_at", "prev_hash",
+                 "hash"],
+    "properties": {
+        "id": {"type": "string", "format": "uuid"}, "job": {"type": "integer"},
+        "seq": {"type": "integer"}, "step": {"type": ["string", "null"]},
+        "kind": {"type": "string", "enum": list(EVENT_KINDS)},
+        "data": {"type": "object"}, "person": {"type": "integer"},
+        "device_time": {"type": ["string", "null"], "format": "date-time"},
+        "received_at": {"type": "string", "format": "date-time"},
+        "prev_hash": {"type": "string", "description": "SHA-256 of the job's previous event"},
+        "hash": {"type": "string", "description": "SHA-256 of this event's chained fields"},
+    },
+}
+_JOB = {
+    "type": "object",
+    "required": ["id", "status", "procedure", "revision", "steps", "done", "next_step"],
+    "properties": {
+        "id": {"type": "integer"}, "status": {"type": "string", "enum": ["open", "complete"]},
+        "procedure": {"type": "string"}, "procedure_title": {"type": "string"},
+        "revision": {"type": "string", "description": "SHA-256 of the pinned revision"},
+        "revision_number": {"type": "integer"}, "engine": {"type": "integer"},
+        "engine_serial": {"type": "string"}, "aircraft": {"type": "string"},
+        "position": {"type": "integer"}, "channel": {"type": ["string", "null"]},
+        "steps": {"type": "array", "items": {"type": "object", "properties": {
+            "id": {"type": "string"}, "number": {"type": "integer"},
+            "kind": {"type": "string"}, "text": {"type": "string"},
+            "status": {"type": "string", "enum": ["done", "next", "waiting"]},
+            "recordable": {"type": "boolean"}}}},
+        "done": {"type": "array", "items": {"type": "string"}},
+        "next_step": {"type": ["string", "null"]},
+        "readings": {"type": "array", "items": {"type": "object"}},
+        "url": {"type": "string"},
+    },
+}
+_FLEET = {
+    "type": "object", "properties": {"aircraft": {"type": "array", "items": {
+        "type": "object", "properties": {
+            "id": {"type": "integer"}, "registration": {"type": "string"},
+            "model": {"type": "string"},
+            "engines": {"type": "array", "items": {"type": "object", "properties": {
+                "id": {"type": "integer"}, "serial": {"type": "string"},
+                "model": {"type": "string"}, "position": {"type": "integer"},
+                "components": {"type": "array", "items": {"type": "object", "properties": {
+                    "kind": {"type": "string", "enum": ["exciter", "lead", "plug"]},
+                    "part_number": {"type": "string"}, "serial": {"type": "string"},
+                    "type": {"type": "string"}, "channel": {"type": ["string", "null"]}}}}}}}}}}},
+}
+
+
+def _json(schema: dict[str, Any] | str) -> dict[str, Any]:
+    ref = {"$ref": f"#/components/schemas/{schema}"} if isinstance(schema, str) else schema
+    return {"application/json": {"schema": ref}}
+
+
+def _answer(description: str, schema: dict[str, Any] | str) -> dict[str, Any]:
+    return {"description": description, "content": _json(schema)}
+
+
+_COMMON_ERRORS = {"401": {"description": "not logged in"},
+                  "403": {"description": "role not allowed, or CSRF token missing"}}
+
+
+def openapi_document(job_in: type[BaseModel], event_in: type[BaseModel]) -> dict[str, Any]:
+    event_schema = event_in.model_json_schema(ref_template="#/components/schemas/{model}")
+    event_schema["properties"]["kind"] = {"type": "string", "enum": list(CLIENT_EVENT_KINDS)}
+    job_id = [{"name": "job_id", "in": "path", "required": True, "schema": {"type": "integer"}}]
+    write = {"security": [{"session": [], "csrf": []}]}
+    return {
+        "openapi": "3.1.0",
+        "info": {"title": "Sparkward station API", "version": "1",
+                 "description": "Session cookie from /login; every write sends the page's "
+                                "csrf-token as the X-CSRFToken header."},
+        "components": {
+            "securitySchemes": {
+                "session": {"type": "apiKey", "in": "cookie", "name": "session"},
+                "csrf": {"type": "apiKey", "in": "header", "name": "X-CSRFToken"}},
+            "schemas": {"JobIn": job_in.model_json_schema(), "EventIn": event_schema,
+                        "Event": _EVENT, "Job": _JOB, "Fleet": _FLEET, "Refusal": _REFUSAL,
+                        "Malformed": _MALFORMED}},
+        "paths": {
+            "/healthz": {"get": {"summary": "Station health", "responses": {
+                "200": _answer("ok", {"type": "object"})}}},
+            "/api/fleet": {"get": {"summary": "Aircraft, engines and installed components",
+                                   "security": [{"session": []}],
+                                   "responses": {"200": _answer("the fleet", "Fleet"),
+                                                 **_COMMON_ERRORS}}},
+            "/api/jobs": {"post": {
+                "summary": "Open a job with the approved revision of a procedure", **write,
+                "requestBody": {"required": True, "content": _json("JobIn")},
+                "responses": {"201": _answer("the job opened", "Job"),
+                              "404": _answer("no such engine or procedure", "Refusal"),
+                              "409": _answer("refused by a rule (effectivity, channel)",
+                                             "Refusal"),
+                              "422": _answer("malformed; nothing stored", "Malformed"),
+                              **_COMMON_ERRORS}}},
+            "/api/jobs/{job_id}": {"get": {
+                "summary": "A job's state, derived from its events", "parameters": job_id,
+                "security": [{"session": []}],
+                "responses": {"200": _answer("the job", "Job"),
+                              "404": _answer("no such job", "Refusal"), **_COMMON_ERRORS}}},
+            "/api/jobs/{job_id}/events": {"post": {
+                "summary": "Record an event (idempotent on its id)", "parameters": job_id,
+                **write, "requestBody": {"required": True, "content": _json("EventIn")},
+                "responses": {"201": _answer("stored", "Event"),
+                              "200": _answer("already stored: the first answer again", "Event"),
+                              "404": _answer("no such job", "Refusal"),
+                              "409": _answer("refused by a rule", "Refusal"),
+                              "422": _answer("malformed; nothing stored", "Malformed"),
+                              **_COMMON_ERRORS}}},
+        },
+    }
