@@ -42,16 +42,18 @@ def log_in(db: store.Database, username: str, password: str, *, now: datetime,
            max_failures: int, lock_minutes: int) -> Person:
     """The person for these credentials, or LoginRefused (also when throttled)."""
     username = username.strip()
-    with store.writing(db):
-        window_start = now - timedelta(minutes=lock_minutes)
-        if people.login_failures_since(db, username, window_start) >= max_failures:
-            raise LoginRefused(f"Too many failed log-ins for this name. Wait {lock_minutes} "
-                               "minutes or ask an admin.")
-        stored = people.password_hash_of(db, username)
-        ok = check_password_hash(stored or _DUMMY_HASH, password) and stored is not None
-        found = people.person_by_username(db, username) if ok else None
+    window_start = now - timedelta(minutes=lock_minutes)
+    if people.login_failures_since(db, username, window_start) >= max_failures:
+        raise LoginRefused(f"Too many failed log-ins for this name. Wait {lock_minutes} "
+                           "minutes or ask an admin.")
+    stored = people.password_hash_of(db, username)
+    ok = check_password_hash(stored or _DUMMY_HASH, password) and stored is not None
+    found = people.person_by_username(db, username) if ok else None
+    with store.writing(db):  # the failure must be kept: it is what the throttle counts
         if found is None or not found.active:
             people.record_login_failure(db, username, now)
-            raise LoginRefused("That username and password do not match an active account.")
-        people.clear_login_failures(db, username)
+        else:
+            people.clear_login_failures(db, username)
+    if found is None or not found.active:
+        raise LoginRefused("That username and password do not match an active account.")
     return found
