@@ -1,0 +1,98 @@
+"""A job's state from its events, and the order rules, without the station around them."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+from webapp.domain.errors import RuleRefusal
+from webapp.domain.execution import check_event, configuration_for, job_state
+from webapp.domain.procedures import parse_procedure
+
+TASKS = Path(__file__).resolve().parents[2] / "tasks"
+REMOVAL = parse_procedure((TASKS / "exciter-removal.yaml").read_text(encoding="utf-8"))
+
+DC_ENGINE = [
+    {"kind": "exciter", "type": "dc", "channel": "A"},
+    {"kind": "exciter", "type": "dc", "channel": "B"},
+    {"kind": "plug", "type": "surface-discharge", "channel": "A"},
+    {"kind": "plug", "type": "surface-discharge", "channel": "B"},
+]
+
+
+def _opened(configuration) -> dict:
+    return {"kind": "job_opened", "step_id": None, "data": configuration.as_data()}
+
+
+def _done(step_id: str, kind: str = "step_done") -> dict:
+    return {"kind": kind, "step_id": step_id, "data": {}}
+
+
+def _state(*events):
+    configuration = configuration_for(REMOVAL, "QT-610", DC_ENGINE, "A")
+    return job_state(REMOVAL, [_opened(configuration), *events])
+
+
+def test_new_job_waits_at_its_first_step():
+    state = _state()
+    assert state.status == "open"
+    assert state.next_step.id == "identify" and state.done_count == 0
+    assert [s.status for s in state.steps[:3]] == ["next", "waiting", "waiting"]
+
+
+def test_done_steps_move_the_next_step_on():
+    state = _state(_done("identify"), _done("selectors-off"))
+    assert state.next_step.id == "lethal-energy-breakers"
+    assert state.done_count == 2
+
+
+def test_refused_out_of_order_names_the_step_that_comes_first():
+    with pytest.raises(RuleRefusal) as refused:
+        check_event(_state(), "step_done", "disconnect-input", {})
+    assert refused.value.rule == "out_of_order"
+    assert refused.value.details["next_step"] == "identify"
+    assert "Step 1" in refused.value.reason
+
+
+def test_warning_needs_acknowledgement_not_done():
+    state = _state(_done("identify"), _done("selectors-off"))
+    with pytest.raises(RuleRefusal, match="acknowledged") as refused:
+        check_event(state, "step_done", "lethal-energy-breakers", {})
+    assert refused.value.rule == "wrong_event_for_step"
+    check_event(state, "acknowledged", "lethal-energy-breakers", {})  # allowed
+
+
+def test_items_must_all_be_confirmed():
+    state = _state(_done("identify"))
+    for ticked in (None, [], [0, 1], [0, 1, 1], [0, 1, 5], "all"):
+        with pytest.raises(RuleRefusal) as refused:
+            check_event(state, "step_done", "selectors-off", {"items": ticked})
+        assert refused.value.rule == "items_unconfirmed"
+    check_event(state, "step_done", "selectors-off", {"items": [2, 0, 1]})
+
+
+def test_steps_that_do_not_apply_are_not_part_of_the_job():
+    with pytest.raises(RuleRefusal) as refused:
+        check_event(_state(), "step_done", "ac-input-open", {})  # AC-only step, DC engine
+    assert refused.value.rule == "unknown_step"
+
+
+def test_configuration_is_taken_from_the_job_s_channel():
+    mixed = [*DC_ENGINE[:1], {"kind": "exciter", "type": "ac", "channel": "B"}, *DC_ENGINE[2:]]
+    assert configuration_for(REMOVAL, "QT-610", mixed, "A").exciter_types == ("dc",)
+    assert configuration_for(REMOVAL, "QT-610", mixed, "B").exciter_types == ("ac",)
+
+
+def test_configuration_refuses_missing_parts_and_other_engine_models():
+    with pytest.raises(RuleRefusal) as missing:
+        configuration_for(REMOVAL, "QT-610", DC_ENGINE[2:], "A")
+    assert missing.value.rule == "configuration_unknown"
+    with pytest.raises(RuleRefusal) as other_model:
+        configuration_for(REMOVAL, "QT-999", DC_ENGINE, "A")
+    assert other_model.value.rule == "not_effective"
+
+
+def test_job_log_must_start_with_job_opened():
+    with pytest.raises(ValueError):
+        job_state(REMOVAL, [_done("identify")])

@@ -1,0 +1,29 @@
+"""A real station on a free port over a copy of the demo database, for Chromium to use."""
+
+from __future__ import annotations
+
+import threading
+
+import pytest
+from werkzeug.serving import make_server
+
+from webapp import create_app
+
+
+@pytest.fixture
+def live_server(db_path):
+    app = create_app({"DB_PATH": str(db_path), "SECRET_KEY": "e2e-secret"})
+    server = make_server("127.0.0.1", 0, app, threaded=True)
+    thread = threading.Thread(target=server.serve_forever, daemon=True)
+    thread.start()
+    yield f"http://127.0.0.1:{server.server_port}"
+    server.shutdown()
+    thread.join(timeout=5)
+
+
+def log_in(page, base_url: str, username: str, password: str) -> None:
+    page.goto(f"{base_url}/login")
+    page.fill("#username", username)
+    page.fill("#password", password)
+    page.click("[data-testid=login]")
+    page.wait_for_url(f"{base_url}/fleet")

@@ -1,0 +1,65 @@
+"""A mechanic works a procedure on a tablet in real Chromium, leaves, and resumes it."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from playwright.sync_api import expect
+
+from .conftest import log_in
+
+ARTIFACTS = Path(__file__).resolve().parents[1] / "artifacts"
+
+
+def test_walk_steps_reload_and_resume_on_another_tablet(browser, playwright, live_server):
+    tablet = playwright.devices["iPad Mini"]
+    context = browser.new_context(**tablet)
+    page = context.new_page()
+    outside = []
+    page.on("request", lambda r: None if r.url.startswith(live_server) else outside.append(r.url))
+    log_in(page, live_server, "mech1", "demo-mech1")
+
+    page.click("[data-testid=engine-QT6-10231]")
+    expect(page.get_by_test_id("context")).to_contain_text("DEMO-101")
+    page.click("[data-testid=open-exciter-removal-A]")
+    step = page.get_by_test_id("step")
+    expect(step).to_have_attribute("data-step-id", "identify")
+    expect(page.get_by_test_id("source")).to_contain_text("QT-610 Engine Maintenance Manual")
+    expect(page.get_by_test_id("safety-notice")).to_contain_text("approved maintenance data")
+
+    page.click("[data-testid=done]")
+    expect(step).to_have_attribute("data-step-id", "selectors-off")
+    # The Done button does nothing until every item is ticked (the station would refuse too).
+    page.click("[data-testid=done]")
+    expect(step).to_have_attribute("data-step-id", "selectors-off")
+    for index in range(3):
+        page.check(f"[data-testid=item-{index}]")
+    page.click("[data-testid=done]")
+
+    expect(step).to_have_attribute("data-step-kind", "warning")
+    expect(step).to_contain_text("WARNING")
+    page.click("[data-testid=acknowledge]")
+    expect(step).to_have_attribute("data-step-id", "breakers")
+    expect(page.get_by_test_id("reminders")).to_contain_text("lethal charge")
+    expect(page.get_by_test_id("not-available")).to_be_visible()
+    expect(page.get_by_test_id("progress")).to_have_text("3 of 15 steps done")
+
+    ARTIFACTS.mkdir(exist_ok=True)
+    page.screenshot(path=str(ARTIFACTS / "step-screen-tablet.png"), full_page=True)
+
+    page.reload()
+    expect(page.get_by_test_id("step")).to_have_attribute("data-step-id", "breakers")
+    expect(page.get_by_test_id("progress-identify")).to_have_attribute("data-status", "done")
+    job_url = page.url
+    context.close()
+
+    # Another tablet, another mechanic: the job is where it was left.
+    other = browser.new_context(**tablet)
+    second = other.new_page()
+    log_in(second, live_server, "mech2", "demo-mech2")
+    second.click("[data-testid^=resume-job-]")
+    assert second.url == job_url
+    expect(second.get_by_test_id("step")).to_have_attribute("data-step-id", "breakers")
+    expect(second.get_by_test_id("progress-identify")).to_contain_text("Aino Varga")
+    other.close()
+    assert outside == []
