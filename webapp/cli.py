@@ -1,4 +1,4 @@
-"""Station commands: `sparkward init|demo|serve|tasks check|people add` (also under `flask --app webapp`)."""
+"""Station commands: init, demo, serve, tasks check, people add (also under `flask`)."""
 
 from __future__ import annotations
 
@@ -47,7 +47,8 @@ def init(db_path: Path | None) -> None:
     try:
         loaded = _init(app)
     except ProcedureInvalid as invalid:
-        raise click.ClickException("the procedure library has problems:\n" + str(invalid))
+        raise click.ClickException("the procedure library has problems:\n"
+                                   + str(invalid)) from None
     click.echo(f"Station database ready: {app.config['DB_PATH']}")
     click.echo(f"Approved revisions loaded: {', '.join(loaded) or 'none new'}")
 

@@ -8,8 +8,14 @@ from functools import lru_cache
 from pathlib import Path
 
 from . import store
-from .domain.procedures import (Procedure, ProcedureInvalid, ProcedureProblem, content_hash,
-                                normalise_text, parse_procedure)
+from .domain.procedures import (
+    Procedure,
+    ProcedureInvalid,
+    ProcedureProblem,
+    content_hash,
+    normalise_text,
+    parse_procedure,
+)
 from .resources import shipped_dir
 from .store import procedures as stored
 

@@ -54,7 +54,8 @@ AUDIT = """
     const fg = parse(getComputedStyle(el).color).slice(0, 3);
     const l1 = lum(fg), l2 = lum(background(el));
     const ratio = (Math.max(l1, l2) + 0.05) / (Math.min(l1, l2) + 0.05);
-    if (ratio < 4.5) faint.push(`${el.tagName} "${el.textContent.trim().slice(0, 30)}" ${ratio.toFixed(2)}`);
+    const said = el.textContent.trim().slice(0, 30);
+    if (ratio < 4.5) faint.push(`${el.tagName} "${said}" ${ratio.toFixed(2)}`);
   }
   return {scroll: document.documentElement.scrollWidth, width: window.innerWidth,
           small, faint};

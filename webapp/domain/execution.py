@@ -137,8 +137,8 @@ def job_state(procedure: Procedure, events: Sequence[Mapping[str, Any]]) -> JobS
         else:
             status = "waiting"
         progress.append(StepProgress(number, step, status, completed.get(step.id), recordable))
-    status = "open" if next_found else "complete"
-    return JobState(procedure, configuration, tuple(progress), status)
+    job_status: Literal["open", "complete"] = "open" if next_found else "complete"
+    return JobState(procedure, configuration, tuple(progress), job_status)
 
 
 def check_event(state: JobState, kind: str, step_id: str | None,

@@ -106,15 +106,15 @@ def _check_quantity(value: str | float, dimension: str) -> str:
     return str(value)
 
 
-def _quantity_of(dimension: str) -> Any:
-    # Numbers are let through the type so the check can say "has no unit".
-    return Annotated[str | int | float, AfterValidator(lambda v: _check_quantity(v, dimension))]
+def _quantity_of(dimension: str) -> AfterValidator:
+    return AfterValidator(lambda v: _check_quantity(v, dimension))
 
 
-Duration = _quantity_of("time")
-Capacitance = _quantity_of("capacitance")
-Voltage = _quantity_of("voltage")
-Resistance = _quantity_of("resistance")
+# Numbers are let through the type so the check can say "has no unit".
+Duration = Annotated[str | int | float, _quantity_of("time")]
+Capacitance = Annotated[str | int | float, _quantity_of("capacitance")]
+Voltage = Annotated[str | int | float, _quantity_of("voltage")]
+Resistance = Annotated[str | int | float, _quantity_of("resistance")]
 AnyUnit = Annotated[str, AfterValidator(_check_unit)]
 TorqueUnit = Annotated[str, AfterValidator(lambda v: _check_unit(v, "torque"))]
 
@@ -320,7 +320,8 @@ class ProcedureProblem:
     def __str__(self) -> str:
         where = [self.file]
         if self.step_number is not None:
-            where.append(f"step {self.step_number}" + (f" ({self.step_id})" if self.step_id else ""))
+            named = f" ({self.step_id})" if self.step_id else ""
+            where.append(f"step {self.step_number}{named}")
         if self.field:
             where.append(f"field '{self.field}'")
         return ": ".join([", ".join(where), self.message])
@@ -465,9 +466,9 @@ def _order_problems(procedure: Procedure, file: str) -> Iterator[ProcedureProble
                                    "the same 'when'", number, step.id, "when")
     # Within a run of advisories: warnings, then cautions, then notes.
     run: list[tuple[int, Advisory]] = []
-    for number, step in enumerate([*steps, None], start=1):
-        if isinstance(step, Advisory):
-            run.append((number, step))
+    for number, entry in enumerate([*steps, None], start=1):
+        if isinstance(entry, Advisory):
+            run.append((number, entry))
             continue
         for (_, earlier), (later_number, later) in zip(run, run[1:], strict=False):
             if ADVISORY_KINDS.index(later.kind) < ADVISORY_KINDS.index(earlier.kind):

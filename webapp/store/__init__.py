@@ -14,12 +14,19 @@ from contextlib import contextmanager
 from pathlib import Path
 
 from sqlite_utils import Database
+from sqlite_utils.db import Table
 
 from .migrations import MIGRATIONS
 
 BUSY_TIMEOUT_MS = 5000
 
-__all__ = ["Database", "connect", "create", "writing"]
+__all__ = ["Database", "connect", "create", "new_row_id", "writing"]
+
+
+def new_row_id(table: Table) -> int:
+    """The integer key of the row a table's last insert made."""
+    assert table.last_pk is not None, "no row was inserted"
+    return int(table.last_pk)
 
 
 def connect(path: str | Path) -> Database:

@@ -7,13 +7,15 @@ from datetime import datetime
 
 from sqlite_utils import Database
 
+from . import new_row_id
+
 
 def create_job(db: Database, *, engine_id: int, procedure_id: str, revision_hash: str,
                channel: str | None, opened_by: int, now: datetime) -> int:
-    return int(db["jobs"].insert({
+    return new_row_id(db.table("jobs").insert({
         "engine_id": engine_id, "procedure_id": procedure_id, "revision_hash": revision_hash,
         "channel": channel, "status": "open", "opened_by": opened_by,
-        "opened_at": now.isoformat()}).last_pk)
+        "opened_at": now.isoformat()}))
 
 
 def set_job_status(db: Database, job_id: int, status: str) -> None:
@@ -47,11 +49,12 @@ def _event(row: dict) -> dict:
 
 def events(db: Database, job_id: int) -> list[dict]:
     """The job's events in order, data decoded."""
-    return [_event(r) for r in db["events"].rows_where("job_id = ?", [job_id], order_by="seq")]
+    rows = db.table("events").rows_where("job_id = ?", [job_id], order_by="seq")
+    return [_event(r) for r in rows]
 
 
 def event(db: Database, event_id: str) -> dict | None:
-    rows = list(db["events"].rows_where("id = ?", [event_id], limit=1))
+    rows = list(db.table("events").rows_where("id = ?", [event_id], limit=1))
     return _event(rows[0]) if rows else None
 
 
@@ -75,11 +78,11 @@ def append_event(db: Database, record: dict) -> None:
 def record_refusal(db: Database, *, event_id: str | None, job_id: int, person_id: int,
                    kind: str, step_id: str | None, data: dict, rule: str, reason: str,
                    now: datetime) -> None:
-    db["refusals"].insert({
+    db.table("refusals").insert({
         "event_id": event_id, "job_id": job_id, "person_id": person_id, "kind": kind,
         "step_id": step_id, "data": json.dumps(data, sort_keys=True), "rule": rule,
         "reason": reason, "received_at": now.isoformat()})
 
 
 def refusals(db: Database, job_id: int) -> list[dict]:
-    return list(db["refusals"].rows_where("job_id = ?", [job_id], order_by="id"))
+    return list(db.table("refusals").rows_where("job_id = ?", [job_id], order_by="id"))

@@ -10,68 +10,68 @@ MIGRATIONS = Migrations("sparkward")
 
 @MIGRATIONS(name="0001_people_fleet_procedures_jobs_events")
 def initial(db: Database) -> None:
-    db["settings"].create({"key": str, "value": str}, pk="key")
-    db["people"].create({
+    db.table("settings").create({"key": str, "value": str}, pk="key")
+    db.table("people").create({
         "id": int, "username": str, "full_name": str, "roles": str,
         "authorisation": str, "password_hash": str, "active": int, "created_at": str,
     }, pk="id", not_null={"username", "full_name", "roles", "password_hash", "active"})
-    db["people"].create_index(["username"], unique=True)
-    db["login_failures"].create({"id": int, "username": str, "at": str}, pk="id")
-    db["login_failures"].create_index(["username", "at"])
+    db.table("people").create_index(["username"], unique=True)
+    db.table("login_failures").create({"id": int, "username": str, "at": str}, pk="id")
+    db.table("login_failures").create_index(["username", "at"])
 
-    db["aircraft"].create({"id": int, "registration": str, "model": str, "operator": str},
+    db.table("aircraft").create({"id": int, "registration": str, "model": str, "operator": str},
                           pk="id", not_null={"registration", "model"})
-    db["aircraft"].create_index(["registration"], unique=True)
-    db["engines"].create({"id": int, "aircraft_id": int, "position": int, "model": str,
+    db.table("aircraft").create_index(["registration"], unique=True)
+    db.table("engines").create({"id": int, "aircraft_id": int, "position": int, "model": str,
                           "serial": str}, pk="id", foreign_keys=[("aircraft_id", "aircraft")],
                          not_null={"model", "serial"})
-    db["engines"].create_index(["serial"], unique=True)
-    db["engines"].create_index(["aircraft_id", "position"], unique=True)
-    db["components"].create({
+    db.table("engines").create_index(["serial"], unique=True)
+    db.table("engines").create_index(["aircraft_id", "position"], unique=True)
+    db.table("components").create({
         "id": int, "kind": str, "part_number": str, "serial": str, "type": str,
         "engine_id": int, "channel": str,
     }, pk="id", foreign_keys=[("engine_id", "engines")],
         not_null={"kind", "part_number", "serial", "type"})
-    db["components"].create_index(["part_number", "serial"], unique=True)
-    db["plug_wear_history"].create({
+    db.table("components").create_index(["part_number", "serial"], unique=True)
+    db.table("plug_wear_history").create({
         "id": int, "component_id": int, "engine_id": int, "channel": str, "measured_on": str,
         "erosion_mm": float, "engine_hours": float, "starts": int,
         "continuous_ignition_hours": float, "continuous_ignition_estimated": int,
         "source": str,
     }, pk="id", foreign_keys=[("component_id", "components"), ("engine_id", "engines")])
 
-    db["procedures"].create({"id": str, "title": str}, pk="id")
-    db["procedure_revisions"].create({
+    db.table("procedures").create({"id": str, "title": str}, pk="id")
+    db.table("procedure_revisions").create({
         "hash": str, "procedure_id": str, "number": int, "content": str, "status": str,
         "source_file": str, "created_at": str,
     }, pk="hash", foreign_keys=[("procedure_id", "procedures")],
         not_null={"procedure_id", "number", "content", "status"})
-    db["procedure_revisions"].create_index(["procedure_id", "number"], unique=True)
+    db.table("procedure_revisions").create_index(["procedure_id", "number"], unique=True)
 
-    db["jobs"].create({
+    db.table("jobs").create({
         "id": int, "engine_id": int, "procedure_id": str, "revision_hash": str, "channel": str,
         "status": str, "opened_by": int, "opened_at": str,
     }, pk="id", foreign_keys=[("engine_id", "engines"), ("procedure_id", "procedures"),
                               ("revision_hash", "procedure_revisions"), ("opened_by", "people")],
         not_null={"engine_id", "procedure_id", "revision_hash", "status", "opened_by"})
-    db["jobs"].create_index(["status"])
+    db.table("jobs").create_index(["status"])
 
-    db["events"].create({
+    db.table("events").create({
         "id": str, "job_id": int, "seq": int, "step_id": str, "kind": str, "data": str,
         "person_id": int, "device_time": str, "received_at": str, "prev_hash": str,
         "hash": str,
     }, pk="id", foreign_keys=[("job_id", "jobs"), ("person_id", "people")],
         not_null={"job_id", "seq", "kind", "data", "person_id", "received_at", "prev_hash",
                   "hash"})
-    db["events"].create_index(["job_id", "seq"], unique=True)
+    db.table("events").create_index(["job_id", "seq"], unique=True)
     # The log is append-only: the database itself refuses edits and deletions.
     db.execute("""CREATE TRIGGER events_no_update BEFORE UPDATE ON events
                   BEGIN SELECT RAISE(ABORT, 'events are append-only'); END""")
     db.execute("""CREATE TRIGGER events_no_delete BEFORE DELETE ON events
                   BEGIN SELECT RAISE(ABORT, 'events are append-only'); END""")
 
-    db["refusals"].create({
+    db.table("refusals").create({
         "id": int, "event_id": str, "job_id": int, "person_id": int, "kind": str,
         "step_id": str, "data": str, "rule": str, "reason": str, "received_at": str,
     }, pk="id")
-    db["refusals"].create_index(["job_id"])
+    db.table("refusals").create_index(["job_id"])

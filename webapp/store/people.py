@@ -8,6 +8,8 @@ from datetime import datetime
 
 from sqlite_utils import Database
 
+from . import new_row_id
+
 ROLES = ("mechanic", "supervisor", "trainer", "admin")
 
 
@@ -38,30 +40,30 @@ def add_person(db: Database, *, username: str, full_name: str, roles: list[str],
         raise ValueError(f"unknown role {', '.join(unknown)}; roles are {', '.join(ROLES)}")
     if person_by_username(db, username) is not None:
         raise ValueError(f"the username '{username}' is taken")
-    table = db["people"]
+    table = db.table("people")
     table.insert({"username": username, "full_name": full_name, "roles": json.dumps(roles),
                   "authorisation": authorisation, "password_hash": password_hash,
                   "active": 1, "created_at": now.isoformat()})
-    return _person(table.get(table.last_pk))
+    return _person(table.get(new_row_id(table)))
 
 
 def person_by_username(db: Database, username: str) -> Person | None:
-    rows = list(db["people"].rows_where("username = ?", [username], limit=1))
+    rows = list(db.table("people").rows_where("username = ?", [username], limit=1))
     return _person(rows[0]) if rows else None
 
 
 def person_by_id(db: Database, person_id: int) -> Person | None:
-    rows = list(db["people"].rows_where("id = ?", [person_id], limit=1))
+    rows = list(db.table("people").rows_where("id = ?", [person_id], limit=1))
     return _person(rows[0]) if rows else None
 
 
 def password_hash_of(db: Database, username: str) -> str | None:
-    rows = list(db["people"].rows_where("username = ?", [username], select="password_hash"))
+    rows = list(db.table("people").rows_where("username = ?", [username], select="password_hash"))
     return rows[0]["password_hash"] if rows else None
 
 
 def all_people(db: Database) -> list[Person]:
-    return [_person(r) for r in db["people"].rows_where(order_by="full_name")]
+    return [_person(r) for r in db.table("people").rows_where(order_by="full_name")]
 
 
 def names_by_id(db: Database, ids: set[int]) -> dict[int, str]:
@@ -73,7 +75,7 @@ def names_by_id(db: Database, ids: set[int]) -> dict[int, str]:
 
 
 def record_login_failure(db: Database, username: str, at: datetime) -> None:
-    db["login_failures"].insert({"username": username, "at": at.isoformat()})
+    db.table("login_failures").insert({"username": username, "at": at.isoformat()})
 
 
 def login_failures_since(db: Database, username: str, since: datetime) -> int:

@@ -14,15 +14,15 @@ def store_revision(db: Database, *, procedure_id: str, title: str, content: str,
 
     Approving a new revision supersedes the procedure's earlier approved one.
     """
-    if db["procedure_revisions"].count_where("hash = ?", [content_hash]):
+    if db.table("procedure_revisions").count_where("hash = ?", [content_hash]):
         return False
-    db["procedures"].upsert({"id": procedure_id, "title": title}, pk="id")
+    db.table("procedures").upsert({"id": procedure_id, "title": title}, pk="id")
     number = next(db.query("select coalesce(max(number), 0) + 1 as n from procedure_revisions "
                            "where procedure_id = ?", [procedure_id]))["n"]
     if status == "approved":
         db.execute("update procedure_revisions set status = 'superseded' "
                    "where procedure_id = ? and status = 'approved'", [procedure_id])
-    db["procedure_revisions"].insert({
+    db.table("procedure_revisions").insert({
         "hash": content_hash, "procedure_id": procedure_id, "number": number,
         "content": content, "status": status, "source_file": source_file,
         "created_at": now.isoformat()})
@@ -38,11 +38,11 @@ def approved_revisions(db: Database) -> list[dict]:
 
 
 def approved_revision(db: Database, procedure_id: str) -> dict | None:
-    rows = list(db["procedure_revisions"].rows_where(
+    rows = list(db.table("procedure_revisions").rows_where(
         "procedure_id = ? and status = 'approved'", [procedure_id], limit=1))
     return rows[0] if rows else None
 
 
 def revision(db: Database, content_hash: str) -> dict | None:
-    rows = list(db["procedure_revisions"].rows_where("hash = ?", [content_hash], limit=1))
+    rows = list(db.table("procedure_revisions").rows_where("hash = ?", [content_hash], limit=1))
     return rows[0] if rows else None
