@@ -130,7 +130,7 @@ def build_station(tmp: Path, long_steps: int) -> dict[str, Any]:
                                              kind=kind, step_id=nxt.id, data=data,
                                              device_time=None, person=mech, now=now)
             assert outcome.status == "stored", outcome
-        assert len(recording.load_job(db, page_job).events) == STEP_PAGE_EVENTS
+        assert recording.load_job(db, page_job).head["seq"] == STEP_PAGE_EVENTS
         post_job = recording.open_job(db, procedure_id=LONG_PROCEDURE, engine_id=engine_id,
                                       channel=None, person=mech, now=now)
     finally:

@@ -20,6 +20,7 @@ DEFAULTS: dict[str, Any] = {
     "LOGIN_LOCK_MINUTES": 10,
     "SESSION_COOKIE_HTTPONLY": True,
     "SESSION_COOKIE_SAMESITE": "Lax",
+    "SESSION_REFRESH_EACH_REQUEST": False,  # re-signing the cookie on every tap costs time
     "WTF_CSRF_TIME_LIMIT": None,  # the token lives as long as the session
     "STATION_NAME": "Sparkward station",
 }

@@ -6,7 +6,9 @@ one BEGIN IMMEDIATE transaction, the domain decides, the store appends.
 
 from __future__ import annotations
 
+import threading
 import uuid
+from collections import OrderedDict
 from dataclasses import dataclass
 from datetime import datetime
 from typing import Any, Literal
@@ -14,7 +16,7 @@ from typing import Any, Literal
 from . import store
 from .domain.chain import GENESIS, event_digest
 from .domain.errors import RuleRefusal
-from .domain.execution import JobState, check_event, configuration_for, job_state
+from .domain.execution import JobState, apply_event, check_event, configuration_for, job_state
 from .library import procedure_of_revision
 from .store import fleet, jobs, procedures
 from .store.people import Person
@@ -28,7 +30,39 @@ class NotFound(LookupError):
 class Job:
     row: dict[str, Any]
     state: JobState
-    events: list[dict[str, Any]]
+    head: dict[str, Any]  # the job's latest event: seq and hash
+
+
+class _StateCache:
+    """Job states by the hash of their latest event.
+
+    The hash chain makes the head hash name the whole log, so a state found
+    here is exactly what rebuilding from the log would give; an event appended
+    by anyone changes the head and misses the cache. Saves re-reading a long log
+    on every step.
+    """
+
+    def __init__(self, size: int = 256) -> None:
+        self._size = size
+        self._states: OrderedDict[str, JobState] = OrderedDict()
+        self._lock = threading.Lock()
+
+    def get(self, head_hash: str) -> JobState | None:
+        with self._lock:
+            state = self._states.get(head_hash)
+            if state is not None:
+                self._states.move_to_end(head_hash)
+            return state
+
+    def put(self, head_hash: str, state: JobState) -> None:
+        with self._lock:
+            self._states[head_hash] = state
+            self._states.move_to_end(head_hash)
+            while len(self._states) > self._size:
+                self._states.popitem(last=False)
+
+
+_STATES = _StateCache()
 
 
 @dataclass(frozen=True)
@@ -39,12 +73,13 @@ class Outcome:
 
 
 def _chain(db: store.Database, *, job_id: int, event_id: str, kind: str, step_id: str | None,
-           data: dict[str, Any], person_id: int, device_time: str | None,
-           now: datetime) -> dict[str, Any]:
-    seq, previous = jobs.last_link(db, job_id)
-    record = {"id": event_id, "job_id": job_id, "seq": seq + 1, "step_id": step_id,
-              "kind": kind, "data": data, "person_id": person_id, "device_time": device_time,
-              "received_at": now.isoformat(), "prev_hash": previous or GENESIS}
+           data: dict[str, Any], person_id: int, device_time: str | None, now: datetime,
+           last: dict[str, Any] | None) -> dict[str, Any]:
+    """Append an event linked to `last` (the job's latest event, None for the first)."""
+    record = {"id": event_id, "job_id": job_id, "seq": last["seq"] + 1 if last else 1,
+              "step_id": step_id, "kind": kind, "data": data, "person_id": person_id,
+              "device_time": device_time, "received_at": now.isoformat(),
+              "prev_hash": last["hash"] if last else GENESIS}
     record["hash"] = event_digest(record)
     jobs.append_event(db, record)
     return record
@@ -70,19 +105,25 @@ def open_job(db: store.Database, *, procedure_id: str, engine_id: int, channel: 
                data={"procedure": procedure_id, "revision": revision["hash"],
                      "engine": engine_id, "engine_serial": engine["serial"],
                      **configuration.as_data()},
-               person_id=person.id, device_time=None, now=now)
+               person_id=person.id, device_time=None, now=now, last=None)
     return job_id
 
 
 def load_job(db: store.Database, job_id: int) -> Job:
+    """A job's row and state (rebuilt from its log unless the same log was seen before)."""
     row = jobs.job(db, job_id)
     if row is None:
         raise NotFound(f"job {job_id} does not exist")
-    revision = procedures.revision(db, row["revision_hash"])
-    assert revision is not None  # a foreign key keeps it
-    procedure = procedure_of_revision(revision["hash"], revision["content"])
-    events = jobs.events(db, job_id)
-    return Job(row, job_state(procedure, events), events)
+    head = jobs.chain_head(db, job_id)
+    assert head is not None  # every job starts with job_opened
+    state = _STATES.get(head["hash"])
+    if state is None:
+        revision = procedures.revision(db, row["revision_hash"])
+        assert revision is not None  # a foreign key keeps it
+        procedure = procedure_of_revision(revision["hash"], revision["content"])
+        state = job_state(procedure, jobs.events(db, job_id))
+        _STATES.put(head["hash"], state)
+    return Job(row, state, head)
 
 
 def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
@@ -107,10 +148,12 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
                                 reason=refusal.reason, now=now)
             return Outcome("refused", refusal=refusal)
         record = _chain(db, job_id=job_id, event_id=event_id, kind=kind, step_id=step_id,
-                        data=data, person_id=person.id, device_time=device_time, now=now)
-        after = job_state(job.state.procedure, [*job.events, record])
+                        data=data, person_id=person.id, device_time=device_time, now=now,
+                        last=job.head)
+        after = apply_event(job.state, record)
         if after.status != job.row["status"]:
             jobs.set_job_status(db, job_id, after.status)
+    _STATES.put(record["hash"], after)  # only once committed
     return Outcome("stored", event=record)
 
 

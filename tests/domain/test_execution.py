@@ -7,7 +7,7 @@ from pathlib import Path
 import pytest
 
 from webapp.domain.errors import RuleRefusal
-from webapp.domain.execution import check_event, configuration_for, job_state
+from webapp.domain.execution import apply_event, check_event, configuration_for, job_state
 from webapp.domain.procedures import parse_procedure
 
 TASKS = Path(__file__).resolve().parents[2] / "tasks"
@@ -96,3 +96,23 @@ def test_configuration_refuses_missing_parts_and_other_engine_models():
 def test_job_log_must_start_with_job_opened():
     with pytest.raises(ValueError):
         job_state(REMOVAL, [_done("identify")])
+
+
+def test_applying_events_one_by_one_equals_rebuilding_from_the_log():
+    import random
+
+    configuration = configuration_for(REMOVAL, "QT-610", DC_ENGINE, "A")
+    opened = _opened(configuration)
+    ids = [s.id for s in job_state(REMOVAL, [opened]).steps]
+    rng = random.Random(74)
+    for _ in range(50):
+        # In order, out of order, repeated: the fold must match the rebuild every time.
+        order = rng.sample(ids, rng.randint(1, len(ids))) if rng.random() < 0.5 else ids[
+            :rng.randint(1, len(ids))]
+        events = [opened]
+        state = job_state(REMOVAL, events)
+        for step_id in order:
+            event = _done(step_id)
+            events.append(event)
+            state = apply_event(state, event)
+            assert state == job_state(REMOVAL, events)

@@ -8,7 +8,7 @@ every time, from the pinned procedure revision and the events in order.
 from __future__ import annotations
 
 from collections.abc import Iterable, Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any, Literal
 
 from .errors import RuleRefusal
@@ -126,6 +126,32 @@ def job_state(procedure: Procedure, events: Sequence[Mapping[str, Any]]) -> JobS
     steps = procedure.steps_for(configuration.exciter_types, configuration.plug_types)
     completed = {e["step_id"]: e for e in events[1:]
                  if e["kind"] in CLIENT_EVENT_KINDS and e["step_id"] is not None}
+    return _with_completed(procedure, configuration, steps, completed)
+
+
+def apply_event(state: JobState, event: Mapping[str, Any]) -> JobState:
+    """The state after one more (allowed) event: job_state(events + [event]), without the log."""
+    if event["kind"] not in CLIENT_EVENT_KINDS or event["step_id"] is None:
+        return state
+    steps = list(state.steps)
+    position = next((i for i, s in enumerate(steps) if s.id == event["step_id"]), None)
+    if position is None:
+        return state
+    steps[position] = replace(steps[position], status="done", event=event)
+    # The next step is the first one not done; every other step keeps its status.
+    for i, s in enumerate(steps):
+        if s.status == "next" and i != position:
+            break
+        if s.status == "waiting":
+            steps[i] = replace(s, status="next")
+            break
+    status: Literal["open", "complete"] = (
+        "open" if any(s.status != "done" for s in steps) else "complete")
+    return replace(state, steps=tuple(steps), status=status)
+
+
+def _with_completed(procedure: Procedure, configuration: Configuration, steps: Sequence[Step],
+                    completed: Mapping[str, Mapping[str, Any]]) -> JobState:
     progress: list[StepProgress] = []
     next_found = False
     for number, step in enumerate(steps, start=1):

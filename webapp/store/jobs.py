@@ -58,11 +58,11 @@ def event(db: Database, event_id: str) -> dict | None:
     return _event(rows[0]) if rows else None
 
 
-def last_link(db: Database, job_id: int) -> tuple[int, str | None]:
-    """The last seq and hash of a job's chain (0, None when it has no events)."""
+def chain_head(db: Database, job_id: int) -> dict | None:
+    """The job's latest event's seq and hash (None when it has no events)."""
     rows = list(db.query("select seq, hash from events where job_id = ? "
                          "order by seq desc limit 1", [job_id]))
-    return (rows[0]["seq"], rows[0]["hash"]) if rows else (0, None)
+    return rows[0] if rows else None
 
 
 def append_event(db: Database, record: dict) -> None:

@@ -54,11 +54,10 @@ def open_job() -> Any:
 
 def _job_page(job_id: int, error: str | None = None, status: int = 200) -> Any:
     job = recording.load_job(db(), job_id)
-    names = people.names_by_id(db(), {e["person_id"] for e in job.events})
-    current = job.state.next_step
+    names = people.names_by_id(db(), {s.event["person_id"] for s in job.state.steps if s.event})
     return page_or_fragment("mechanic/job.html", "mechanic/_job.html", status=status,
-                            job=job.row, state=job.state, current=current, names=names,
-                            opened=job.events[0], error=error, event_id=str(uuid.uuid4()))
+                            job=job.row, state=job.state, current=job.state.next_step,
+                            names=names, error=error, event_id=str(uuid.uuid4()))
 
 
 @bp.get("/jobs/<int:job_id>")

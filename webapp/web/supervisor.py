@@ -24,7 +24,8 @@ def jobs() -> Any:
 @requires("supervisor")
 def job_log(job_id: int) -> Any:
     job = recording.load_job(db(), job_id)
-    names = people.names_by_id(db(), {e["person_id"] for e in job.events})
+    events = job_store.events(db(), job_id)
+    names = people.names_by_id(db(), {e["person_id"] for e in events})
     return render_template("supervisor/job_log.html", job=job.row, state=job.state,
-                           events=job.events, names=names,
+                           events=events, names=names,
                            refusals=job_store.refusals(db(), job_id))
