@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+import pytest
 from playwright.sync_api import expect
 
 from .conftest import log_in
@@ -11,8 +12,10 @@ from .conftest import log_in
 ARTIFACTS = Path(__file__).resolve().parents[1] / "artifacts"
 
 
-def test_walk_steps_reload_and_resume_on_another_tablet(browser, playwright, live_server):
-    tablet = playwright.devices["iPad Mini"]
+@pytest.mark.parametrize("device", ["iPad Mini", "Galaxy S8"])
+def test_walk_steps_reload_and_resume_on_another_device(browser, playwright, live_server,
+                                                        device):
+    tablet = playwright.devices[device]
     context = browser.new_context(**tablet)
     page = context.new_page()
     outside = []
@@ -27,8 +30,11 @@ def test_walk_steps_reload_and_resume_on_another_tablet(browser, playwright, liv
     expect(page.get_by_test_id("source")).to_contain_text("QT-610 Engine Maintenance Manual")
     expect(page.get_by_test_id("safety-notice")).to_contain_text("approved maintenance data")
 
+    job_url = page.url
+    assert page.evaluate("window.htmx.version") == "2.0.11"
     page.click("[data-testid=done]")
     expect(step).to_have_attribute("data-step-id", "selectors-off")
+    assert page.url == job_url  # htmx swapped the step in place
     # The Done button does nothing until every item is ticked (the station would refuse too).
     page.click("[data-testid=done]")
     expect(step).to_have_attribute("data-step-id", "selectors-off")
@@ -45,12 +51,12 @@ def test_walk_steps_reload_and_resume_on_another_tablet(browser, playwright, liv
     expect(page.get_by_test_id("progress")).to_have_text("3 of 15 steps done")
 
     ARTIFACTS.mkdir(exist_ok=True)
-    page.screenshot(path=str(ARTIFACTS / "step-screen-tablet.png"), full_page=True)
+    shot = f"step-screen-{device.lower().replace(' ', '-')}.png"
+    page.screenshot(path=str(ARTIFACTS / shot), full_page=True)
 
     page.reload()
     expect(page.get_by_test_id("step")).to_have_attribute("data-step-id", "breakers")
     expect(page.get_by_test_id("progress-identify")).to_have_attribute("data-status", "done")
-    job_url = page.url
     context.close()
 
     # Another tablet, another mechanic: the job is where it was left.
