@@ -1,4 +1,4 @@
-"""An installed wheel finds its static files, library and scenarios; the README documents the CLI."""
+"""An installed wheel finds its shipped folders; the README documents the CLI."""
 
 from __future__ import annotations
 

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import re
 import uuid
+from pathlib import Path
 
 from webapp.store import jobs as job_store
 
@@ -150,3 +151,22 @@ def test_admin_enrols_a_person_and_bad_input_keeps_what_was_typed(login, db):
     good = admin.post_form("/people", {"full_name": "Iris Demo", "username": "iris",
                                        "roles": ["mechanic"], "password": "long-enough"})
     assert good.status_code == 200 and db["people"].count == 6
+
+
+def test_progress_list_escapes_procedure_text(app):
+    from webapp.domain.execution import Configuration, job_state
+    from webapp.domain.procedures import parse_procedure
+    from webapp.web.progress import progress_list
+
+    text = (Path(__file__).resolve().parents[2] / "tasks" / "exciter-removal.yaml").read_text(
+        encoding="utf-8").replace("Put the ignition and start selectors to OFF.",
+                                  "Selectors <b>OFF</b> & tagged")
+    procedure = parse_procedure(text)
+    configuration = Configuration("A", ("dc",), ("air-gap",))
+    state = job_state(procedure, [{"kind": "job_opened", "step_id": None,
+                                   "data": configuration.as_data()}])
+    with app.app_context():
+        html = str(progress_list("test-revision", state, {}, lambda iso: iso))
+    assert "Selectors &lt;b&gt;OFF&lt;/b&gt; &amp; tagged" in html
+    assert "<b>" not in html
+    assert html.count("<li ") == len(state.steps)

@@ -56,9 +56,10 @@ def init_database(app: Flask) -> None:
         moment = datetime.fromisoformat(iso).astimezone(UTC)
         return moment.strftime("%Y-%m-%d %H:%M UTC")
 
-    from .summaries import step_summaries
+    from .progress import progress_list
 
-    app.jinja_env.globals["step_summaries"] = step_summaries
+    app.jinja_env.globals["progress_list"] = progress_list
+    app.jinja_env.globals["when"] = when
 
     @app.context_processor
     def inject_person() -> dict[str, Any]:
