@@ -26,27 +26,29 @@ def progress_list(revision_hash: str, state: JobState, names: Mapping[int, str],
     """The <ol> of a job's steps with their status and, for done ones, who and when."""
     summaries = _summaries(revision_hash, tuple(
         (s.id, s.number, s.step.kind, s.step.text) for s in state.steps))
+    shown_names = {person: escape(name) for person, name in names.items()}
     rows = []
     for s in state.steps:
         mark, said = _MARKS[s.status]
+        step_id, summary = summaries[s.id]
         meta = ""
         if s.event is not None:
-            who = escape(names.get(s.event["person_id"], "?"))
+            who = shown_names.get(s.event["person_id"], "?")
             at = escape(when(s.event["received_at"]))
             meta = f'<span class="meta">{who} · {at}</span>'
         rows.append(
-            f'<li class="s-{s.status}" data-testid="progress-{escape(s.id)}" '
+            f'<li class="s-{s.status}" data-testid="progress-{step_id}" '
             f'data-status="{s.status}"><span class="mark" aria-hidden="true">{mark}</span>'
-            f'<span class="visually-hidden">{said}</span><span>{summaries[s.id]}</span>'
-            f'{meta}</li>')
+            f'<span class="visually-hidden">{said}</span><span>{summary}</span>{meta}</li>')
     return Markup('<ol class="steps">' + "\n".join(rows) + "</ol>")
 
 
 @lru_cache(maxsize=128)
 def _summaries(_revision_hash: str, steps: tuple[tuple[str, int, str, str], ...]
-               ) -> dict[str, Markup]:
+               ) -> dict[str, tuple[Markup, Markup]]:
+    """{step id: (escaped id, "<n>. <kind label> <text…>")}, made once per revision."""
     env = current_app.jinja_env
     labels = env.get_template("_labels.html").module
-    return {step_id: Markup(f"{number}. ") + labels.kind_label(kind) + Markup(" ")
-            + escape(do_truncate(env, text, 70))
+    return {step_id: (escape(step_id), Markup(f"{number}. ") + labels.kind_label(kind)
+                      + Markup(" ") + escape(do_truncate(env, text, 70)))
             for step_id, number, kind, text in steps}
