@@ -44,9 +44,13 @@ def test_each_role_reaches_only_its_pages(app, login, job_one, role):
     checked = 0
     for rule, allowed in get_routes(app):
         url = rule.build(SAMPLE_ARGS, append_unknown=False)[1]
-        status = client.get(url).status_code
+        answer = client.get(url)
+        status = answer.status_code
         if role in allowed:
             assert status == (302 if url == "/" else 200), (url, status)
+            if status == 200 and answer.mimetype == "text/html":
+                # Every page's footer defers to the approved data and the regulations.
+                assert 'data-testid="safety-notice"' in answer.get_data(as_text=True), url
         else:
             assert status == 403, (url, status)
         checked += 1
