@@ -14,11 +14,20 @@ from datetime import datetime
 from typing import Any, Literal
 
 from . import store
+from .domain import gates
 from .domain.chain import GENESIS, event_digest
 from .domain.errors import RuleRefusal
-from .domain.execution import JobState, apply_event, check_event, configuration_for, job_state
+from .domain.execution import (
+    Circumstances,
+    JobState,
+    apply_event,
+    check_event,
+    configuration_for,
+    job_state,
+)
+from .domain.gates import Tag
 from .library import procedure_of_revision
-from .store import fleet, jobs, procedures
+from .store import fleet, jobs, people, procedures
 from .store.people import Person
 
 
@@ -141,7 +150,13 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
             return Outcome("refused", refusal=refusal)
         job = load_job(db, job_id)
         try:
-            check_event(job.state, kind, step_id, data)
+            tags = engine_tags(db, job.row["engine_id"])
+            if kind == "tag_removed" and isinstance(data.get("absent_owner"), dict):
+                _check_authorising_supervisor(db, data["absent_owner"])
+            at = Circumstances(now=now, device_now=_device_time(device_time),
+                               person_id=person.id, job_id=job_id, tags=tags,
+                               names=people.names_by_id(db, {t.owner_id for t in tags.values()}))
+            check_event(job.state, kind, step_id, data, at)
         except RuleRefusal as refusal:
             jobs.record_refusal(db, event_id=event_id, job_id=job_id, person_id=person.id,
                                 kind=kind, step_id=step_id, data=data, rule=refusal.rule,
@@ -155,6 +170,23 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
             jobs.set_job_status(db, job_id, after.status)
     _STATES.put(record["hash"], after)  # only once committed
     return Outcome("stored", event=record)
+
+
+def engine_tags(db: store.Database, engine_id: int) -> dict[str, Tag]:
+    """The lockout tags hanging on an engine's breakers now, from all its jobs."""
+    return gates.engine_tags(jobs.engine_events(db, engine_id, gates.TAG_EVENT_KINDS))
+
+
+def _device_time(text: str | None) -> datetime | None:
+    return datetime.fromisoformat(text) if text else None
+
+
+def _check_authorising_supervisor(db: store.Database, absent: dict[str, Any]) -> None:
+    supervisor = people.person_by_username(db, str(absent.get("supervisor", "")).strip())
+    if supervisor is None or not supervisor.active or not supervisor.has("supervisor"):
+        raise RuleRefusal("absent_owner_authority", "The absent-owner removal must be "
+                          "authorised by a supervisor enrolled on this station (give their "
+                          "username).")
 
 
 @dataclass(frozen=True)

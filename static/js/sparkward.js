@@ -17,7 +17,44 @@
     }
   });
 
+  // Countdowns and count-ups for comfort only: the station decides when a wait is over.
+  function mmss(seconds) {
+    var whole = Math.max(0, Math.ceil(seconds));
+    var s = whole % 60;
+    return Math.floor(whole / 60) + ":" + (s < 10 ? "0" : "") + s;
+  }
+  var pageStart = Date.now();
+  function elapsed() { return (Date.now() - pageStart) / 1000; }
+  function tick() {
+    var gone = elapsed();
+    document.querySelectorAll("[data-count-down]").forEach(function (el) {
+      var left = Number(el.dataset.countDown) - gone;
+      el.textContent = mmss(left);
+      if (left <= 0 && el.dataset.testid === "countdown") {
+        var label = document.querySelector("[data-testid=countdown-label]");
+        if (label) label.textContent = "— the wait is over";
+      }
+    });
+    document.querySelectorAll("[data-count-up]").forEach(function (el) {
+      el.textContent = mmss(Number(el.dataset.countUp) + gone);
+    });
+    document.querySelectorAll("[data-enable-after]").forEach(function (button) {
+      if (Number(button.dataset.enableAfter) - gone <= 0) button.disabled = false;
+    });
+    document.querySelectorAll("[data-testid=estimate]").forEach(function (el) {
+      var v0 = Number(el.dataset.v0), r = Number(el.dataset.r), c = Number(el.dataset.c);
+      var t = Number(el.dataset.elapsed) + gone;
+      var v = v0 * Math.exp(-t / (r * c));
+      el.querySelector("[data-estimate-voltage]").textContent = Math.round(v);
+      el.querySelector("[data-estimate-energy]").textContent = (0.5 * c * v * v).toFixed(2);
+    });
+  }
+  // Each swapped fragment restarts the count from the figures the station just sent.
+  document.addEventListener("htmx:afterSwap", function () { pageStart = Date.now(); tick(); });
+  setInterval(tick, 1000);
+
   document.addEventListener("DOMContentLoaded", function () {
+    tick();
     if (!window.htmx) return;
     // A refusal (409) or a bad entry (422) comes back as a fragment that says why: show it.
     window.htmx.config.responseHandling = [

@@ -2,12 +2,19 @@
 
 from __future__ import annotations
 
+from datetime import UTC, datetime
 from pathlib import Path
 
 import pytest
 
 from webapp.domain.errors import RuleRefusal
-from webapp.domain.execution import apply_event, check_event, configuration_for, job_state
+from webapp.domain.execution import (
+    Circumstances,
+    apply_event,
+    check_event,
+    configuration_for,
+    job_state,
+)
 from webapp.domain.procedures import parse_procedure
 
 TASKS = Path(__file__).resolve().parents[2] / "tasks"
@@ -21,12 +28,17 @@ DC_ENGINE = [
 ]
 
 
+AT = Circumstances(now=datetime(2026, 12, 1, 8, 0, tzinfo=UTC), device_now=None, person_id=1,
+                   job_id=1)
+
+
 def _opened(configuration) -> dict:
     return {"kind": "job_opened", "step_id": None, "data": configuration.as_data()}
 
 
 def _done(step_id: str, kind: str = "step_done") -> dict:
-    return {"kind": kind, "step_id": step_id, "data": {}}
+    return {"kind": kind, "step_id": step_id, "data": {},
+            "received_at": "2026-12-01T08:00:00+00:00", "device_time": None}
 
 
 def _state(*events):
@@ -49,7 +61,7 @@ def test_done_steps_move_the_next_step_on():
 
 def test_refused_out_of_order_names_the_step_that_comes_first():
     with pytest.raises(RuleRefusal) as refused:
-        check_event(_state(), "step_done", "disconnect-input", {})
+        check_event(_state(), "step_done", "disconnect-input", {}, AT)
     assert refused.value.rule == "out_of_order"
     assert refused.value.details["next_step"] == "identify"
     assert "Step 1" in refused.value.reason
@@ -58,23 +70,23 @@ def test_refused_out_of_order_names_the_step_that_comes_first():
 def test_warning_needs_acknowledgement_not_done():
     state = _state(_done("identify"), _done("selectors-off"))
     with pytest.raises(RuleRefusal, match="acknowledged") as refused:
-        check_event(state, "step_done", "lethal-energy-breakers", {})
+        check_event(state, "step_done", "lethal-energy-breakers", {}, AT)
     assert refused.value.rule == "wrong_event_for_step"
-    check_event(state, "acknowledged", "lethal-energy-breakers", {})  # allowed
+    check_event(state, "acknowledged", "lethal-energy-breakers", {}, AT)  # allowed
 
 
 def test_items_must_all_be_confirmed():
     state = _state(_done("identify"))
     for ticked in (None, [], [0, 1], [0, 1, 1], [0, 1, 5], "all"):
         with pytest.raises(RuleRefusal) as refused:
-            check_event(state, "step_done", "selectors-off", {"items": ticked})
+            check_event(state, "step_done", "selectors-off", {"items": ticked}, AT)
         assert refused.value.rule == "items_unconfirmed"
-    check_event(state, "step_done", "selectors-off", {"items": [2, 0, 1]})
+    check_event(state, "step_done", "selectors-off", {"items": [2, 0, 1]}, AT)
 
 
 def test_steps_that_do_not_apply_are_not_part_of_the_job():
     with pytest.raises(RuleRefusal) as refused:
-        check_event(_state(), "step_done", "ac-input-open", {})  # AC-only step, DC engine
+        check_event(_state(), "step_done", "ac-input-open", {}, AT)  # AC-only step, DC engine
     assert refused.value.rule == "unknown_step"
 
 
@@ -116,3 +128,19 @@ def test_applying_events_one_by_one_equals_rebuilding_from_the_log():
             events.append(event)
             state = apply_event(state, event)
             assert state == job_state(REMOVAL, events)
+
+
+def test_a_step_kind_without_its_rules_waits_rather_than_pretending():
+    # Readings arrive with their own rules; until then the job waits at such a step.
+    text = (TASKS / "exciter-removal.yaml").read_text(encoding="utf-8")
+    procedure = parse_procedure(text)
+    configuration = configuration_for(procedure, "QT-610", DC_ENGINE, "A")
+    ids = [s.id for s in procedure.steps_for(("dc",), ("surface-discharge",))]
+    done = [_done(i, "acknowledged" if i in ("lethal-energy-breakers", "ground-lead",
+                                              "cap-connectors", "sealed-unit") else "step_done")
+            for i in ids[:ids.index("removed-serial")]]
+    state = job_state(procedure, [_opened(configuration), *done])
+    assert state.next_step.id == "removed-serial"
+    with pytest.raises(RuleRefusal) as refused:
+        check_event(state, "step_done", "removed-serial", {}, AT)
+    assert refused.value.rule == "step_kind_not_available"

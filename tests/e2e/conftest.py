@@ -3,16 +3,25 @@
 from __future__ import annotations
 
 import threading
+from datetime import UTC, datetime
 
 import pytest
 from werkzeug.serving import make_server
 
 from webapp import create_app
+from webapp.clock import ManualClock
 
 
 @pytest.fixture
-def live_server(db_path):
-    app = create_app({"DB_PATH": str(db_path), "SECRET_KEY": "e2e-secret"})
+def station_clock():
+    """The station's clock for browser tests: starts at the real time, moves when told."""
+    return ManualClock(datetime.now(UTC).replace(microsecond=0))
+
+
+@pytest.fixture
+def live_server(db_path, station_clock):
+    app = create_app({"DB_PATH": str(db_path), "SECRET_KEY": "e2e-secret",
+                      "CLOCK": station_clock})
     server = make_server("127.0.0.1", 0, app, threaded=True)
     thread = threading.Thread(target=server.serve_forever, daemon=True)
     thread.start()

@@ -130,7 +130,7 @@ def test_step_already_done_is_refused(mechanic):
     assert answer.status_code == 409 and answer.get_json()["rule"] == "already_done"
 
 
-def test_a_gate_step_waits_rather_than_pretending(mechanic):
+def test_lockout_is_not_done_until_every_breaker_is_tagged(mechanic):
     job = open_removal(mechanic)
     url = f"/api/jobs/{job['id']}/events"
     for body in (event("identify"), event("selectors-off", items=[0, 1, 2]),
@@ -138,7 +138,8 @@ def test_a_gate_step_waits_rather_than_pretending(mechanic):
         assert mechanic.post_json(url, body).status_code == 201
     answer = mechanic.post_json(url, event("breakers"))
     assert answer.status_code == 409
-    assert answer.get_json()["rule"] == "step_kind_not_available"
+    assert answer.get_json()["rule"] == "lockout_incomplete"
+    assert answer.get_json()["breakers"] == ["IGN-A", "IGN-B"]
 
 
 @pytest.mark.parametrize("body, field", [

@@ -121,7 +121,7 @@ def test_warning_reminder_shows_on_the_step_it_guards(mechanic):
         assert answer.status_code == 303
     html = mechanic.get(f"/jobs/{job_id}").get_data(as_text=True)
     assert 'data-step-id="breakers"' in html and 'data-testid="reminders"' in html
-    assert 'data-testid="not-available"' in html  # the gate waits for its own rules
+    assert 'data-testid="tag-IGN-A"' in html  # the lockout asks for each breaker's tag
 
 
 def test_supervisor_sees_the_event_log_with_hashes_and_refusals(mechanic, login, db):

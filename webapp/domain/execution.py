@@ -2,32 +2,54 @@
 
 The station never stores "step 4 is done" anywhere but in events; everything a
 screen, the API or a record shows about a job is derived here, the same way
-every time, from the pinned procedure revision and the events in order.
+every time, from the pinned procedure revision and the events in order (a fold:
+`apply_event` takes one more event, `job_state` takes the whole log).
 """
 
 from __future__ import annotations
 
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field, replace
+from datetime import datetime
+from functools import cached_property
 from typing import Any, Literal
 
+from . import gates
 from .errors import RuleRefusal
-from .procedures import Advisory, Check, Procedure, Step, advisories_for
+from .gates import ChannelClock, PowerOff, Tag
+from .procedures import (
+    Advisory,
+    Check,
+    DischargeWait,
+    IgnitionRun,
+    Lockout,
+    Procedure,
+    Step,
+    advisories_for,
+)
 
 # Events a client may send, and the one the station writes itself when a job opens.
-CLIENT_EVENT_KINDS = ("acknowledged", "step_done")
+CLIENT_EVENT_KINDS = ("acknowledged", "step_done", "breaker_tagged", "tag_taken_over",
+                      "tag_removed", "input_reconnected", "energised", "de_energised")
 STATION_EVENT_KINDS = ("job_opened",)
 EVENT_KINDS = STATION_EVENT_KINDS + CLIENT_EVENT_KINDS
 
 # The event that completes each step kind this station can record today. The
-# other kinds (gates, readings, signatures) arrive with their own rules; until
-# then a job waits at such a step rather than pretending it was done.
+# other kinds (readings, signatures) arrive with their own rules; until then a
+# job waits at such a step rather than pretending it was done.
 COMPLETING_EVENT = {
     "warning": "acknowledged",
     "caution": "acknowledged",
     "note": "step_done",
     "check": "step_done",
+    "lockout": "step_done",
+    "discharge_wait": "step_done",
+    "ignition_run": "energised",
 }
+# Events that happen within the current step without completing it.
+IN_STEP_EVENTS = {"breaker_tagged": "lockout", "tag_removed": "lockout"}
+# Events allowed whatever step the job is at. De-energising is never held back.
+ANYTIME_EVENTS = ("tag_taken_over", "input_reconnected", "de_energised")
 
 StepStatus = Literal["done", "next", "waiting"]
 
@@ -68,11 +90,35 @@ class StepProgress:
 
 @dataclass(frozen=True)
 class JobState:
+    """The facts a job's events establish; step statuses are worked out from them."""
+
     procedure: Procedure
     configuration: Configuration
-    steps: tuple[StepProgress, ...]
-    status: Literal["open", "complete"]
-    readings: tuple[Mapping[str, Any], ...] = field(default=())
+    applicable: tuple[Step, ...]
+    completed: Mapping[str, Mapping[str, Any]] = field(default_factory=dict)
+    power_off: PowerOff | None = None
+    clocks: Mapping[str, ChannelClock] = field(default_factory=dict)
+    readings: tuple[Mapping[str, Any], ...] = ()
+
+    @cached_property
+    def steps(self) -> tuple[StepProgress, ...]:
+        progress: list[StepProgress] = []
+        next_found = False
+        for number, step in enumerate(self.applicable, start=1):
+            event = self.completed.get(step.id)
+            if event is not None:
+                status: StepStatus = "done"
+            elif not next_found:
+                status, next_found = "next", True
+            else:
+                status = "waiting"
+            progress.append(StepProgress(number, step, status, event,
+                                         step.kind in COMPLETING_EVENT))
+        return tuple(progress)
+
+    @property
+    def status(self) -> Literal["open", "complete"]:
+        return "complete" if len(self.completed) == len(self.applicable) else "open"
 
     @property
     def next_step(self) -> StepProgress | None:
@@ -80,13 +126,18 @@ class JobState:
 
     @property
     def done_count(self) -> int:
-        return sum(1 for s in self.steps if s.status == "done")
+        return len(self.completed)
 
     def step(self, step_id: str) -> StepProgress | None:
         return next((s for s in self.steps if s.id == step_id), None)
 
     def advisories_for(self, step_id: str) -> list[Advisory]:
-        return advisories_for([s.step for s in self.steps], step_id)
+        return advisories_for(list(self.applicable), step_id)
+
+    def open_gate_steps(self) -> list[str]:
+        """The pre-energising confirmations not yet done ("step n (id)")."""
+        return [f"step {s.number} ({s.id})" for s in self.steps
+                if isinstance(s.step, Check) and s.step.before_energising and s.status != "done"]
 
 
 def configuration_for(procedure: Procedure, engine_model: str,
@@ -118,67 +169,119 @@ def configuration_for(procedure: Procedure, engine_model: str,
                          components=tuple(at_work))
 
 
+def _times(event: Mapping[str, Any]) -> PowerOff:
+    device = event.get("device_time")
+    return PowerOff(datetime.fromisoformat(event["received_at"]),
+                    datetime.fromisoformat(device) if device else None)
+
+
+def _channels(step: IgnitionRun) -> tuple[str, ...]:
+    return ("A", "B") if step.channel == "both" else (step.channel,)
+
+
+def opened_state(procedure: Procedure, opened: Mapping[str, Any]) -> JobState:
+    if opened["kind"] != "job_opened":
+        raise ValueError("a job's event log starts with job_opened")
+    configuration = Configuration.from_data(opened["data"])
+    steps = procedure.steps_for(configuration.exciter_types, configuration.plug_types)
+    return JobState(procedure, configuration, tuple(steps))
+
+
 def job_state(procedure: Procedure, events: Sequence[Mapping[str, Any]]) -> JobState:
     """Derive a job's state from its events (the first is always `job_opened`)."""
-    if not events or events[0]["kind"] != "job_opened":
+    if not events:
         raise ValueError("a job's event log starts with job_opened")
-    configuration = Configuration.from_data(events[0]["data"])
-    steps = procedure.steps_for(configuration.exciter_types, configuration.plug_types)
-    completed = {e["step_id"]: e for e in events[1:]
-                 if e["kind"] in CLIENT_EVENT_KINDS and e["step_id"] is not None}
-    return _with_completed(procedure, configuration, steps, completed)
+    state = opened_state(procedure, events[0])
+    for event in events[1:]:
+        state = apply_event(state, event)
+    return state
 
 
 def apply_event(state: JobState, event: Mapping[str, Any]) -> JobState:
-    """The state after one more (allowed) event: job_state(events + [event]), without the log."""
-    if event["kind"] not in CLIENT_EVENT_KINDS or event["step_id"] is None:
+    """The state after one more stored event (the same as rebuilding from the whole log)."""
+    kind, step_id = event["kind"], event["step_id"]
+    step = next((s for s in state.applicable if s.id == step_id), None)
+    if kind == "input_reconnected":
+        # Power is back: the disconnection and every discharge wait must be done again.
+        completed = {k: v for k, v in state.completed.items()
+                     if not _restarts_with_power(_step_of(state, k))}
+        return replace(state, completed=completed, power_off=None)
+    if kind == "de_energised":
+        return replace(state, clocks=_switched_off(state.clocks, event,
+                                                   event["data"].get("channel")))
+    if step is None or kind != COMPLETING_EVENT.get(step.kind):
         return state
-    steps = list(state.steps)
-    position = next((i for i, s in enumerate(steps) if s.id == event["step_id"]), None)
-    if position is None:
-        return state
-    steps[position] = replace(steps[position], status="done", event=event)
-    # The next step is the first one not done; every other step keeps its status.
-    for i, s in enumerate(steps):
-        if s.status == "next" and i != position:
-            break
-        if s.status == "waiting":
-            steps[i] = replace(s, status="next")
-            break
-    status: Literal["open", "complete"] = (
-        "open" if any(s.status != "done" for s in steps) else "complete")
-    return replace(state, steps=tuple(steps), status=status)
+    completed = {**state.completed, step.id: event}
+    power_off, clocks = state.power_off, state.clocks
+    if isinstance(step, IgnitionRun):
+        clocks = dict(clocks)
+        periods = gates.duty_periods(step.duty_cycle)
+        for channel in _channels(step):
+            clock = clocks.get(channel, ChannelClock())
+            if not clock.is_on:
+                clocks[channel] = clock.energised(_times(event), periods)
+    elif isinstance(step, Check):
+        if step.power == "removed":
+            power_off = _times(event)
+        elif step.power == "restored":
+            power_off = None
+        if step.ignition_off:
+            clocks = _switched_off(clocks, event, None)
+    return replace(state, completed=completed, power_off=power_off, clocks=clocks)
 
 
-def _with_completed(procedure: Procedure, configuration: Configuration, steps: Sequence[Step],
-                    completed: Mapping[str, Mapping[str, Any]]) -> JobState:
-    progress: list[StepProgress] = []
-    next_found = False
-    for number, step in enumerate(steps, start=1):
-        recordable = step.kind in COMPLETING_EVENT
-        if step.id in completed:
-            status: StepStatus = "done"
-        elif not next_found:
-            status, next_found = "next", True
-        else:
-            status = "waiting"
-        progress.append(StepProgress(number, step, status, completed.get(step.id), recordable))
-    job_status: Literal["open", "complete"] = "open" if next_found else "complete"
-    return JobState(procedure, configuration, tuple(progress), job_status)
+def _switched_off(clocks: Mapping[str, ChannelClock], event: Mapping[str, Any],
+                  channel: str | None) -> dict[str, ChannelClock]:
+    return {c: (clock.de_energised(_times(event))
+                if clock.is_on and channel in (None, c) else clock)
+            for c, clock in clocks.items()}
 
 
-def check_event(state: JobState, kind: str, step_id: str | None,
-                data: Mapping[str, Any]) -> None:
+def _step_of(state: JobState, step_id: str) -> Step | None:
+    return next((s for s in state.applicable if s.id == step_id), None)
+
+
+def _restarts_with_power(step: Step | None) -> bool:
+    return isinstance(step, DischargeWait) or (isinstance(step, Check)
+                                               and step.power == "removed")
+
+
+@dataclass(frozen=True)
+class Circumstances:
+    """What a rule needs beyond the job's own events: clocks, the person, the engine's tags."""
+
+    now: datetime
+    device_now: datetime | None
+    person_id: int
+    job_id: int
+    tags: Mapping[str, Tag] = field(default_factory=dict)
+    names: Mapping[int, str] = field(default_factory=dict)
+
+
+def check_event(state: JobState, kind: str, step_id: str | None, data: Mapping[str, Any],
+                at: Circumstances) -> None:
     """Refuse an event the rules do not allow, with a reason a mechanic understands."""
     if kind not in CLIENT_EVENT_KINDS:
         raise RuleRefusal("unknown_event_kind", f"'{kind}' is not something this station "
                           "records; known: " + ", ".join(CLIENT_EVENT_KINDS) + ".")
     if state.status != "open":
         raise RuleRefusal("job_not_open", "This job is no longer open for work.")
+    if kind == "tag_taken_over":
+        gates.check_tag_taken_over(data, at.tags, at.person_id)
+        return
+    if kind == "input_reconnected":
+        if state.power_off is None:
+            raise RuleRefusal("power_not_removed", "The input is not recorded as disconnected.")
+        return
+    if kind == "de_energised":
+        gates.check_de_energise(state.clocks, data.get("channel"))
+        return
     target = state.step(step_id) if step_id else None
     if target is None:
         raise RuleRefusal("unknown_step", f"Step '{step_id}' is not part of this job's "
                           "procedure for the installed configuration.")
+    if kind == "energised":
+        gates.check_pre_energising(state.open_gate_steps(), at.tags, at.names)
     if target.status == "done":
         raise RuleRefusal("already_done", f"Step {target.number} is already done.")
     upcoming = state.next_step
@@ -186,21 +289,56 @@ def check_event(state: JobState, kind: str, step_id: str | None,
         raise RuleRefusal("out_of_order", f"Step {upcoming.number} ('{_short(upcoming.step)}') "
                           f"comes first: steps are done in the procedure's order.",
                           next_step=upcoming.id)
-    wanted = COMPLETING_EVENT.get(target.step.kind)
+    step = target.step
+    if kind in IN_STEP_EVENTS:
+        if step.kind != IN_STEP_EVENTS[kind]:
+            raise RuleRefusal("wrong_event_for_step", f"'{kind}' does not belong to a "
+                              f"{step.kind} step.")
+        _check_in_step(state, step, kind, data, at)
+        return
+    wanted = COMPLETING_EVENT.get(step.kind)
     if wanted is None:
         raise RuleRefusal("step_kind_not_available", f"This station cannot record "
-                          f"'{target.step.kind}' steps yet. The job waits at step "
+                          f"'{step.kind}' steps yet. The job waits at step "
                           f"{target.number}; do not go on without the approved procedure.")
     if kind != wanted:
         verb = "acknowledged" if wanted == "acknowledged" else "marked done"
-        raise RuleRefusal("wrong_event_for_step", f"A {target.step.kind} step is {verb}, "
+        raise RuleRefusal("wrong_event_for_step", f"A {step.kind} step is {verb}, "
                           f"not '{kind}'.")
+    _check_completion(state, target, data, at)
+
+
+def _check_in_step(state: JobState, step: Step, kind: str, data: Mapping[str, Any],
+                   at: Circumstances) -> None:
+    if isinstance(step, Lockout):
+        if kind == "breaker_tagged":
+            gates.check_breaker_tagged(step, data, at.tags, at.job_id)
+        else:
+            gates.check_tag_removed(step, data, at.tags, at.person_id)
+
+
+def _check_completion(state: JobState, target: StepProgress, data: Mapping[str, Any],
+                      at: Circumstances) -> None:
     step = target.step
     if isinstance(step, Check) and step.items:
         ticked = data.get("items")
         if not isinstance(ticked, list) or sorted(set(ticked)) != list(range(len(step.items))):
             raise RuleRefusal("items_unconfirmed", f"Every item of step {target.number} must be "
                               "confirmed before it is done.", items=len(step.items))
+    elif isinstance(step, Lockout):
+        missing = gates.lockout_complete(step, at.tags, at.job_id)
+        if missing and step.action == "apply":
+            raise RuleRefusal("lockout_incomplete", "Tag every breaker of this step first: "
+                              + ", ".join(missing) + " not tagged for this job.",
+                              breakers=missing)
+        if missing:
+            raise RuleRefusal("tags_still_on", "Tags still hang on " + ", ".join(missing)
+                              + "; each comes off by its owner first.", breakers=missing)
+    elif isinstance(step, DischargeWait):
+        gates.check_discharge_served(gates.discharge_requirement(step), state.power_off,
+                                     at.now, at.device_now)
+    elif isinstance(step, IgnitionRun):
+        gates.check_energise(state.clocks, _channels(step), at.now, at.device_now)
 
 
 def _short(step: Step) -> str:

@@ -172,9 +172,15 @@ class Advisory(_Step):
 
 
 class Check(_Step):
+    """An action to do and tick. `power` marks the step that disconnects (or reconnects) the
+    exciter's input; `before_energising` makes it part of the gate before any ignition run;
+    `ignition_off` is the selector-off step that ends an ignition run."""
+
     kind: Literal["check"]
     items: list[Text] | None = None
     power: Literal["removed", "restored"] | None = None
+    before_energising: bool = False
+    ignition_off: bool = False  # ticking it records every energised exciter switched off
 
 
 class Breaker(_Strict):
@@ -183,8 +189,19 @@ class Breaker(_Strict):
 
 
 class Lockout(_Step):
+    """Hang a tag on each listed breaker (apply), or take them off (release). A release step
+    may name the shop's documented absent-owner procedure; without it only owners untag."""
+
     kind: Literal["lockout"]
     breakers: list[Breaker] = Field(min_length=1)
+    action: Literal["apply", "release"] = "apply"
+    absent_owner: Text | None = None
+
+    @model_validator(mode="after")
+    def _absent_owner_only_on_release(self) -> Lockout:
+        if self.absent_owner is not None and self.action != "release":
+            raise _field_error("absent_owner", "an absent-owner path belongs on a release step")
+        return self
 
 
 class Capacitor(_Strict):
@@ -361,6 +378,7 @@ def parse_procedure(text: str, file: str = "<procedure>") -> Procedure:
         problems.extend(_structural_problems(err, raw, file))
         raise ProcedureInvalid(problems) from None
     problems.extend(_order_problems(procedure, file))
+    problems.extend(_gate_problems(procedure, file))
     if problems:
         raise ProcedureInvalid(problems)
     return procedure
@@ -476,6 +494,23 @@ def _order_problems(procedure: Procedure, file: str) -> Iterator[ProcedureProble
                                        f"{earlier.kind.upper()} that guards the same step",
                                        later_number, later.id, "kind")
         run = []
+
+
+def _gate_problems(procedure: Procedure, file: str) -> Iterator[ProcedureProblem]:
+    """A wait needs the step that starts its clock; an ignition run needs its gate."""
+    power_removed = gate = False
+    for number, step in enumerate(procedure.steps, start=1):
+        if isinstance(step, Check):
+            power_removed = power_removed or step.power == "removed"
+            gate = gate or step.before_energising
+        elif isinstance(step, DischargeWait) and not power_removed:
+            yield ProcedureProblem(file, "a discharge wait counts from the disconnection of the "
+                                   "exciter's input: put a check with 'power: removed' before "
+                                   "it", number, step.id, "kind")
+        elif isinstance(step, IgnitionRun) and not gate:
+            yield ProcedureProblem(file, "an ignition run needs the confirmations before "
+                                   "energising: put a check with 'before_energising: true' "
+                                   "before it", number, step.id, "kind")
 
 
 def _when_text(when: StepCondition) -> str:

@@ -58,6 +58,15 @@ def event(db: Database, event_id: str) -> dict | None:
     return _event(rows[0]) if rows else None
 
 
+def engine_events(db: Database, engine_id: int, kinds: tuple[str, ...]) -> list[dict]:
+    """Events of the given kinds from every job on an engine, in the order they were stored."""
+    marks = ",".join("?" * len(kinds))
+    rows = db.query(
+        f"select e.* from events e join jobs j on j.id = e.job_id where j.engine_id = ? "
+        f"and e.kind in ({marks}) order by e.rowid", [engine_id, *kinds])
+    return [_event(r) for r in rows]
+
+
 def chain_head(db: Database, job_id: int) -> dict | None:
     """The job's latest event's seq and hash (None when it has no events)."""
     rows = list(db.query("select seq, hash from events where job_id = ? "

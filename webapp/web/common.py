@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import threading
+import uuid
 from collections.abc import Callable
 from datetime import UTC, datetime
 from functools import wraps
@@ -56,7 +57,11 @@ def init_database(app: Flask) -> None:
         moment = datetime.fromisoformat(iso).astimezone(UTC)
         return moment.strftime("%Y-%m-%d %H:%M UTC")
 
+    from ..domain.gates import mmss
     from .progress import progress_list
+
+    app.jinja_env.filters["mmss"] = mmss
+    app.jinja_env.globals["new_event_id"] = lambda: str(uuid.uuid4())
 
     app.jinja_env.globals["progress_list"] = progress_list
     app.jinja_env.globals["when"] = when

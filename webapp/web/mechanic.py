@@ -3,15 +3,18 @@
 from __future__ import annotations
 
 import uuid
+from datetime import datetime
 from typing import Any
 
 from flask import Blueprint, abort, redirect, render_template, request, url_for
 
 from .. import recording
+from ..domain.gates import ON_LIMIT_WARNING_S
 from ..store import fleet as fleet_store
 from ..store import jobs as job_store
 from ..store import people
 from .common import db, now, page_or_fragment, person, requires
+from .gate_views import gate_context
 
 bp = Blueprint("mechanic", __name__)
 
@@ -57,7 +60,8 @@ def _job_page(job_id: int, error: str | None = None, status: int = 200) -> Any:
     names = people.names_by_id(db(), {s.event["person_id"] for s in job.state.steps if s.event})
     return page_or_fragment("mechanic/job.html", "mechanic/_job.html", status=status,
                             job=job.row, state=job.state, current=job.state.next_step,
-                            names=names, error=error, event_id=str(uuid.uuid4()))
+                            names=names, error=error, gate=gate_context(db(), job, now()),
+                            warning_s=ON_LIMIT_WARNING_S)
 
 
 @bp.get("/jobs/<int:job_id>")
@@ -66,20 +70,53 @@ def job(job_id: int) -> Any:
     return _job_page(job_id)
 
 
+# The form fields each event kind may carry into its data (everything else is ignored).
+def _event_data(kind: str, form: Any) -> dict[str, Any]:
+    if kind == "step_done" and "items_offered" in form:
+        return {"items": [int(i) for i in form.getlist("items") if i.isdigit()]}
+    if kind == "breaker_tagged":
+        return {"breaker": form.get("breaker", ""), "tag": form.get("tag", "")}
+    if kind == "tag_taken_over":
+        return {"tag": form.get("tag", ""),
+                "breaker_confirmed_open": form.get("breaker_confirmed_open") == "1"}
+    if kind == "tag_removed":
+        data: dict[str, Any] = {"tag": form.get("tag", "")}
+        if "absent_reason" in form or "absent_supervisor" in form:
+            data["absent_owner"] = {"reason": form.get("absent_reason", ""),
+                                    "supervisor": form.get("absent_supervisor", "")}
+        return data
+    if kind == "de_energised" and form.get("channel"):
+        return {"channel": form["channel"]}
+    return {}
+
+
+def _device_time(text: str | None) -> str | None:
+    if not text:
+        return None
+    try:
+        moment = datetime.fromisoformat(text.replace("Z", "+00:00"))
+    except ValueError:
+        abort(422, "The device's clock sent a time that is not a date and time.")
+    if moment.tzinfo is None:
+        abort(422, "The device's time came without its time zone.")
+    return moment.isoformat()
+
+
+@bp.post("/jobs/<int:job_id>/events")
 @bp.post("/jobs/<int:job_id>/steps/<step_id>")
 @requires("mechanic")
-def record_step(job_id: int, step_id: str) -> Any:
+def record(job_id: int, step_id: str | None = None) -> Any:
     form = request.form
-    items = [int(i) for i in form.getlist("items") if i.isdigit()]
     event_id = form.get("event_id", "")
     try:
         uuid.UUID(event_id)
     except ValueError:
         abort(400, "The form had no event id; reload the page.")
+    kind = form.get("kind", "")
     outcome = recording.record_event(
-        db(), job_id, event_id=event_id, kind=form.get("kind", ""), step_id=step_id,
-        data={"items": items} if "items_offered" in form else {},
-        device_time=form.get("device_time") or None, person=person(), now=now())
+        db(), job_id, event_id=event_id, kind=kind, step_id=step_id or form.get("step") or None,
+        data=_event_data(kind, form), device_time=_device_time(form.get("device_time")),
+        person=person(), now=now())
     if outcome.status == "refused":
         assert outcome.refusal is not None
         return _job_page(job_id, error=outcome.refusal.reason, status=409)

@@ -1,0 +1,85 @@
+"""The exciter removal's gates in real Chromium: tags, then a discharge wait that cannot be cut."""
+
+from __future__ import annotations
+
+import uuid
+from datetime import UTC, datetime, timedelta
+from pathlib import Path
+
+from playwright.sync_api import expect
+
+from .conftest import log_in
+
+ARTIFACTS = Path(__file__).resolve().parents[1] / "artifacts"
+
+
+def _walk_to_discharge_wait(page, live_server):
+    log_in(page, live_server, "mech1", "demo-mech1")
+    page.click("[data-testid=engine-QT6-10231]")
+    page.click("[data-testid=open-exciter-removal-A]")
+    step = page.get_by_test_id("step")
+    page.click("[data-testid=done]")
+    for index in range(3):
+        page.check(f"[data-testid=item-{index}]")
+    page.click("[data-testid=done]")
+    page.click("[data-testid=acknowledge]")
+    expect(step).to_have_attribute("data-step-kind", "lockout")
+    # Confirming before every breaker is tagged is refused on screen.
+    page.click("[data-testid=done]")
+    expect(page.get_by_test_id("refusal")).to_contain_text("Tag every breaker of this step")
+    for breaker, tag in (("IGN-A", "T-4471"), ("IGN-B", "T-4472")):
+        page.fill(f"[data-testid=tag-number-{breaker}]", tag)
+        page.click(f"[data-testid=tag-{breaker}]")
+        expect(page.get_by_test_id(f"tagged-{breaker}")).to_contain_text(tag)
+    expect(page.get_by_test_id("engine-tag-T-4471")).to_contain_text("Aino Varga")
+    page.click("[data-testid=done]")
+    page.click("[data-testid=continue]")            # NOTE: input first
+    page.click("[data-testid=done]")                # input disconnected: the clock starts
+    expect(step).to_have_attribute("data-step-kind", "discharge_wait")
+    return step
+
+
+def test_discharge_wait_counts_down_and_cannot_be_cut_short(browser, live_server,
+                                                             station_clock):
+    context = browser.new_context(viewport={"width": 1024, "height": 768})
+    page = context.new_page()
+    # The page's clock stands still unless the test moves it (Playwright's clock API).
+    start = datetime.now(UTC)
+    page.clock.install(time=start)
+    page.clock.pause_at(start + timedelta(seconds=1))
+    step = _walk_to_discharge_wait(page, live_server)
+
+    # The data's 2 min governs (the 4 uF / 2.2 MOhm bleed-down to 50 V is about 34 s).
+    expect(page.get_by_test_id("countdown")).to_have_text("2:00")
+    expect(page.get_by_test_id("estimate")).to_contain_text("2500 V")
+    expect(page.get_by_test_id("estimate")).to_contain_text("12.50 J")
+    done = page.get_by_test_id("done")
+    expect(done).to_be_disabled()
+    ARTIFACTS.mkdir(exist_ok=True)
+    page.screenshot(path=str(ARTIFACTS / "discharge-wait.png"), full_page=True)
+
+    page.clock.fast_forward("00:30")
+    expect(page.get_by_test_id("countdown")).to_have_text("1:30")
+    # V(30 s) = 2500 * exp(-30 / 8.8) = 2500 * 0.03307 = 82.7 V: the estimate follows it.
+    expect(page.get_by_test_id("estimate")).to_contain_text("83 V")
+    expect(done).to_be_disabled()
+
+    # A forced request (the button bypassed) is refused by the station with its rule.
+    station_clock.advance(30)
+    token = page.locator("meta[name=csrf-token]").get_attribute("content")
+    job_id = page.get_by_test_id("job").get_attribute("data-job-id")
+    forced = page.request.post(f"{live_server}/api/jobs/{job_id}/events",
+                               headers={"X-CSRFToken": token},
+                               data={"id": str(uuid.uuid4()), "kind": "step_done",
+                                     "step": "discharge"})
+    assert forced.status == 409
+    assert forced.json()["rule"] == "discharge_wait"
+    assert forced.json()["seconds_remaining"] == 90
+
+    # Both clocks move on past the wait: the control enables and the station accepts it.
+    station_clock.advance(91)
+    page.clock.fast_forward("01:31")
+    expect(done).to_be_enabled()
+    done.click()
+    expect(step).to_have_attribute("data-step-id", "ground-lead")
+    context.close()

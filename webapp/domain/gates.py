@@ -1,0 +1,350 @@
+"""Safety gates: lockout/tagout, the discharge wait, the pre-energising gate, the duty cycle.
+
+Each rule takes plain values (times, events, steps) and either passes or raises
+RuleRefusal with a sentence a mechanic can act on. Times are the station's
+receipt times; where the device's own times are known as well, a wait counts as
+served only when both clocks say so (an event synced later cannot shorten it).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass, replace
+from datetime import datetime
+from typing import Any
+
+from . import energy
+from .errors import RuleRefusal
+from .procedures import DischargeWait, DutyCycle, Lockout
+from .units import parse_quantity, seconds
+
+TAG_EVENT_KINDS = ("breaker_tagged", "tag_taken_over", "tag_removed")
+MAX_TAG_LENGTH = 24
+
+
+# --- lockout / tagout ---------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class Tag:
+    """A tag hanging on a breaker of an engine's ignition, and who answers for it now."""
+
+    number: str
+    breaker: str
+    owner_id: int
+    job_id: int
+    applied_by: int
+    applied_at: str
+
+
+def engine_tags(events: Iterable[Mapping[str, Any]]) -> dict[str, Tag]:
+    """The tags active on an engine: a fold over its jobs' tag events in station order."""
+    tags: dict[str, Tag] = {}
+    for e in events:
+        data = e["data"]
+        if e["kind"] == "breaker_tagged":
+            tags[data["tag"]] = Tag(data["tag"], data["breaker"], e["person_id"], e["job_id"],
+                                    e["person_id"], e["received_at"])
+        elif e["kind"] == "tag_taken_over" and data["tag"] in tags:
+            tags[data["tag"]] = replace(tags[data["tag"]], owner_id=e["person_id"],
+                                        job_id=e["job_id"])
+        elif e["kind"] == "tag_removed":
+            tags.pop(data["tag"], None)
+    return tags
+
+
+def _tag_number(data: Mapping[str, Any]) -> str:
+    number = data.get("tag")
+    if not isinstance(number, str) or not number.strip():
+        raise RuleRefusal("tag_number_missing", "Write the number printed on the tag.")
+    number = number.strip()
+    if len(number) > MAX_TAG_LENGTH:
+        raise RuleRefusal("tag_number_missing", f"A tag number is at most {MAX_TAG_LENGTH} "
+                          "characters; check what was typed.")
+    return number
+
+
+def check_breaker_tagged(step: Lockout, data: Mapping[str, Any], tags: Mapping[str, Tag],
+                         job_id: int) -> None:
+    """A breaker of this lockout step opened, collared and tagged with a new tag."""
+    if step.action != "apply":
+        raise RuleRefusal("wrong_event_for_step", "This step removes tags; it does not hang "
+                          "new ones.")
+    breakers = {b.id for b in step.breakers}
+    breaker = data.get("breaker")
+    if breaker not in breakers:
+        raise RuleRefusal("unknown_breaker", f"Breaker '{breaker}' is not one this step "
+                          f"locks out ({', '.join(sorted(breakers))}).")
+    number = _tag_number(data)
+    if number in tags:
+        raise RuleRefusal("tag_in_use", f"Tag {number} already hangs on breaker "
+                          f"{tags[number].breaker}; each tag has its own number.")
+    if any(t.breaker == breaker and t.job_id == job_id for t in tags.values()):
+        raise RuleRefusal("already_tagged", f"This job already has a tag on {breaker}.")
+
+
+def check_tag_taken_over(data: Mapping[str, Any], tags: Mapping[str, Tag],
+                         person_id: int) -> None:
+    """A handover: the incoming mechanic re-confirms the breaker open and takes the tag."""
+    number = _tag_number(data)
+    tag = tags.get(number)
+    if tag is None:
+        raise RuleRefusal("tag_not_active", f"No tag {number} hangs on this engine's breakers.")
+    if tag.owner_id == person_id:
+        raise RuleRefusal("already_owner", f"Tag {number} is already yours.")
+    if data.get("breaker_confirmed_open") is not True:
+        raise RuleRefusal("breaker_not_confirmed", f"Check that breaker {tag.breaker} is open "
+                          "and collared yourself before you take over its tag.")
+
+
+def check_tag_removed(step: Lockout, data: Mapping[str, Any], tags: Mapping[str, Tag],
+                      person_id: int) -> None:
+    """A tag removed at a release step: by its owner, or by the documented absent-owner path."""
+    if step.action != "release":
+        raise RuleRefusal("wrong_event_for_step", "Tags come off only at a release step.")
+    number = _tag_number(data)
+    tag = tags.get(number)
+    if tag is None:
+        raise RuleRefusal("tag_not_active", f"No tag {number} hangs on this engine's breakers.")
+    if tag.breaker not in {b.id for b in step.breakers}:
+        raise RuleRefusal("unknown_breaker", f"Tag {number} is on {tag.breaker}, which this "
+                          "step does not release.")
+    if tag.owner_id == person_id:
+        return
+    absent = data.get("absent_owner")
+    if absent is None:
+        raise RuleRefusal("tag_owner", f"Only the person who hung tag {number} removes it. "
+                          "If they have handed over, take the tag over first; if they are "
+                          "gone, follow the absent-owner procedure.")
+    if step.absent_owner is None:
+        raise RuleRefusal("absent_owner_not_allowed", "This procedure gives no absent-owner "
+                          "path: the tag's owner must come back and remove it.")
+    if not isinstance(absent, Mapping) or not all(
+            isinstance(absent.get(k), str) and absent[k].strip()
+            for k in ("reason", "supervisor")):
+        raise RuleRefusal("absent_owner_incomplete", "The absent-owner removal needs the reason "
+                          "(how the owner was sought) and the authorising supervisor.")
+
+
+def lockout_complete(step: Lockout, tags: Mapping[str, Tag], job_id: int) -> list[str]:
+    """The breakers still to tag (apply) or to untag (release); empty when the step is met."""
+    if step.action == "apply":
+        return [b.id for b in step.breakers
+                if not any(t.breaker == b.id and t.job_id == job_id for t in tags.values())]
+    return sorted({t.breaker for t in tags.values()} & {b.id for b in step.breakers})
+
+
+def tags_blocking_energising(tags: Mapping[str, Tag]) -> list[Tag]:
+    return sorted(tags.values(), key=lambda t: (t.breaker, t.number))
+
+
+# --- discharge wait -------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class DischargeRequirement:
+    """How long to wait, and why: the data's minimum, and the bleed-down estimate if given."""
+
+    minimum_s: float
+    computed_s: float | None
+    capacitance_f: float | None = None
+    charge_voltage_v: float | None = None
+    bleed_resistance_ohm: float | None = None
+    safe_voltage_v: float | None = None
+
+    @property
+    def required_s(self) -> float:
+        return max(self.minimum_s, self.computed_s or 0.0)
+
+    @property
+    def energy_j(self) -> float | None:
+        if self.capacitance_f is None or self.charge_voltage_v is None:
+            return None
+        return energy.stored_energy(self.capacitance_f, self.charge_voltage_v)
+
+    def voltage_after(self, elapsed_s: float) -> float | None:
+        if self.capacitance_f is None or self.charge_voltage_v is None \
+                or self.bleed_resistance_ohm is None:
+            return None
+        return energy.voltage_after(self.charge_voltage_v, self.bleed_resistance_ohm,
+                                    self.capacitance_f, max(elapsed_s, 0.0))
+
+
+def discharge_requirement(step: DischargeWait) -> DischargeRequirement:
+    """The larger of the data's minimum and t = RC·ln(V0/Vsafe); missing data never shortens it."""
+    minimum = seconds(str(step.minimum))
+    cap = step.capacitor
+    if cap is None:
+        return DischargeRequirement(minimum, None)
+    c = parse_quantity(str(cap.capacitance), "capacitance").to("farad").magnitude
+    v0 = parse_quantity(str(cap.charge_voltage), "voltage").to("volt").magnitude
+    r = parse_quantity(str(cap.bleed_resistance), "resistance").to("ohm").magnitude
+    vs = parse_quantity(str(cap.safe_voltage), "voltage").to("volt").magnitude
+    return DischargeRequirement(minimum, energy.time_to_voltage(v0, vs, r, c), c, v0, r, vs)
+
+
+@dataclass(frozen=True)
+class PowerOff:
+    """When the exciter's input was disconnected, by both clocks."""
+
+    station: datetime
+    device: datetime | None
+
+
+def wait_remaining(required_s: float, power_off: PowerOff, now: datetime,
+                   device_now: datetime | None) -> float:
+    """Seconds still to wait (0 when served by the station's clock and, if known, the device's)."""
+    remaining = required_s - (now - power_off.station).total_seconds()
+    if power_off.device is not None and device_now is not None:
+        remaining = max(remaining, required_s - (device_now - power_off.device).total_seconds())
+    return max(remaining, 0.0)
+
+
+def check_discharge_served(requirement: DischargeRequirement, power_off: PowerOff | None,
+                           now: datetime, device_now: datetime | None) -> None:
+    if power_off is None:
+        raise RuleRefusal("power_not_removed", "The exciter's input is not recorded as "
+                          "disconnected: disconnect it first; the wait counts from then.")
+    left = wait_remaining(requirement.required_s, power_off, now, device_now)
+    if left > 0:
+        whole = int(left) + (left % 1 > 0)
+        raise RuleRefusal("discharge_wait", f"The discharge wait is not over: {_mmss(whole)} "
+                          "to go. Do not touch the lead before then, and ground it first.",
+                          seconds_remaining=whole)
+
+
+# --- duty cycle ----------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class DutyPeriod:
+    """One on-period's limit and the mandatory off-time after it (None: no on limit)."""
+
+    on_max_s: float | None
+    off_min_s: float
+
+
+def duty_periods(cycle: DutyCycle) -> tuple[DutyPeriod, ...]:
+    """The cycle as (on, off) pairs; a continuous rating has none."""
+    if cycle.continuous:
+        return ()
+    if cycle.max_on is not None and cycle.min_off is not None:
+        return (DutyPeriod(seconds(str(cycle.max_on)), seconds(str(cycle.min_off))),)
+    entries = [(e.split(" ", 1)[0], seconds(e.split(" ", 1)[1])) for e in cycle.pattern or []]
+    periods: list[DutyPeriod] = []
+    for state, duration in entries:
+        if state == "on":
+            periods.append(DutyPeriod(duration, 0.0))
+        elif periods:
+            last = periods[-1]
+            periods[-1] = DutyPeriod(last.on_max_s, last.off_min_s + duration)
+        else:  # a pattern that starts with "off": the rest before the first on
+            periods.append(DutyPeriod(None, duration))
+    return tuple(periods)
+
+
+@dataclass(frozen=True)
+class ChannelClock:
+    """One exciter's on/off history in a job, as the duty cycle sees it."""
+
+    periods: tuple[DutyPeriod, ...] = ()
+    on_since: PowerOff | None = None     # reuses (station, device) times
+    off_since: PowerOff | None = None
+    period: int = 0                      # index of the current or last on-period
+    runs: int = 0
+    overrun_s: float = 0.0               # the largest time past an on-limit so far
+
+    @property
+    def is_on(self) -> bool:
+        return self.on_since is not None
+
+    @property
+    def required_off_s(self) -> float:
+        return self.periods[self.period].off_min_s if self.periods and self.runs else 0.0
+
+    @property
+    def on_limit_s(self) -> float | None:
+        return self.periods[self.period].on_max_s if self.periods else None
+
+    def _next_period(self, gap_s: float) -> int:
+        if not self.periods or not self.runs:
+            return 0
+        full_rest = max(p.off_min_s for p in self.periods)
+        return 0 if gap_s >= full_rest else (self.period + 1) % len(self.periods)
+
+    def energised(self, at: PowerOff, periods: tuple[DutyPeriod, ...]) -> ChannelClock:
+        gap = (at.station - self.off_since.station).total_seconds() if self.off_since else 0.0
+        clock = replace(self, periods=periods) if periods != self.periods else self
+        return replace(clock, on_since=at, off_since=None, period=clock._next_period(gap),
+                       runs=self.runs + 1)
+
+    def de_energised(self, at: PowerOff) -> ChannelClock:
+        assert self.on_since is not None
+        on_for = (at.station - self.on_since.station).total_seconds()
+        over = on_for - self.on_limit_s if self.on_limit_s is not None else 0.0
+        return replace(self, on_since=None, off_since=at, overrun_s=max(self.overrun_s, over))
+
+    def on_for_s(self, now: datetime) -> float:
+        return (now - self.on_since.station).total_seconds() if self.on_since else 0.0
+
+    def off_remaining_s(self, now: datetime, device_now: datetime | None = None) -> float:
+        """Seconds until the next ON is allowed (0 when it is allowed now)."""
+        if self.is_on or self.off_since is None:
+            return 0.0
+        return wait_remaining(self.required_off_s, self.off_since, now, device_now)
+
+    def on_remaining_s(self, now: datetime) -> float | None:
+        """Seconds left of this on-period's limit (negative past it); None when unlimited."""
+        if not self.is_on or self.on_limit_s is None:
+            return None
+        return self.on_limit_s - self.on_for_s(now)
+
+
+ON_LIMIT_WARNING_S = 30.0
+
+
+def check_energise(clocks: Mapping[str, ChannelClock], channels: Sequence[str],
+                   now: datetime, device_now: datetime | None) -> None:
+    for channel in channels:
+        clock = clocks.get(channel, ChannelClock())
+        if clock.is_on:
+            raise RuleRefusal("already_on", f"Channel {channel} is already energised.")
+        left = clock.off_remaining_s(now, device_now)
+        if left > 0:
+            whole = int(left) + (left % 1 > 0)
+            raise RuleRefusal("duty_cycle_off", f"Channel {channel}'s exciter must stay off for "
+                              f"{_mmss(whole)} more (duty cycle); energising now can "
+                              "overheat it.", seconds_remaining=whole, channel=channel)
+
+
+def check_de_energise(clocks: Mapping[str, ChannelClock], channel: str | None) -> None:
+    """De-energising is never held back, but it must switch something off."""
+    if channel not in (None, "A", "B"):
+        raise RuleRefusal("unknown_channel", f"'{channel}' is not an ignition channel (A or B).")
+    if not any(clock.is_on for c, clock in clocks.items() if channel in (None, c)):
+        raise RuleRefusal("not_on", "No exciter is recorded as energised"
+                          + (f" on channel {channel}." if channel else "."))
+
+
+def check_pre_energising(gate_steps_open: Sequence[str], tags: Mapping[str, Tag],
+                         names: Mapping[int, str]) -> None:
+    """Before any exciter is energised: the procedure's gate done, and no tag hanging."""
+    if gate_steps_open:
+        raise RuleRefusal("pre_energising_gate", "The confirmations before energising are not "
+                          "all in: " + ", ".join(gate_steps_open) + ".",
+                          open_steps=list(gate_steps_open))
+    hanging = tags_blocking_energising(tags)
+    if hanging:
+        said = "; ".join(f"{t.number} on {t.breaker} ({names.get(t.owner_id, 'unknown')})"
+                         for t in hanging)
+        raise RuleRefusal("tags_active", f"Tags still hang on this engine's ignition breakers: "
+                          f"{said}. Each is removed by its owner before anything is energised.",
+                          tags=[t.number for t in hanging])
+
+
+def _mmss(total_seconds: float) -> str:
+    whole = max(int(total_seconds), 0)
+    return f"{whole // 60}:{whole % 60:02d}"
+
+
+def mmss(total_seconds: float) -> str:
+    """Seconds as m:ss for people (rounded up, so a wait is never shown shorter)."""
+    value = max(total_seconds, 0.0)
+    return _mmss(int(value) + (value % 1 > 0))
