@@ -14,7 +14,9 @@ from flask import Blueprint, jsonify, request, url_for
 from pydantic import AwareDatetime, BaseModel, ConfigDict, Field, ValidationError
 
 from .. import recording
-from ..domain.execution import CLIENT_EVENT_KINDS, JobState
+from ..domain.execution import CLIENT_EVENT_KINDS, JobState, StepProgress
+from ..domain.gates import ChannelClock
+from ..domain.procedures import Check, Lockout
 from ..store import fleet as fleet_store
 from .common import db, now, person, public, requires
 from .openapi import openapi_document
@@ -64,19 +66,42 @@ def event_json(event: dict[str, Any]) -> dict[str, Any]:
             "hash": event["hash"]}
 
 
+def _step_json(progress: StepProgress) -> dict[str, Any]:
+    step = progress.step
+    shown: dict[str, Any] = {"id": progress.id, "number": progress.number, "kind": step.kind,
+                             "text": step.text, "status": progress.status,
+                             "recordable": progress.recordable}
+    if isinstance(step, Check) and step.items:
+        shown["items"] = list(step.items)
+    if isinstance(step, Lockout):
+        shown["action"] = step.action
+        shown["breakers"] = [b.id for b in step.breakers]
+    return shown
+
+
+def _clock_json(clock: ChannelClock, at: datetime) -> dict[str, Any]:
+    return {"on": clock.is_on, "on_for_s": round(clock.on_for_s(at), 1),
+            "on_limit_s": clock.on_limit_s,
+            "on_remaining_s": (None if clock.on_remaining_s(at) is None
+                               else round(clock.on_remaining_s(at) or 0.0, 1)),
+            "next_on_allowed_in_s": round(clock.off_remaining_s(at), 1),
+            "runs": clock.runs, "overrun_s": round(clock.overrun_s, 1)}
+
+
 def job_json(row: dict[str, Any], state: JobState) -> dict[str, Any]:
     upcoming = state.next_step
+    now_ = now()
     return {
         "id": row["id"], "status": state.status, "procedure": row["procedure_id"],
         "procedure_title": row["procedure_title"], "revision": row["revision_hash"],
         "revision_number": row["revision_number"], "engine": row["engine_id"],
         "engine_serial": row["engine_serial"], "aircraft": row["registration"],
         "position": row["position"], "channel": row["channel"],
-        "steps": [{"id": s.id, "number": s.number, "kind": s.step.kind, "text": s.step.text,
-                   "status": s.status, "recordable": s.recordable} for s in state.steps],
+        "steps": [_step_json(s) for s in state.steps],
         "done": [s.id for s in state.steps if s.status == "done"],
         "next_step": upcoming.id if upcoming else None,
         "readings": list(state.readings),
+        "ignition": {channel: _clock_json(clock, now_) for channel, clock in state.clocks.items()},
         "url": url_for("mechanic.job", job_id=row["id"]),
     }
 

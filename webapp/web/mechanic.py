@@ -37,8 +37,12 @@ def engine(engine_id: int) -> Any:
         abort(404)
     openable = recording.openable_procedures(db(), found)
     open_here = [j for j in job_store.jobs(db(), status="open") if j["engine_id"] == engine_id]
+    tags = recording.engine_tags(db(), engine_id)
+    names = people.names_by_id(db(), {t.owner_id for t in tags.values()})
     return render_template("mechanic/engine.html", engine=found, openable=openable,
-                           open_here=open_here)
+                           open_here=open_here, tags=sorted(tags.values(),
+                                                            key=lambda t: t.breaker),
+                           names=names)
 
 
 @bp.post("/jobs")
