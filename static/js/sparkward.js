@@ -38,6 +38,14 @@
     document.querySelectorAll("[data-count-up]").forEach(function (el) {
       el.textContent = mmss(Number(el.dataset.countUp) + gone);
     });
+    document.querySelectorAll("[data-on-limit]").forEach(function (box) {
+      var left = Number(box.dataset.onLimit) - gone;
+      var near = box.querySelector("[data-testid=limit-near]");
+      var over = box.querySelector("[data-testid=over-limit]");
+      near.hidden = !(left > 0 && left <= Number(box.dataset.warnAt));
+      over.hidden = left > 0;
+      near.querySelector("[data-limit-left]").textContent = mmss(left);
+    });
     document.querySelectorAll("[data-enable-after]").forEach(function (button) {
       if (Number(button.dataset.enableAfter) - gone <= 0) button.disabled = false;
     });

@@ -83,3 +83,66 @@ def test_discharge_wait_counts_down_and_cannot_be_cut_short(browser, live_server
     done.click()
     expect(step).to_have_attribute("data-step-id", "ground-lead")
     context.close()
+
+
+def test_functional_check_handover_release_and_duty_cycle(browser, live_server, station_clock):
+    # mech1 locks the engine out in a removal job and goes home.
+    first = browser.new_context(viewport={"width": 1024, "height": 768})
+    page = first.new_page()
+    log_in(page, live_server, "mech1", "demo-mech1")
+    page.click("[data-testid=engine-QT6-10231]")
+    page.click("[data-testid=open-exciter-removal-A]")
+    page.click("[data-testid=done]")
+    for index in range(3):
+        page.check(f"[data-testid=item-{index}]")
+    page.click("[data-testid=done]")
+    page.click("[data-testid=acknowledge]")
+    for breaker, tag in (("IGN-A", "T-4471"), ("IGN-B", "T-4472")):
+        page.fill(f"[data-testid=tag-number-{breaker}]", tag)
+        page.click(f"[data-testid=tag-{breaker}]")
+    page.click("[data-testid=done]")
+    first.close()
+
+    # mech2 does the functional check: takes the tags over, removes them, energises A.
+    context = browser.new_context(viewport={"width": 1024, "height": 768})
+    page = context.new_page()
+    start = datetime.now(UTC)
+    page.clock.install(time=start)
+    page.clock.pause_at(start + timedelta(seconds=1))
+    log_in(page, live_server, "mech2", "demo-mech2")
+    page.click("[data-testid=engine-QT6-10231]")
+    expect(page.get_by_test_id("engine-tag-T-4471")).to_contain_text("Aino Varga")
+    page.click("[data-testid=open-ignition-functional-check-all]")
+    step = page.get_by_test_id("step")
+    page.click("[data-testid=done]")
+    for index in range(3):
+        page.check(f"[data-testid=item-{index}]")
+    page.click("[data-testid=done]")
+    page.click("[data-testid=acknowledge]")
+    expect(step).to_have_attribute("data-step-id", "release-tags")
+    expect(page.get_by_test_id("owned-T-4471")).to_contain_text("Aino Varga")
+    for tag in ("T-4471", "T-4472"):
+        page.locator(f"[data-testid=engine-tag-{tag}] summary").click()
+        page.check(f"[data-testid=confirm-open-{tag}]")
+        page.click(f"[data-testid=take-over-{tag}]")
+        page.click(f"[data-testid=remove-{tag}]")
+    page.click("[data-testid=done]")
+    for _ in range(3):
+        page.click("[data-testid=acknowledge]")
+    for index in range(8):
+        page.check(f"[data-testid=item-{index}]")
+    page.click("[data-testid=done]")
+    page.click("[data-testid=acknowledge]")          # CAUTION: duty cycle
+    expect(step).to_have_attribute("data-step-kind", "ignition_run")
+    page.click("[data-testid=energise]")
+    live = page.get_by_test_id("live-channel-A")
+    expect(live).to_contain_text("Channel A ON")
+    expect(page.get_by_test_id("limit-near")).to_be_hidden()
+    station_clock.advance(100)
+    page.clock.fast_forward("01:40")
+    expect(page.get_by_test_id("limit-near")).to_be_visible()
+    expect(live).to_contain_text("1:40")
+    page.screenshot(path=str(ARTIFACTS / "ignition-run-limit-near.png"), full_page=True)
+    page.click("[data-testid=de-energise-A]")
+    expect(page.get_by_test_id("live-channel-A")).to_have_count(0)
+    context.close()

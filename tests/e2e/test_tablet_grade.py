@@ -87,6 +87,24 @@ def test_screens_are_tablet_grade(browser, live_server, viewport):
     page.click("[data-testid=done]")
     page.wait_for_selector("[data-step-id=selectors-off]")
     _audit(page, "check step with items")
+    for index in range(3):
+        page.check(f"[data-testid=item-{index}]")
+    page.click("[data-testid=done]")
+    page.click("[data-testid=acknowledge]")
+    page.wait_for_selector("[data-step-kind=lockout]")
+    page.fill("[data-testid=tag-number-IGN-A]", "T-1")
+    page.click("[data-testid=tag-IGN-A]")
+    page.wait_for_selector("[data-testid=tagged-IGN-A]")
+    _audit(page, "lockout step with a tag hung")
+    page.fill("[data-testid=tag-number-IGN-B]", "T-2")
+    page.click("[data-testid=tag-IGN-B]")
+    page.click("[data-testid=done]")
+    page.click("[data-testid=continue]")
+    page.click("[data-testid=done]")          # input disconnected
+    page.click("[data-testid=acknowledge]")   # CAUTION for AC-supplied exciters (DEMO-103)
+    page.click("[data-testid=done]")          # inverter supply open
+    page.wait_for_selector("[data-step-kind=discharge_wait]")
+    _audit(page, "discharge wait")
     context.close()
 
 
