@@ -8,6 +8,16 @@ from pydantic import BaseModel
 
 from ..domain.execution import CLIENT_EVENT_KINDS, EVENT_KINDS
 
+EVENT_DATA = (
+    "What each kind carries in `data`. acknowledged (WARNING/CAUTION step): {}. "
+    "step_done: {} or, for a check with items, {\"items\": [index, ...]} with every index. "
+    "breaker_tagged (lockout apply step): {\"breaker\": id, \"tag\": number}. "
+    "tag_taken_over (any step; step may be null): {\"tag\": number, "
+    "\"breaker_confirmed_open\": true}. tag_removed (lockout release step): {\"tag\": "
+    "number} and, for the absent-owner path, \"absent_owner\": {\"reason\": text, "
+    "\"supervisor\": username}. input_reconnected (any step): {}. energised (ignition run "
+    "step): {}. de_energised (any step): {} or {\"channel\": \"A\"|\"B\"}.")
+
 _REFUSAL = {
     "type": "object", "required": ["rule", "reason"],
     "properties": {"rule": {"type": "string", "description": "stable name of the rule"},
@@ -98,7 +108,8 @@ _COMMON_ERRORS = {"401": {"description": "not logged in"},
 
 def openapi_document(job_in: type[BaseModel], event_in: type[BaseModel]) -> dict[str, Any]:
     event_schema = event_in.model_json_schema(ref_template="#/components/schemas/{model}")
-    event_schema["properties"]["kind"] = {"type": "string", "enum": list(CLIENT_EVENT_KINDS)}
+    event_schema["properties"]["kind"] = {"type": "string", "enum": list(CLIENT_EVENT_KINDS),
+                                          "description": EVENT_DATA}
     job_id = [{"name": "job_id", "in": "path", "required": True, "schema": {"type": "integer"}}]
     write = {"security": [{"session": [], "csrf": []}]}
     return {
