@@ -41,14 +41,14 @@ def engine_tags(events: Iterable[Mapping[str, Any]]) -> dict[str, Tag]:
     tags: dict[str, Tag] = {}
     for e in events:
         data = e["data"]
+        number = str(data["tag"]).strip()  # as the checks read it: " T-1 " is tag T-1
         if e["kind"] == "breaker_tagged":
-            tags[data["tag"]] = Tag(data["tag"], data["breaker"], e["person_id"], e["job_id"],
-                                    e["person_id"], e["received_at"])
-        elif e["kind"] == "tag_taken_over" and data["tag"] in tags:
-            tags[data["tag"]] = replace(tags[data["tag"]], owner_id=e["person_id"],
-                                        job_id=e["job_id"])
+            tags[number] = Tag(number, data["breaker"], e["person_id"], e["job_id"],
+                               e["person_id"], e["received_at"])
+        elif e["kind"] == "tag_taken_over" and number in tags:
+            tags[number] = replace(tags[number], owner_id=e["person_id"], job_id=e["job_id"])
         elif e["kind"] == "tag_removed":
-            tags.pop(data["tag"], None)
+            tags.pop(number, None)
     return tags
 
 
