@@ -101,20 +101,24 @@ class JobState:
     readings: tuple[Mapping[str, Any], ...] = ()
 
     @cached_property
+    def positions(self) -> dict[str, int]:
+        return {step.id: i for i, step in enumerate(self.applicable)}
+
+    @cached_property
+    def _next_position(self) -> int | None:
+        return next((i for i, step in enumerate(self.applicable)
+                     if step.id not in self.completed), None)
+
+    def _progress(self, position: int) -> StepProgress:
+        step = self.applicable[position]
+        event = self.completed.get(step.id)
+        status: StepStatus = ("done" if event is not None
+                              else "next" if position == self._next_position else "waiting")
+        return StepProgress(position + 1, step, status, event, step.kind in COMPLETING_EVENT)
+
+    @cached_property
     def steps(self) -> tuple[StepProgress, ...]:
-        progress: list[StepProgress] = []
-        next_found = False
-        for number, step in enumerate(self.applicable, start=1):
-            event = self.completed.get(step.id)
-            if event is not None:
-                status: StepStatus = "done"
-            elif not next_found:
-                status, next_found = "next", True
-            else:
-                status = "waiting"
-            progress.append(StepProgress(number, step, status, event,
-                                         step.kind in COMPLETING_EVENT))
-        return tuple(progress)
+        return tuple(self._progress(i) for i in range(len(self.applicable)))
 
     @property
     def status(self) -> Literal["open", "complete"]:
@@ -122,22 +126,25 @@ class JobState:
 
     @property
     def next_step(self) -> StepProgress | None:
-        return next((s for s in self.steps if s.status == "next"), None)
+        position = self._next_position
+        return None if position is None else self._progress(position)
 
     @property
     def done_count(self) -> int:
         return len(self.completed)
 
     def step(self, step_id: str) -> StepProgress | None:
-        return next((s for s in self.steps if s.id == step_id), None)
+        position = self.positions.get(step_id)
+        return None if position is None else self._progress(position)
 
     def advisories_for(self, step_id: str) -> list[Advisory]:
         return advisories_for(list(self.applicable), step_id)
 
     def open_gate_steps(self) -> list[str]:
         """The pre-energising confirmations not yet done ("step n (id)")."""
-        return [f"step {s.number} ({s.id})" for s in self.steps
-                if isinstance(s.step, Check) and s.step.before_energising and s.status != "done"]
+        return [f"step {i + 1} ({step.id})" for i, step in enumerate(self.applicable)
+                if isinstance(step, Check) and step.before_energising
+                and step.id not in self.completed]
 
 
 def configuration_for(procedure: Procedure, engine_model: str,
@@ -200,7 +207,8 @@ def job_state(procedure: Procedure, events: Sequence[Mapping[str, Any]]) -> JobS
 def apply_event(state: JobState, event: Mapping[str, Any]) -> JobState:
     """The state after one more stored event (the same as rebuilding from the whole log)."""
     kind, step_id = event["kind"], event["step_id"]
-    step = next((s for s in state.applicable if s.id == step_id), None)
+    position = state.positions.get(step_id) if step_id else None
+    step = state.applicable[position] if position is not None else None
     if kind == "input_reconnected":
         # Power is back: the disconnection and every discharge wait must be done again.
         completed = {k: v for k, v in state.completed.items()

@@ -75,3 +75,9 @@ def initial(db: Database) -> None:
         "step_id": str, "data": str, "rule": str, "reason": str, "received_at": str,
     }, pk="id")
     db.table("refusals").create_index(["job_id"])
+
+
+@MIGRATIONS(name="0002_index_events_by_kind")
+def events_by_kind(db: Database) -> None:
+    # The tags hanging on an engine are read from its jobs' tag events on every gate check.
+    db.table("events").create_index(["kind", "job_id"])
