@@ -26,6 +26,7 @@ from .domain.execution import (
     job_state,
 )
 from .domain.gates import Tag
+from .domain.readings import InputProblem
 from .library import procedure_of_revision
 from .store import fleet, jobs, people, procedures
 from .store.people import Person
@@ -76,9 +77,10 @@ _STATES = _StateCache()
 
 @dataclass(frozen=True)
 class Outcome:
-    status: Literal["stored", "duplicate", "refused"]
+    status: Literal["stored", "duplicate", "refused", "invalid"]
     event: dict[str, Any] | None = None
     refusal: RuleRefusal | None = None
+    problem: InputProblem | None = None  # a value that cannot be a reading: nothing kept
 
 
 def _chain(db: store.Database, *, job_id: int, event_id: str, kind: str, step_id: str | None,
@@ -156,7 +158,9 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
             at = Circumstances(now=now, device_now=_device_time(device_time),
                                person_id=person.id, job_id=job_id, tags=tags,
                                names=people.names_by_id(db, {t.owner_id for t in tags.values()}))
-            check_event(job.state, kind, step_id, data, at)
+            data = dict(check_event(job.state, kind, step_id, data, at))
+        except InputProblem as problem:
+            return Outcome("invalid", problem=problem)
         except RuleRefusal as refusal:
             jobs.record_refusal(db, event_id=event_id, job_id=job_id, person_id=person.id,
                                 kind=kind, step_id=step_id, data=data, rule=refusal.rule,

@@ -57,6 +57,41 @@
       el.querySelector("[data-estimate-energy]").textContent = (0.5 * c * v * v).toFixed(2);
     });
   }
+  // Live conversion and the adapter's wrench setting, as the mechanic types (comfort only:
+  // the station converts and judges the value it receives).
+  function number(text) {
+    var value = parseFloat(String(text || "").replace(",", "."));
+    return isFinite(value) ? value : null;
+  }
+  function shown(value) { return Number(value.toPrecision(4)).toString(); }
+  function updateConversions() {
+    document.querySelectorAll("[data-testid=converted]").forEach(function (out) {
+      var form = out.closest("form");
+      var value = number(form.querySelector("[name=value]").value);
+      var unit = form.querySelector("[name=unit]").value;
+      var factor = JSON.parse(out.dataset.factors || "{}")[unit];
+      if (value === null || factor === undefined) { out.textContent = ""; return; }
+      var inTarget = value * factor;
+      var text = "= " + shown(inTarget) + " " + out.dataset.to;
+      if (out.dataset.siFactor) {
+        text += " = " + shown(inTarget * Number(out.dataset.siFactor)) + " " + out.dataset.siLabel;
+      }
+      out.textContent = text;
+    });
+    document.querySelectorAll("[data-adapter]").forEach(function (box) {
+      var length = number(box.querySelector("[name=wrench_length]").value);
+      var extension = number(box.querySelector("[name=extension]").value);
+      var out = box.querySelector("[data-testid=adapter-setting]");
+      if (length === null || extension === null || length <= 0 || extension < 0) return;
+      var setting = Number(box.dataset.target) * Number(box.dataset.factor) * length /
+        (length + extension);
+      out.textContent = "Set the wrench to " + shown(setting) + " " + box.dataset.unit +
+        " for " + shown(Number(box.dataset.target)) + " " + box.dataset.unit + " at the plug.";
+    });
+  }
+  document.addEventListener("input", updateConversions);
+  document.addEventListener("change", updateConversions);
+
   // Each swapped fragment restarts the count from the figures the station just sent.
   document.addEventListener("htmx:afterSwap", function () { pageStart = Date.now(); tick(); });
   setInterval(tick, 1000);

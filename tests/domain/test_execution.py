@@ -131,16 +131,21 @@ def test_applying_events_one_by_one_equals_rebuilding_from_the_log():
 
 
 def test_a_step_kind_without_its_rules_waits_rather_than_pretending():
-    # Readings arrive with their own rules; until then the job waits at such a step.
-    text = (TASKS / "exciter-removal.yaml").read_text(encoding="utf-8")
-    procedure = parse_procedure(text)
+    # Signatures arrive with their own rules; until then the job waits at such a step.
+    procedure = REMOVAL
     configuration = configuration_for(procedure, "QT-610", DC_ENGINE, "A")
-    ids = [s.id for s in procedure.steps_for(("dc",), ("surface-discharge",))]
-    done = [_done(i, "acknowledged" if i in ("lethal-energy-breakers", "ground-lead",
-                                              "cap-connectors", "sealed-unit") else "step_done")
-            for i in ids[:ids.index("removed-serial")]]
+    steps = procedure.steps_for(("dc",), ("surface-discharge",))
+    kinds = {"warning": "acknowledged", "caution": "acknowledged", "reading": "reading_recorded"}
+    done = []
+    for step in steps[:-1]:
+        event = _done(step.id, kinds.get(step.kind, "step_done"))
+        event["id"] = step.id
+        event["person_id"] = 1
+        if step.kind == "reading":
+            event["data"] = {"text": "demo", "verdict": "recorded"}
+        done.append(event)
     state = job_state(procedure, [_opened(configuration), *done])
-    assert state.next_step.id == "removed-serial"
+    assert state.next_step.id == "performer"
     with pytest.raises(RuleRefusal) as refused:
-        check_event(state, "step_done", "removed-serial", {}, AT)
+        check_event(state, "step_done", "performer", {}, AT)
     assert refused.value.rule == "step_kind_not_available"

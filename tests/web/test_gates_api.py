@@ -3,72 +3,10 @@ person and twice; each refused with its rule, nothing stored but the refusal log
 
 from __future__ import annotations
 
-import uuid
-
 import pytest
 
+from tests.web.jobs import DEMO_101_ENGINE_1, Job, _event
 from webapp.store import jobs as job_store
-
-DEMO_101_ENGINE_1 = 1  # DC exciters, surface-discharge plugs (demo data)
-ACKED = ("warning", "caution")
-
-
-def _event(step, kind="step_done", **data):
-    return {"id": str(uuid.uuid4()), "kind": kind, "step": step, "data": data}
-
-
-class Job:
-    """One job driven through the API, with the station's clock at hand."""
-
-    def __init__(self, client, db, clock, procedure, channel="A", engine=DEMO_101_ENGINE_1):
-        self.client, self.db, self.clock = client, db, clock
-        answer = client.post_json("/api/jobs", {"procedure": procedure, "engine": engine,
-                                                "channel": channel})
-        assert answer.status_code == 201, answer.get_json()
-        self.id = answer.get_json()["id"]
-        self.url = f"/api/jobs/{self.id}/events"
-
-    def state(self):
-        return self.client.get(f"/api/jobs/{self.id}").get_json()
-
-    def post(self, body, client=None):
-        return (client or self.client).post_json(self.url, body)
-
-    def ok(self, body, client=None):
-        answer = self.post(body, client)
-        assert answer.status_code == 201, answer.get_json()
-        return answer
-
-    def refused(self, body, rule, client=None):
-        before = (len(job_store.events(self.db, self.id)),
-                  len(job_store.refusals(self.db, self.id)))
-        answer = self.post(body, client)
-        assert answer.status_code == 409, answer.get_json()
-        assert answer.get_json()["rule"] == rule, answer.get_json()
-        after = (len(job_store.events(self.db, self.id)),
-                 len(job_store.refusals(self.db, self.id)))
-        assert after == (before[0], before[1] + 1)  # only the refusal is kept
-        return answer.get_json()
-
-    def walk_to(self, step_id, tags=("T-1", "T-2")):
-        """Complete the simple steps in order up to (not including) `step_id`."""
-        for step in self.state()["steps"]:
-            if step["id"] == step_id:
-                return
-            if step["status"] == "done":
-                continue
-            if step["kind"] in ACKED:
-                self.ok(_event(step["id"], "acknowledged"))
-            elif step["kind"] == "lockout" and step["action"] == "apply":
-                for breaker, tag in zip(step["breakers"], tags, strict=False):
-                    self.ok(_event(step["id"], "breaker_tagged", breaker=breaker, tag=tag))
-                self.ok(_event(step["id"]))
-            elif step["kind"] == "discharge_wait":
-                self.clock.advance(120)
-                self.ok(_event(step["id"]))
-            else:
-                self.ok(_event(step["id"], items=list(range(len(step.get("items", []))))))
-        raise AssertionError(f"{step_id} is not a step of this job")
 
 
 @pytest.fixture

@@ -14,7 +14,7 @@ from datetime import datetime
 from functools import cached_property
 from typing import Any, Literal
 
-from . import gates
+from . import gates, readings
 from .errors import RuleRefusal
 from .gates import ChannelClock, PowerOff, Tag
 from .procedures import (
@@ -24,13 +24,16 @@ from .procedures import (
     IgnitionRun,
     Lockout,
     Procedure,
+    Reading,
     Step,
+    Torque,
     advisories_for,
 )
 
 # Events a client may send, and the one the station writes itself when a job opens.
 CLIENT_EVENT_KINDS = ("acknowledged", "step_done", "breaker_tagged", "tag_taken_over",
-                      "tag_removed", "input_reconnected", "energised", "de_energised")
+                      "tag_removed", "input_reconnected", "energised", "de_energised",
+                      "reading_recorded", "finding")
 STATION_EVENT_KINDS = ("job_opened",)
 EVENT_KINDS = STATION_EVENT_KINDS + CLIENT_EVENT_KINDS
 
@@ -45,9 +48,12 @@ COMPLETING_EVENT = {
     "lockout": "step_done",
     "discharge_wait": "step_done",
     "ignition_run": "energised",
+    "reading": "reading_recorded",   # unless out of limits: then a finding completes it
+    "torque": "reading_recorded",
 }
 # Events that happen within the current step without completing it.
-IN_STEP_EVENTS = {"breaker_tagged": "lockout", "tag_removed": "lockout"}
+IN_STEP_EVENTS = {"breaker_tagged": "lockout", "tag_removed": "lockout",
+                  "finding": ("reading", "torque")}
 # Events allowed whatever step the job is at. De-energising is never held back.
 ANYTIME_EVENTS = ("tag_taken_over", "input_reconnected", "de_energised")
 
@@ -98,7 +104,8 @@ class JobState:
     completed: Mapping[str, Mapping[str, Any]] = field(default_factory=dict)
     power_off: PowerOff | None = None
     clocks: Mapping[str, ChannelClock] = field(default_factory=dict)
-    readings: tuple[Mapping[str, Any], ...] = ()
+    readings: tuple[Mapping[str, Any], ...] = ()   # every attempt, in order, findings attached
+    awaiting_finding: Mapping[str, Mapping[str, Any]] = field(default_factory=dict)
 
     @cached_property
     def positions(self) -> dict[str, int]:
@@ -217,6 +224,10 @@ def apply_event(state: JobState, event: Mapping[str, Any]) -> JobState:
     if kind == "de_energised":
         return replace(state, clocks=_switched_off(state.clocks, event,
                                                    event["data"].get("channel")))
+    if kind == "reading_recorded" and step is not None:
+        return _with_reading(state, step, event)
+    if kind == "finding" and step is not None:
+        return _with_finding(state, step, event)
     if step is None or kind != COMPLETING_EVENT.get(step.kind):
         return state
     completed = {**state.completed, step.id: event}
@@ -236,6 +247,48 @@ def apply_event(state: JobState, event: Mapping[str, Any]) -> JobState:
         if step.ignition_off:
             clocks = _switched_off(clocks, event, None)
     return replace(state, completed=completed, power_off=power_off, clocks=clocks)
+
+
+def _plug_at_work(state: JobState) -> dict[str, Any]:
+    """The plug a wear reading belongs to: the job's channel's installed plug."""
+    plugs = [c for c in state.configuration.components if c.get("kind") == "plug"]
+    if len(plugs) != 1:
+        raise RuleRefusal("plug_unknown", "A wear reading belongs to one plug, but this job "
+                          f"has {len(plugs)} recorded: open the job for one channel.")
+    plug = plugs[0]
+    return {"id": plug.get("id"), "part_number": plug.get("part_number"),
+            "serial": plug.get("serial"), "channel": plug.get("channel")}
+
+
+def _reading_entry(step: Step, event: Mapping[str, Any], attempt: int) -> dict[str, Any]:
+    return {"step": step.id, "kind": step.kind, "attempt": attempt, "event": event["id"],
+            "person_id": event["person_id"], "received_at": event["received_at"],
+            **event["data"], "finding": None}
+
+
+def _with_reading(state: JobState, step: Step, event: Mapping[str, Any]) -> JobState:
+    attempt = 1 + sum(1 for r in state.readings if r["step"] == step.id)
+    readings = (*state.readings, _reading_entry(step, event, attempt))
+    if event["data"].get("verdict") == "out of limits":
+        return replace(state, readings=readings,
+                       awaiting_finding={**state.awaiting_finding, step.id: event})
+    return replace(state, readings=readings, completed={**state.completed, step.id: event})
+
+
+def _with_finding(state: JobState, step: Step, event: Mapping[str, Any]) -> JobState:
+    readings = list(state.readings)
+    for i in range(len(readings) - 1, -1, -1):
+        if readings[i]["step"] == step.id:
+            readings[i] = {**readings[i], "finding": {**event["data"],
+                                                      "person_id": event["person_id"],
+                                                      "received_at": event["received_at"]}}
+            break
+    waiting = {k: v for k, v in state.awaiting_finding.items() if k != step.id}
+    completed = dict(state.completed)
+    if event["data"].get("disposition") in ("replaced", "deferred"):
+        completed[step.id] = event  # re-tested: the step waits for the new reading
+    return replace(state, readings=tuple(readings), awaiting_finding=waiting,
+                   completed=completed)
 
 
 def _switched_off(clocks: Mapping[str, ChannelClock], event: Mapping[str, Any],
@@ -267,8 +320,12 @@ class Circumstances:
 
 
 def check_event(state: JobState, kind: str, step_id: str | None, data: Mapping[str, Any],
-                at: Circumstances) -> None:
-    """Refuse an event the rules do not allow, with a reason a mechanic understands."""
+                at: Circumstances) -> Mapping[str, Any]:
+    """Refuse an event the rules do not allow, with a reason a mechanic understands; return
+    the data to store with it (readings come back with their conversion and verdict).
+
+    Raises RuleRefusal for a rule, readings.InputProblem for a value that cannot be a reading.
+    """
     if kind not in CLIENT_EVENT_KINDS:
         raise RuleRefusal("unknown_event_kind", f"'{kind}' is not something this station "
                           "records; known: " + ", ".join(CLIENT_EVENT_KINDS) + ".")
@@ -276,14 +333,14 @@ def check_event(state: JobState, kind: str, step_id: str | None, data: Mapping[s
         raise RuleRefusal("job_not_open", "This job is no longer open for work.")
     if kind == "tag_taken_over":
         gates.check_tag_taken_over(data, at.tags, at.person_id)
-        return
+        return data
     if kind == "input_reconnected":
         if state.power_off is None:
             raise RuleRefusal("power_not_removed", "The input is not recorded as disconnected.")
-        return
+        return data
     if kind == "de_energised":
         gates.check_de_energise(state.clocks, data.get("channel"))
-        return
+        return data
     target = state.step(step_id) if step_id else None
     if target is None:
         raise RuleRefusal("unknown_step", f"Step '{step_id}' is not part of this job's "
@@ -299,11 +356,10 @@ def check_event(state: JobState, kind: str, step_id: str | None, data: Mapping[s
                           next_step=upcoming.id)
     step = target.step
     if kind in IN_STEP_EVENTS:
-        if step.kind != IN_STEP_EVENTS[kind]:
+        if step.kind not in IN_STEP_EVENTS[kind]:
             raise RuleRefusal("wrong_event_for_step", f"'{kind}' does not belong to a "
                               f"{step.kind} step.")
-        _check_in_step(state, step, kind, data, at)
-        return
+        return _check_in_step(state, step, kind, data, at)
     wanted = COMPLETING_EVENT.get(step.kind)
     if wanted is None:
         raise RuleRefusal("step_kind_not_available", f"This station cannot record "
@@ -313,21 +369,36 @@ def check_event(state: JobState, kind: str, step_id: str | None, data: Mapping[s
         verb = "acknowledged" if wanted == "acknowledged" else "marked done"
         raise RuleRefusal("wrong_event_for_step", f"A {step.kind} step is {verb}, "
                           f"not '{kind}'.")
-    _check_completion(state, target, data, at)
+    return _check_completion(state, target, data, at)
 
 
 def _check_in_step(state: JobState, step: Step, kind: str, data: Mapping[str, Any],
-                   at: Circumstances) -> None:
+                   at: Circumstances) -> Mapping[str, Any]:
     if isinstance(step, Lockout):
         if kind == "breaker_tagged":
             gates.check_breaker_tagged(step, data, at.tags, at.job_id)
         else:
             gates.check_tag_removed(step, data, at.tags, at.person_id)
+        return data
+    if step.id not in state.awaiting_finding:
+        raise RuleRefusal("no_reading_to_disposition", "A finding goes with an out-of-limits "
+                          "reading; this step has none waiting.")
+    return readings.evaluate_finding(data)
 
 
 def _check_completion(state: JobState, target: StepProgress, data: Mapping[str, Any],
-                      at: Circumstances) -> None:
+                      at: Circumstances) -> Mapping[str, Any]:
     step = target.step
+    if isinstance(step, (Reading, Torque)):
+        if step.id in state.awaiting_finding:
+            raise RuleRefusal("finding_required", "The last reading was out of limits: record "
+                              "the finding and what was done before anything else.")
+        if isinstance(step, Torque):
+            return readings.evaluate_torque(step, data, at.now.date())
+        stored = readings.evaluate_reading(step, data)
+        if isinstance(step, Reading) and step.wear:
+            stored["plug"] = _plug_at_work(state)
+        return stored
     if isinstance(step, Check) and step.items:
         ticked = data.get("items")
         if not isinstance(ticked, list) or sorted(set(ticked)) != list(range(len(step.items))):
@@ -347,6 +418,7 @@ def _check_completion(state: JobState, target: StepProgress, data: Mapping[str, 
                                      at.now, at.device_now)
     elif isinstance(step, IgnitionRun):
         gates.check_energise(state.clocks, _channels(step), at.now, at.device_now)
+    return data
 
 
 def _short(step: Step) -> str:

@@ -220,11 +220,18 @@ class DischargeWait(_Step):
 
 
 class Reading(_Step):
+    """A value to record. Number readings carry their unit and limits; `conditions` are
+    recorded with the value (insulation tests); `wear: true` ties a plug's erosion to the
+    plug's serial number and its usage."""
+
     kind: Literal["reading"]
     value: Literal["number", "text", "pass_fail"]
     unit: AnyUnit | None = None
     limits: Limits | None = None
     near_margin: float | None = Field(default=None, ge=0)
+    conditions: list[Literal["test_voltage", "ambient_temperature", "humidity"]] = Field(
+        default_factory=list)
+    wear: bool = False
 
     @model_validator(mode="after")
     def _number_has_unit_and_limits(self) -> Reading:

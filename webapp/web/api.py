@@ -16,7 +16,7 @@ from pydantic import AwareDatetime, BaseModel, ConfigDict, Field, ValidationErro
 from .. import recording
 from ..domain.execution import CLIENT_EVENT_KINDS, JobState, StepProgress
 from ..domain.gates import ChannelClock
-from ..domain.procedures import Check, Lockout
+from ..domain.procedures import Check, Lockout, Reading, Torque
 from ..store import fleet as fleet_store
 from .common import db, now, person, public, requires
 from .openapi import openapi_document
@@ -76,6 +76,13 @@ def _step_json(progress: StepProgress) -> dict[str, Any]:
     if isinstance(step, Lockout):
         shown["action"] = step.action
         shown["breakers"] = [b.id for b in step.breakers]
+    if isinstance(step, (Reading, Torque)):
+        shown["value"] = step.value if isinstance(step, Reading) else "number"
+        shown["unit"] = step.unit
+        shown["limits"] = step.limits.model_dump() if step.limits else None
+        shown["conditions"] = list(step.conditions) if isinstance(step, Reading) else []
+        shown["wear"] = isinstance(step, Reading) and step.wear
+        shown["adapter"] = isinstance(step, Torque) and step.adapter
     return shown
 
 
@@ -101,6 +108,7 @@ def job_json(row: dict[str, Any], state: JobState) -> dict[str, Any]:
         "done": [s.id for s in state.steps if s.status == "done"],
         "next_step": upcoming.id if upcoming else None,
         "readings": list(state.readings),
+        "awaiting_finding": sorted(state.awaiting_finding),
         "ignition": {channel: _clock_json(clock, now_) for channel, clock in state.clocks.items()},
         "url": url_for("mechanic.job", job_id=row["id"]),
     }
@@ -168,6 +176,11 @@ def post_event(job_id: int) -> Any:
     outcome = recording.record_event(db(), job_id, event_id=str(body.id), kind=body.kind,
                                      step_id=body.step, data=body.data,
                                      device_time=device_time, person=person(), now=now())
+    if outcome.status == "invalid":
+        assert outcome.problem is not None
+        return jsonify({"rule": "bad_input", "reason": outcome.problem.message + " Nothing "
+                        "was stored.", "problems": [{"field": f"data.{outcome.problem.field}",
+                                                     "problem": outcome.problem.message}]}), 422
     if outcome.status == "refused":
         assert outcome.refusal is not None
         return jsonify(outcome.refusal.as_dict()), 409

@@ -59,6 +59,9 @@ def init_database(app: Flask) -> None:
 
     from ..domain.gates import mmss
     from .progress import progress_list
+    from .reading_views import register as register_reading_views
+
+    register_reading_views(app)
 
     app.jinja_env.filters["mmss"] = mmss
     app.jinja_env.globals["new_event_id"] = lambda: str(uuid.uuid4())

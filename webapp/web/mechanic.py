@@ -10,6 +10,7 @@ from flask import Blueprint, abort, redirect, render_template, request, url_for
 
 from .. import recording
 from ..domain.gates import ON_LIMIT_WARNING_S
+from ..domain.readings import InputProblem
 from ..store import fleet as fleet_store
 from ..store import jobs as job_store
 from ..store import people
@@ -59,13 +60,15 @@ def open_job() -> Any:
     return redirect(url_for("mechanic.job", job_id=job_id), code=303)
 
 
-def _job_page(job_id: int, error: str | None = None, status: int = 200) -> Any:
+def _job_page(job_id: int, error: str | None = None, status: int = 200,
+              problem: InputProblem | None = None, entered: Any = None) -> Any:
     job = recording.load_job(db(), job_id)
     names = people.names_by_id(db(), {s.event["person_id"] for s in job.state.steps if s.event})
     return page_or_fragment("mechanic/job.html", "mechanic/_job.html", status=status,
                             job=job.row, state=job.state, current=job.state.next_step,
                             names=names, error=error, gate=gate_context(db(), job, now()),
-                            warning_s=ON_LIMIT_WARNING_S)
+                            warning_s=ON_LIMIT_WARNING_S, problem=problem,
+                            entered=entered or {}, today=now().date().isoformat())
 
 
 @bp.get("/jobs/<int:job_id>")
@@ -91,7 +94,31 @@ def _event_data(kind: str, form: Any) -> dict[str, Any]:
         return data
     if kind == "de_energised" and form.get("channel"):
         return {"channel": form["channel"]}
+    if kind == "reading_recorded":
+        return _reading_data(form)
+    if kind == "finding":
+        return {k: form.get(k, "") for k in ("text", "disposition", "reference")
+                if k in form}
     return {}
+
+
+def _reading_data(form: Any) -> dict[str, Any]:
+    """A reading form's fields as the event's data (the station checks and converts them)."""
+    data: dict[str, Any] = {k: form[k] for k in ("text", "result", "value", "unit", "wrench_id",
+                                                  "calibration_due") if k in form}
+    for condition in ("test_voltage", "ambient_temperature", "humidity"):
+        if f"{condition}_value" in form:
+            data[condition] = {"value": form[f"{condition}_value"],
+                               "unit": form.get(f"{condition}_unit", "%RH")}
+    if form.get("wrench_length") or form.get("extension"):
+        data["adapter"] = {"wrench_length": form.get("wrench_length", ""),
+                           "extension": form.get("extension", "")}
+    if "engine_hours" in form:
+        data["usage"] = {k: form.get(k, "") for k in ("engine_hours", "starts",
+                                                       "continuous_ignition_hours")}
+        data["usage"]["continuous_ignition_estimated"] = (
+            form.get("continuous_ignition_estimated") == "1")
+    return data
 
 
 def _device_time(text: str | None) -> str | None:
@@ -121,9 +148,12 @@ def record(job_id: int, step_id: str | None = None) -> Any:
         db(), job_id, event_id=event_id, kind=kind, step_id=step_id or form.get("step") or None,
         data=_event_data(kind, form), device_time=_device_time(form.get("device_time")),
         person=person(), now=now())
+    if outcome.status == "invalid":
+        assert outcome.problem is not None
+        return _job_page(job_id, problem=outcome.problem, entered=form, status=422)
     if outcome.status == "refused":
         assert outcome.refusal is not None
-        return _job_page(job_id, error=outcome.refusal.reason, status=409)
+        return _job_page(job_id, error=outcome.refusal.reason, status=409, entered=form)
     if request.headers.get("HX-Request") == "true":
         return _job_page(job_id)
     return redirect(url_for("mechanic.job", job_id=job_id), code=303)

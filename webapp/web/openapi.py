@@ -16,7 +16,14 @@ EVENT_DATA = (
     "\"breaker_confirmed_open\": true}. tag_removed (lockout release step): {\"tag\": "
     "number} and, for the absent-owner path, \"absent_owner\": {\"reason\": text, "
     "\"supervisor\": username}. input_reconnected (any step): {}. energised (ignition run "
-    "step): {}. de_energised (any step): {} or {\"channel\": \"A\"|\"B\"}.")
+    "step): {}. de_energised (any step): {} or {\"channel\": \"A\"|\"B\"}. "
+    "reading_recorded (reading or torque step): {\"text\"} | {\"result\": \"pass\"|"
+    "\"fail\"} | {\"value\", \"unit\"} plus, where the step asks, test_voltage / "
+    "ambient_temperature {\"value\", \"unit\"}, humidity {\"value\"}, usage "
+    "{engine_hours, starts, continuous_ignition_hours, continuous_ignition_estimated}; "
+    "torque adds wrench_id, calibration_due (YYYY-MM-DD) and adapter {wrench_length, "
+    "extension}. finding (after an out-of-limits reading): {\"text\", \"disposition\": "
+    "replaced|re-tested|deferred, \"reference\" (for deferred)}.")
 
 _REFUSAL = {
     "type": "object", "required": ["rule", "reason"],
@@ -64,10 +71,18 @@ _JOB = {
             "items": {"type": "array", "items": {"type": "string"},
                       "description": "check steps: what to confirm (data.items: indexes)"},
             "action": {"type": "string", "enum": ["apply", "release"]},
-            "breakers": {"type": "array", "items": {"type": "string"}}}}},
+            "breakers": {"type": "array", "items": {"type": "string"}},
+            "value": {"type": "string", "enum": ["number", "text", "pass_fail"]},
+            "unit": {"type": "string"}, "limits": {"type": ["object", "null"]},
+            "conditions": {"type": "array", "items": {"type": "string"}},
+            "wear": {"type": "boolean"}, "adapter": {"type": "boolean"}}}},
         "done": {"type": "array", "items": {"type": "string"}},
         "next_step": {"type": ["string", "null"]},
-        "readings": {"type": "array", "items": {"type": "object"}},
+        "readings": {"type": "array", "items": {"type": "object"},
+                     "description": "every reading attempt, as entered and converted, with "
+                                    "its verdict and any finding"},
+        "awaiting_finding": {"type": "array", "items": {"type": "string"},
+                             "description": "steps whose last reading is out of limits"},
         "ignition": {"type": "object", "description": "duty-cycle clock per channel",
                      "additionalProperties": {"type": "object", "properties": {
                          "on": {"type": "boolean"}, "on_for_s": {"type": "number"},

@@ -1,0 +1,277 @@
+"""Readings with units and limits: what was entered, what it is in the procedure's unit,
+and the verdict; torque with its wrench and adapter; insulation with its test conditions.
+
+The value is kept as entered (number and unit as the mechanic's tool showed them)
+and converted with pint; the verdict is against the procedure's limits, with a
+"near limit" band the procedure sets. Senseless input is refused with the field
+to fix, and nothing is stored.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass
+from datetime import date
+from typing import Any, Literal
+
+import pint
+
+from .errors import RuleRefusal
+from .procedures import Reading, Torque
+from .units import DIMENSIONS, UnitProblem, parse_unit, registry
+
+Verdict = Literal["within", "near limit", "out of limits"]
+VERDICT_SYMBOL = {"within": "✓", "near limit": "▲", "out of limits": "✗"}
+DISPOSITIONS = ("replaced", "re-tested", "deferred")
+
+# Units offered at the field, by dimension (pint spellings, and how they are shown).
+UNIT_CHOICES: dict[str, list[tuple[str, str]]] = {
+    "length": [("mm", "mm"), ("in", "in"), ("thou", "thou")],
+    "torque": [("N*m", "N·m"), ("lbf*in", "lbf·in"), ("lbf*ft", "lbf·ft"), ("kgf*cm", "kgf·cm")],
+    "resistance": [("mohm", "mΩ"), ("ohm", "Ω"), ("kohm", "kΩ"), ("Mohm", "MΩ"),
+                   ("Gohm", "GΩ")],
+    "current": [("mA", "mA"), ("A", "A")],
+    "voltage": [("V", "V"), ("kV", "kV")],
+    "temperature": [("degC", "°C"), ("degF", "°F")],
+    "dimensionless": [("percent", "%")],
+}
+
+# Beyond these a value is a slip of the finger, not a reading (SI units).
+PLAUSIBLE: dict[str, tuple[float, float]] = {
+    "length": (0.0, 0.5),                 # m: nothing on an igniter is half a metre
+    "torque": (0.0, 2000.0),              # N·m
+    "resistance": (0.0, 1e15),            # Ω
+    "current": (0.0, 1000.0),             # A
+    "voltage": (0.0, 100_000.0),          # V
+    "temperature": (-80.0, 200.0),        # °C, as ambient
+    "dimensionless": (0.0, 1.0),          # fraction
+}
+
+
+class InputProblem(ValueError):
+    """A value that cannot be a reading: the field to fix and what is wrong. Nothing is kept."""
+
+    def __init__(self, field: str, message: str) -> None:
+        super().__init__(message)
+        self.field = field
+        self.message = message
+
+
+def dimension_of(unit_text: str) -> str:
+    """The trade's name of a unit's dimension ("torque", "length", ...)."""
+    unit = parse_unit(unit_text)
+    for name in DIMENSIONS:
+        try:
+            parse_unit(unit_text, name)
+        except UnitProblem:
+            continue
+        return name
+    return str(unit.dimensionality)
+
+
+def _number(field: str, raw: Any) -> float:
+    if isinstance(raw, bool) or raw is None:
+        raise InputProblem(field, "Enter a number.")
+    if isinstance(raw, str):
+        text = raw.strip().replace(",", ".")
+        if not text:
+            raise InputProblem(field, "Enter a number.")
+        try:
+            value = float(text)
+        except ValueError:
+            raise InputProblem(field, f"'{raw}' is not a number.") from None
+    elif isinstance(raw, (int, float)):
+        value = float(raw)
+    else:
+        raise InputProblem(field, "Enter a number.")
+    if not math.isfinite(value):
+        raise InputProblem(field, f"'{raw}' is not a finite number.")
+    return value
+
+
+@dataclass(frozen=True)
+class Measured:
+    """A number with its unit, as entered and in the procedure's unit."""
+
+    value: float
+    unit: str
+    converted: float
+    procedure_unit: str
+
+    def as_data(self) -> dict[str, Any]:
+        return {"value": self.value, "unit": self.unit, "converted": self.converted,
+                "procedure_unit": self.procedure_unit}
+
+
+def measure(field: str, raw_value: Any, raw_unit: Any, procedure_unit: str,
+            dimension: str | None = None) -> Measured:
+    """Read a number and its unit, check the unit's dimension and the magnitude, convert."""
+    value = _number(field, raw_value)
+    if not isinstance(raw_unit, str) or not raw_unit.strip():
+        raise InputProblem(f"{field}_unit", "Choose the unit your tool shows.")
+    dimension = dimension or dimension_of(procedure_unit)
+    try:
+        unit = parse_unit(raw_unit, dimension)
+    except UnitProblem as problem:
+        raise InputProblem(f"{field}_unit", str(problem).capitalize() + ".") from None
+    quantity = registry().Quantity(value, unit)
+    low, high = PLAUSIBLE.get(dimension, (-math.inf, math.inf))
+    base = quantity.to("degC").magnitude if dimension == "temperature" else (
+        quantity.to_base_units().magnitude if dimension != "dimensionless"
+        else quantity.to("dimensionless").magnitude)
+    if not low <= base <= high:
+        raise InputProblem(field, f"{value:g} {raw_unit} is not a plausible {dimension} "
+                           "reading here: check the value and the unit.")
+    try:
+        converted = float(quantity.to(parse_unit(procedure_unit)).magnitude)
+    except pint.errors.DimensionalityError:  # pragma: no cover - dimension checked above
+        raise InputProblem(f"{field}_unit", "That unit cannot be converted.") from None
+    return Measured(value, raw_unit.strip(), converted, procedure_unit)
+
+
+@dataclass(frozen=True)
+class LimitVerdict:
+    verdict: Verdict
+    symbol: str
+    margin: float  # distance to the nearer limit, in the procedure's unit (negative: beyond)
+
+
+def verdict(value: float, low: float | None, high: float | None,
+            near_margin: float | None = None) -> LimitVerdict:
+    """Within, near the limit (inside the procedure's margin) or out of limits; exactly at a
+    limit is within it."""
+    margins = [m for m in ((value - low) if low is not None else None,
+                           (high - value) if high is not None else None) if m is not None]
+    margin = min(margins)
+    if margin < 0:
+        result: Verdict = "out of limits"
+    elif near_margin is not None and margin <= near_margin:
+        result = "near limit"
+    else:
+        result = "within"
+    return LimitVerdict(result, VERDICT_SYMBOL[result], margin)
+
+
+def adapter_setting(required: float, wrench_length: float, extension: float) -> float:
+    """The wrench setting for a required torque with an extension: T_set = T_req·L/(L+E)."""
+    if wrench_length <= 0 or extension < 0:
+        raise InputProblem("wrench_length", "The wrench length must be above zero and the "
+                           "extension zero or more.")
+    return required * wrench_length / (wrench_length + extension)
+
+
+def evaluate_reading(step: Reading, data: Mapping[str, Any]) -> dict[str, Any]:
+    """Check a reading's data and return what the station stores with it (the verdict too)."""
+    if step.value == "text":
+        text = data.get("text")
+        if not isinstance(text, str) or not text.strip():
+            raise InputProblem("text", "Write what you read.")
+        if len(text) > 500:
+            raise InputProblem("text", "Keep it under 500 characters.")
+        return {"text": text.strip(), "verdict": "recorded"}
+    if step.value == "pass_fail":
+        result = data.get("result")
+        if result not in ("pass", "fail"):
+            raise InputProblem("result", "Choose pass or fail.")
+        outcome: Verdict = "within" if result == "pass" else "out of limits"
+        return {"result": result, "verdict": outcome}
+    assert step.unit is not None and step.limits is not None  # the model requires them
+    measured = measure("value", data.get("value"), data.get("unit"), step.unit)
+    judged = verdict(measured.converted, step.limits.min, step.limits.max, step.near_margin)
+    stored: dict[str, Any] = {**measured.as_data(), "verdict": judged.verdict,
+                              "margin": judged.margin}
+    for condition in step.conditions:
+        stored[condition] = _condition(condition, data.get(condition))
+    if step.wear:
+        stored["usage"] = _usage(data.get("usage"))
+    return stored
+
+
+def _usage(raw: Any) -> dict[str, Any]:
+    """The plug's usage at the inspection: engine hours, starts, continuous-ignition hours."""
+    if not isinstance(raw, Mapping):
+        raise InputProblem("engine_hours", "Record the engine hours, starts and "
+                           "continuous-ignition hours with the wear reading.")
+    usage: dict[str, Any] = {}
+    for name, whole in (("engine_hours", False), ("starts", True),
+                        ("continuous_ignition_hours", False)):
+        value = _number(name, raw.get(name))
+        if value < 0 or value > 200_000:
+            raise InputProblem(name, f"{value:g} is not a plausible figure for "
+                               + name.replace("_", " ") + ".")
+        if whole and value != int(value):
+            raise InputProblem(name, "Starts are counted in whole numbers.")
+        usage[name] = int(value) if whole else value
+    usage["continuous_ignition_estimated"] = bool(raw.get("continuous_ignition_estimated"))
+    return usage
+
+
+_CONDITION_UNITS = {"test_voltage": ("V", "voltage"), "ambient_temperature": ("degC",
+                                                                              "temperature")}
+
+
+def _condition(name: str, raw: Any) -> dict[str, Any]:
+    if not isinstance(raw, Mapping):
+        raise InputProblem(name, "Record the " + name.replace("_", " ") + " with the reading.")
+    if name == "humidity":
+        value = _number(name, raw.get("value"))
+        if not 0 <= value <= 100:
+            raise InputProblem(name, "Relative humidity is between 0 and 100 %RH.")
+        return {"value": value, "unit": "%RH"}
+    unit, dimension = _CONDITION_UNITS[name]
+    return measure(name, raw.get("value"), raw.get("unit"), unit, dimension).as_data()
+
+
+def evaluate_torque(step: Torque, data: Mapping[str, Any], today: date) -> dict[str, Any]:
+    """Torque as applied (wrench setting corrected for an adapter), with its wrench."""
+    wrench = data.get("wrench_id")
+    if not isinstance(wrench, str) or not wrench.strip():
+        raise InputProblem("wrench_id", "Enter the torque wrench's ID.")
+    due_text = data.get("calibration_due")
+    try:
+        due = date.fromisoformat(str(due_text))
+    except ValueError:
+        raise InputProblem("calibration_due", "Enter the wrench's calibration due date "
+                           "(YYYY-MM-DD).") from None
+    if due < today:
+        raise RuleRefusal("wrench_out_of_calibration", f"Wrench {wrench.strip()} was due for "
+                          f"calibration on {due.isoformat()}: use a wrench in calibration.")
+    measured = measure("value", data.get("value"), data.get("unit"), step.unit, "torque")
+    applied = measured.converted
+    stored: dict[str, Any] = {**measured.as_data(), "wrench_id": wrench.strip(),
+                              "calibration_due": due.isoformat()}
+    adapter = data.get("adapter")
+    if adapter is not None:
+        if not step.adapter:
+            raise InputProblem("adapter", "This step's data gives no adapter.")
+        if not isinstance(adapter, Mapping):
+            raise InputProblem("adapter", "Give the wrench length and the adapter's extension.")
+        length = _number("wrench_length", adapter.get("wrench_length"))
+        extension = _number("extension", adapter.get("extension"))
+        setting_factor = adapter_setting(1.0, length, extension)
+        applied = measured.converted / setting_factor  # the wrench read low by L/(L+E)
+        stored["adapter"] = {"wrench_length": length, "extension": extension,
+                             "applied": applied}
+    judged = verdict(applied, step.limits.min, step.limits.max, None)
+    stored.update(verdict=judged.verdict, margin=judged.margin, applied=applied)
+    return stored
+
+
+def evaluate_finding(data: Mapping[str, Any]) -> dict[str, Any]:
+    """A finding on an out-of-limits reading, with its disposition."""
+    text = data.get("text")
+    if not isinstance(text, str) or not text.strip():
+        raise InputProblem("text", "Describe what was found.")
+    disposition = data.get("disposition")
+    if disposition not in DISPOSITIONS:
+        raise InputProblem("disposition", "Choose what was done: " + ", ".join(DISPOSITIONS)
+                           + ".")
+    stored = {"text": text.strip(), "disposition": disposition}
+    if disposition == "deferred":
+        reference = data.get("reference")
+        if not isinstance(reference, str) or not reference.strip():
+            raise InputProblem("reference", "A deferral needs its reference (the deferred "
+                               "defect or work order number).")
+        stored["reference"] = reference.strip()
+    return stored
