@@ -203,8 +203,9 @@ def forecast(points: Sequence[WearPoint], limit_mm: float, usage_now: float,
     reading. "replace now" if the conservative remaining ≤ 0, if even the central
     remaining falls short of `next_inspection_in` (the plug is out now: change it at
     this visit), or if a go/no-go gauge failed; "bring inspection forward" if only the
-    conservative remaining falls short; otherwise "OK to next inspection". Without a trend of its own the plug falls
-    back to the fleet's `pooled_rate`, started from its latest gauged reading.
+    conservative remaining falls short; otherwise "OK to next inspection". Without a
+    trend of its own the plug falls back to the fleet's `pooled_rate`, started from its
+    latest gauged reading.
     """
     limit_mm = _above_zero("limit_invalid", "The erosion limit", limit_mm)
     usage_now = _at_least_zero("usage_invalid", "The usage now", usage_now)
