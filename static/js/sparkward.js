@@ -92,6 +92,48 @@
   document.addEventListener("input", updateConversions);
   document.addEventListener("change", updateConversions);
 
+  // Tap counting: the time of each tap, in seconds from the first, goes with the form; the
+  // station works out the rate (60 / median interval) and flags double and missed taps.
+  var taps = [];
+  function showTaps(box) {
+    box.querySelector("[data-tap-count]").textContent = taps.length;
+    var field = box.querySelector("[data-taps]");
+    var first = taps.length ? taps[0] : 0;
+    field.value = JSON.stringify(taps.map(function (t) { return (t - first) / 1000; }));
+    var out = box.querySelector("[data-tap-rate]");
+    if (taps.length < 3) { out.textContent = "—"; return; }
+    var gaps = [];
+    for (var i = 1; i < taps.length; i++) gaps.push(taps[i] - taps[i - 1]);
+    gaps.sort(function (a, b) { return a - b; });
+    var mid = gaps.length >> 1;
+    var median = gaps.length % 2 ? gaps[mid] : (gaps[mid - 1] + gaps[mid]) / 2;
+    out.textContent = Math.round(60000 / median);
+  }
+  document.addEventListener("pointerdown", function (event) {
+    var button = event.target.closest("[data-tap]");
+    if (!button) return;
+    event.preventDefault();
+    taps.push(performance.now());
+    showTaps(button.closest("[data-tapper]"));
+  });
+  document.addEventListener("click", function (event) {
+    var reset = event.target.closest("[data-tap-reset]");
+    if (reset) { taps = []; showTaps(reset.closest("[data-tapper]")); }
+    var start = event.target.closest("[data-window-start]");
+    if (start) {
+      var box = start.closest("[data-timed-window]");
+      var length = Number(box.querySelector("[data-window]").value);
+      var began = Date.now();
+      var left = box.querySelector("[data-window-left]");
+      var timer = setInterval(function () {
+        var remaining = length - (Date.now() - began) / 1000;
+        left.textContent = remaining > 0 ? mmss(remaining) : "Stop counting";
+        if (remaining <= 0) clearInterval(timer);
+      }, 200);
+    }
+  });
+  document.addEventListener("htmx:afterSwap", function () { taps = []; });
+
   // Each swapped fragment restarts the count from the figures the station just sent.
   document.addEventListener("htmx:afterSwap", function () { pageStart = Date.now(); tick(); });
   setInterval(tick, 1000);

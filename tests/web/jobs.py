@@ -65,6 +65,13 @@ class Job:
                 self.ok(_event(step["id"]))
             elif step["kind"] in ("reading", "torque"):
                 self.ok(_event(step["id"], "reading_recorded", **good_reading(step)))
+            elif step["kind"] == "ignition_run":
+                self.clock.advance(1500)  # past any duty-cycle off period (23 min at most)
+                self.ok(_event(step["id"], "energised"))
+            elif step["kind"] == "spark_count":
+                count = 70 if step["id"].endswith("both") else 36  # demo check counts
+                self.ok(_event(step["id"], "sparks_counted", method="timed", count=count,
+                               window_s=30))
             else:
                 self.ok(_event(step["id"], items=list(range(len(step.get("items", []))))))
         raise AssertionError(f"{step_id} is not a step of this job")

@@ -25,6 +25,7 @@ from .procedures import (
     Lockout,
     Procedure,
     Reading,
+    SparkCount,
     Step,
     Torque,
     advisories_for,
@@ -33,7 +34,7 @@ from .procedures import (
 # Events a client may send, and the one the station writes itself when a job opens.
 CLIENT_EVENT_KINDS = ("acknowledged", "step_done", "breaker_tagged", "tag_taken_over",
                       "tag_removed", "input_reconnected", "energised", "de_energised",
-                      "reading_recorded", "finding")
+                      "reading_recorded", "finding", "sparks_counted")
 STATION_EVENT_KINDS = ("job_opened",)
 EVENT_KINDS = STATION_EVENT_KINDS + CLIENT_EVENT_KINDS
 
@@ -50,10 +51,11 @@ COMPLETING_EVENT = {
     "ignition_run": "energised",
     "reading": "reading_recorded",   # unless out of limits: then a finding completes it
     "torque": "reading_recorded",
+    "spark_count": "sparks_counted",
 }
 # Events that happen within the current step without completing it.
 IN_STEP_EVENTS = {"breaker_tagged": "lockout", "tag_removed": "lockout",
-                  "finding": ("reading", "torque")}
+                  "finding": ("reading", "torque", "spark_count")}
 # Events allowed whatever step the job is at. De-energising is never held back.
 ANYTIME_EVENTS = ("tag_taken_over", "input_reconnected", "de_energised")
 
@@ -147,6 +149,14 @@ class JobState:
     def advisories_for(self, step_id: str) -> list[Advisory]:
         return advisories_for(list(self.applicable), step_id)
 
+    def single_channel_rates(self) -> dict[str, tuple[float, float]]:
+        """The latest spark rate (and its resolution) counted on channel A and on B alone."""
+        rates: dict[str, tuple[float, float]] = {}
+        for r in self.readings:
+            if r["kind"] == "spark_count" and r.get("channel") in ("A", "B"):
+                rates[r["channel"]] = (r["rate"], r.get("resolution", 0.0))
+        return rates
+
     def open_gate_steps(self) -> list[str]:
         """The pre-energising confirmations not yet done ("step n (id)")."""
         return [f"step {i + 1} ({step.id})" for i, step in enumerate(self.applicable)
@@ -224,7 +234,7 @@ def apply_event(state: JobState, event: Mapping[str, Any]) -> JobState:
     if kind == "de_energised":
         return replace(state, clocks=_switched_off(state.clocks, event,
                                                    event["data"].get("channel")))
-    if kind == "reading_recorded" and step is not None:
+    if kind in ("reading_recorded", "sparks_counted") and step is not None:
         return _with_reading(state, step, event)
     if kind == "finding" and step is not None:
         return _with_finding(state, step, event)
@@ -389,12 +399,14 @@ def _check_in_step(state: JobState, step: Step, kind: str, data: Mapping[str, An
 def _check_completion(state: JobState, target: StepProgress, data: Mapping[str, Any],
                       at: Circumstances) -> Mapping[str, Any]:
     step = target.step
-    if isinstance(step, (Reading, Torque)):
+    if isinstance(step, (Reading, Torque, SparkCount)):
         if step.id in state.awaiting_finding:
             raise RuleRefusal("finding_required", "The last reading was out of limits: record "
                               "the finding and what was done before anything else.")
         if isinstance(step, Torque):
             return readings.evaluate_torque(step, data, at.now.date())
+        if isinstance(step, SparkCount):
+            return readings.evaluate_spark_count(step, data, state.single_channel_rates())
         stored = readings.evaluate_reading(step, data)
         if isinstance(step, Reading) and step.wear:
             stored["plug"] = _plug_at_work(state)

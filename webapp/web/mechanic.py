@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 import uuid
 from datetime import datetime
 from typing import Any
@@ -96,10 +97,27 @@ def _event_data(kind: str, form: Any) -> dict[str, Any]:
         return {"channel": form["channel"]}
     if kind == "reading_recorded":
         return _reading_data(form)
+    if kind == "sparks_counted":
+        return _count_data(form)
     if kind == "finding":
         return {k: form.get(k, "") for k in ("text", "disposition", "reference")
                 if k in form}
     return {}
+
+
+def _count_data(form: Any) -> dict[str, Any]:
+    """Taps arrive as a JSON list of seconds; a timed count as its number and window."""
+    if form.get("method") == "taps":
+        try:
+            taps = json.loads(form.get("taps", "[]"))
+        except ValueError:
+            taps = None
+        return {"method": "taps", "taps": taps}
+    try:
+        window: Any = float(form.get("window_s", ""))
+    except ValueError:
+        window = form.get("window_s")
+    return {"method": form.get("method"), "count": form.get("count", ""), "window_s": window}
 
 
 def _reading_data(form: Any) -> dict[str, Any]:
