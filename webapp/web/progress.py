@@ -17,6 +17,7 @@ from jinja2.filters import do_truncate
 from markupsafe import Markup, escape
 
 from ..domain.execution import JobState
+from .reading_views import reading_summary
 
 _MARKS = {"done": ("✓", "Done:"), "next": ("▶", "Now:"), "waiting": ("○", "To do:")}
 
@@ -35,7 +36,9 @@ def progress_list(revision_hash: str, state: JobState, names: Mapping[int, str],
         if s.event is not None:
             who = shown_names.get(s.event["person_id"], "?")
             at = escape(when(s.event["received_at"]))
-            meta = f'<span class="meta">{who} · {at}</span>'
+            said_value = reading_summary(s.event.get("data") or {})
+            value = f" · {escape(said_value)}" if said_value else ""
+            meta = f'<span class="meta">{who} · {at}{value}</span>'
         rows.append(
             f'<li class="s-{s.status}" data-testid="progress-{step_id}" '
             f'data-status="{s.status}"><span class="mark" aria-hidden="true">{mark}</span>'

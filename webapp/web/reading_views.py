@@ -9,7 +9,6 @@ import json
 from functools import lru_cache
 
 from flask import Flask
-from markupsafe import Markup
 
 from ..domain.procedures import Reading, Torque
 from ..domain.readings import UNIT_CHOICES, VERDICT_SYMBOL, dimension_of
@@ -34,13 +33,13 @@ def unit_choices(procedure_unit: str) -> list[tuple[str, str]]:
 
 
 @lru_cache(maxsize=64)
-def conversion_table(procedure_unit: str) -> Markup:
-    """{unit: factor to the procedure's unit} as JSON, for the page's live conversion."""
+def conversion_table(procedure_unit: str) -> str:
+    """{unit: factor to the procedure's unit} as JSON (escaped into the attribute by Jinja)."""
     target = parse_unit(procedure_unit)
     factors = {code: registry().Quantity(1.0, parse_unit(code)).to(target).magnitude
                for code, _ in unit_choices(procedure_unit)
                if dimension_of(procedure_unit) != "temperature"}
-    return Markup(json.dumps(factors))
+    return json.dumps(factors)
 
 
 def limits_text(step: Reading | Torque) -> str:
@@ -82,3 +81,28 @@ def register(app: Flask) -> None:
                                  limits_text=limits_text, si_text=si_text, si_factor=si_factor,
                                  conversion_table=conversion_table,
                                  verdict_symbol=lambda v: VERDICT_SYMBOL.get(v, ""))
+
+
+def reading_summary(data: dict) -> str:
+    """One line for a recorded reading: the value as entered, converted, and the verdict."""
+    verdict = data.get("verdict")
+    if verdict is None:
+        return ""
+    if "rate" in data:
+        shown = f"{data['rate']:.0f} per minute"
+    elif "value" in data and "unit" in data:
+        shown = f"{data['value']:g} {unit_label(data['unit'])}"
+        if data["unit"] != data.get("procedure_unit"):
+            shown += f" = {data['converted']:.4g} {unit_label(data['procedure_unit'])}"
+        si = si_text(data["converted"], data["procedure_unit"])
+        if si:
+            shown += f" ({si})"
+    elif "result" in data:
+        shown = data["result"]
+    elif "disposition" in data:
+        return f"finding: {data['disposition']}"
+    else:
+        return data.get("text", "")
+    if verdict == "recorded":
+        return shown
+    return f"{shown} {VERDICT_SYMBOL.get(verdict, '')} {verdict}"

@@ -1,0 +1,99 @@
+"""Readings in real Chromium: tap-counting a channel, and a torque in lbf·in shown in N·m."""
+
+from __future__ import annotations
+
+from datetime import UTC, datetime, timedelta
+from pathlib import Path
+
+from playwright.sync_api import expect
+
+from .conftest import log_in
+
+ARTIFACTS = Path(__file__).resolve().parents[1] / "artifacts"
+
+
+def _tick_all(page, count):
+    for index in range(count):
+        page.check(f"[data-testid=item-{index}]")
+
+
+def test_tap_count_channel_a_gives_rate_and_verdict(browser, live_server):
+    context = browser.new_context(viewport={"width": 1024, "height": 768}, has_touch=True)
+    page = context.new_page()
+    start = datetime.now(UTC)
+    page.clock.install(time=start)
+    page.clock.pause_at(start + timedelta(seconds=1))
+    log_in(page, live_server, "mech1", "demo-mech1")
+    page.click("[data-testid=engine-QT6-10233]")   # DEMO-102: transistorised exciters
+    page.click("[data-testid=open-ignition-functional-check-all]")
+    step = page.get_by_test_id("step")
+    page.click("[data-testid=done]")
+    _tick_all(page, 3)
+    page.click("[data-testid=done]")
+    page.click("[data-testid=acknowledge]")
+    page.click("[data-testid=done]")                 # no tags hang: all tags off
+    for _ in range(3):
+        page.click("[data-testid=acknowledge]")
+    _tick_all(page, 8)
+    page.click("[data-testid=done]")
+    page.click("[data-testid=acknowledge]")
+    page.click("[data-testid=energise]")
+    page.click("[data-testid=continue]")
+    expect(step).to_have_attribute("data-step-kind", "spark_count")
+
+    # Twelve snaps 0.75 s apart (80 per minute), timed by the page's controlled clock.
+    for index in range(12):
+        if index:
+            page.clock.run_for(750)
+        page.get_by_test_id("tap").dispatch_event("pointerdown")
+    expect(page.get_by_test_id("tap-count")).to_have_text("12")
+    expect(page.get_by_test_id("tap-rate")).to_have_text("80")
+    page.click("[data-testid=use-taps]")
+    expect(step).to_have_attribute("data-step-id", "cross-connection-a")
+    done = page.get_by_test_id("progress-count-a")
+    expect(done).to_contain_text("80 per minute")
+    expect(done).to_contain_text("✓ within")
+    page.screenshot(path=str(ARTIFACTS / "spark-count-done.png"), full_page=True)
+    context.close()
+
+
+def test_torque_in_lbf_in_shows_n_m(browser, live_server):
+    context = browser.new_context(viewport={"width": 768, "height": 1024})
+    page = context.new_page()
+    log_in(page, live_server, "mech2", "demo-mech2")
+    page.click("[data-testid=engine-QT6-10231]")
+    page.click("[data-testid=open-exciter-installation-A]")
+    step = page.get_by_test_id("step")
+    page.click("[data-testid=done]")
+    page.click("[data-testid=acknowledge]")
+    for breaker, tag in (("IGN-A", "T-9001"), ("IGN-B", "T-9002")):
+        page.fill(f"[data-testid=tag-number-{breaker}]", tag)
+        page.click(f"[data-testid=tag-{breaker}]")
+    page.click("[data-testid=done]")
+    for text in ("XEX-1001-03", "XE-9911", "REL-2026-0442"):
+        page.fill("[data-testid=reading-text]", text)
+        page.click("[data-testid=record-reading]")
+    page.click("[data-testid=acknowledge]")
+    page.click("[data-testid=done]")
+    page.click("[data-testid=acknowledge]")
+    page.click("[data-testid=done]")
+    expect(step).to_have_attribute("data-step-kind", "torque")
+
+    page.fill("[data-testid=reading-value]", "37")
+    # NIST SP 811 B.9: 37 lbf·in × 0.1129848 = 4.180 N·m
+    expect(page.get_by_test_id("converted")).to_contain_text("4.18 N·m")
+    page.fill("[data-testid=wrench-id]", "TW-017")
+    page.fill("[data-testid=calibration-due]", "2099-01-31")
+    page.click("[data-testid=record-reading]")
+    expect(step).to_have_attribute("data-step-id", "bonding-resistance")
+    recorded = page.get_by_test_id("progress-mounting-torque")
+    expect(recorded).to_contain_text("37 lbf·in")
+    expect(recorded).to_contain_text("4.18 N·m")
+    expect(recorded).to_contain_text("✓ within")
+
+    # A senseless value is answered at the field, the typed text kept, nothing stored.
+    page.fill("[data-testid=reading-value]", "lots")
+    page.click("[data-testid=record-reading]")
+    expect(page.get_by_test_id("field-error-value")).to_contain_text("not a number")
+    expect(page.get_by_test_id("reading-value")).to_have_value("lots")
+    context.close()
