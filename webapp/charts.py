@@ -34,8 +34,9 @@ def _axis_top(largest: float) -> tuple[float, float]:
     return math.ceil(largest / step - 1e-9) * step, step
 
 
-def _num(value: float) -> str:
-    return f"{value:.2f}".rstrip("0").rstrip(".") if value != int(value) else f"{value:.0f}"
+def _tick(value: float, step: float) -> str:
+    """A tick label with as many decimals as the step needs (0.2 mm steps: 1.0, 1.2)."""
+    return f"{value:.{max(0, -math.floor(math.log10(step) + 1e-9))}f}"
 
 
 def _text(x: float, y: float, text: str, anchor: str = "start", size: int = 13,
@@ -109,12 +110,12 @@ def wear_chart_svg(points: Sequence[WearPoint], limit_mm: float, fit: WearFit | 
            _text(16, 20, title, size=15, weight="bold")]
     for i in range(round(y_top / y_step) + 1):
         mm = i * y_step
-        out += [_line(LEFT - 5, sy(mm), LEFT, sy(mm)), _text(LEFT - 8, sy(mm) + 4, _num(mm),
-                                                                  "end")]
+        out += [_line(LEFT - 5, sy(mm), LEFT, sy(mm)),
+                _text(LEFT - 8, sy(mm) + 4, _tick(mm, y_step), "end")]
     for i in range(round(x_top / x_step) + 1):
         usage = i * x_step
         out += [_line(sx(usage), BOTTOM, sx(usage), BOTTOM + 5),
-                _text(sx(usage), BOTTOM + 19, _num(usage), "middle")]
+                _text(sx(usage), BOTTOM + 19, _tick(usage, x_step), "middle")]
     out += [_line(LEFT, TOP, LEFT, BOTTOM, width=2), _line(LEFT, BOTTOM, RIGHT, BOTTOM, width=2),
             _text((LEFT + RIGHT) / 2, BOTTOM + 38, f"usage since fitted ({usage_label})",
                   "middle"),
@@ -124,7 +125,7 @@ def wear_chart_svg(points: Sequence[WearPoint], limit_mm: float, fit: WearFit | 
             _line(LEFT, sy(limit_mm), RIGHT, sy(limit_mm), LIMIT, 2.5, "8 5", "limit"),
             _text(RIGHT - 4, sy(limit_mm) - 6, f"limit {limit_mm:.2f} mm", "end",
                   weight="bold", fill=LIMIT)]
-    legend = [("point", "gauged")]
+    legend = [("point", "gauged")] if any(not p.estimated for p in gauged) else []
     if fit is not None and fit.wear_at(0) is not None and gauged:
         first, end = gauged[0].usage, gauged[-1].usage
         out.append(_line(sx(first), sy(fit.wear_at(first) or 0), sx(end),
@@ -144,7 +145,7 @@ def wear_chart_svg(points: Sequence[WearPoint], limit_mm: float, fit: WearFit | 
                 _text(sx(p.usage), sy(limit_mm) + 20, "pass" if p.passed else "fail",
                       "middle", size=12, weight="bold")]
     if any(p.estimated for p in points):
-        legend.append(("estimated", "usage estimated"))
+        legend.append(("estimated", "gauged, usage estimated"))
     out.append(_legend(legend))
     out.append("</svg>")
     return "\n".join(out)
