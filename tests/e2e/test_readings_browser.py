@@ -8,6 +8,7 @@ from pathlib import Path
 from playwright.sync_api import expect
 
 from .conftest import log_in
+from .test_tablet_grade import _audit
 
 ARTIFACTS = Path(__file__).resolve().parents[1] / "artifacts"
 
@@ -40,6 +41,7 @@ def test_tap_count_channel_a_gives_rate_and_verdict(browser, live_server):
     page.click("[data-testid=energise]")
     page.click("[data-testid=continue]")
     expect(step).to_have_attribute("data-step-kind", "spark_count")
+    _audit(page, "spark count")
 
     # Twelve snaps 0.75 s apart (80 per minute), timed by the page's controlled clock.
     for index in range(12):
@@ -58,7 +60,7 @@ def test_tap_count_channel_a_gives_rate_and_verdict(browser, live_server):
 
 
 def test_torque_in_lbf_in_shows_n_m(browser, live_server):
-    context = browser.new_context(viewport={"width": 768, "height": 1024})
+    context = browser.new_context(viewport={"width": 360, "height": 740}, has_touch=True)
     page = context.new_page()
     log_in(page, live_server, "mech2", "demo-mech2")
     page.click("[data-testid=engine-QT6-10231]")
@@ -78,6 +80,7 @@ def test_torque_in_lbf_in_shows_n_m(browser, live_server):
     page.click("[data-testid=acknowledge]")
     page.click("[data-testid=done]")
     expect(step).to_have_attribute("data-step-kind", "torque")
+    _audit(page, "torque on a phone")
 
     page.fill("[data-testid=reading-value]", "37")
     # NIST SP 811 B.9: 37 lbf·in × 0.1129848 = 4.180 N·m
