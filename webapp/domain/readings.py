@@ -142,6 +142,8 @@ def verdict(value: float, low: float | None, high: float | None,
             near_margin: float | None = None) -> LimitVerdict:
     """Within, near the limit (inside the procedure's margin) or out of limits; exactly at a
     limit is within it."""
+    if not math.isfinite(value):
+        raise InputProblem("value", "A reading must be a finite number.")
     margins = [m for m in ((value - low) if low is not None else None,
                            (high - value) if high is not None else None) if m is not None]
     margin = min(margins)
@@ -156,9 +158,10 @@ def verdict(value: float, low: float | None, high: float | None,
 
 def adapter_setting(required: float, wrench_length: float, extension: float) -> float:
     """The wrench setting for a required torque with an extension: T_set = T_req·L/(L+E)."""
-    if wrench_length <= 0 or extension < 0:
-        raise InputProblem("wrench_length", "The wrench length must be above zero and the "
-                           "extension zero or more.")
+    if wrench_length <= 0:
+        raise InputProblem("wrench_length", "The wrench length must be above zero.")
+    if extension < 0:
+        raise InputProblem("extension", "The adapter's extension is zero or more.")
     return required * wrench_length / (wrench_length + extension)
 
 

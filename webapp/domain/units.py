@@ -56,9 +56,10 @@ def parse_unit(text: str, dimension: str | None = None) -> pint.Unit:
         raise UnitProblem("a unit is needed here (for example mm, N*m, MΩ)")
     try:
         unit = registry().parse_units(text.strip())
-    except (pint.errors.UndefinedUnitError, pint.errors.DefinitionSyntaxError,
-            AttributeError, TypeError, ValueError, SyntaxError):
+    except Exception:  # pint's parser raises many kinds on malformed text: all mean "not a unit"
         raise UnitProblem(f"'{text}' is not a unit this station knows") from None
+    if not isinstance(unit, pint.Unit):
+        raise UnitProblem(f"'{text}' is not a unit this station knows")
     if dimension is not None:
         if unit.dimensionality != _dimensionality(dimension):
             got = _dimension_name(unit)
