@@ -1,6 +1,6 @@
 """Wear charts as self-contained SVG, drawn on the station for pages and PDF records alike.
 
-Layout (pixels): a 600 × 340 canvas, the plot area from x 64 to 584 and from y 44 to 268
+Layout (pixels): a 620 × 340 canvas, the plot area from x 64 to 584 and from y 44 to 268
 (224 high). The erosion axis starts at 0 mm and ends at the first tick at or above 1.15 ×
 the larger of the limit and the largest gauged erosion; the usage axis starts at 0 and
 ends past the last inspection (and past the trend's crossing of the limit when it comes
@@ -16,7 +16,7 @@ from html import escape
 
 from .domain.wear import WearFit, WearForecast, WearPoint
 
-WIDTH, HEIGHT = 600, 340
+WIDTH, HEIGHT = 620, 340
 LEFT, RIGHT, TOP, BOTTOM = 64, 584, 44, 268
 INK, LIMIT, TREND, PAPER = "#111111", "#8a0000", "#0b3d91", "#ffffff"
 
@@ -39,7 +39,7 @@ def _tick(value: float, step: float) -> str:
     return f"{value:.{max(0, -math.floor(math.log10(step) + 1e-9))}f}"
 
 
-def _text(x: float, y: float, text: str, anchor: str = "start", size: int = 13,
+def _text(x: float, y: float, text: str, anchor: str = "start", size: int = 14,
           weight: str = "normal", fill: str = INK) -> str:
     return (f'<text x="{x:.1f}" y="{y:.1f}" text-anchor="{anchor}" font-size="{size}" '
             f'font-weight="{weight}" fill="{fill}">{escape(text)}</text>')
@@ -107,7 +107,7 @@ def wear_chart_svg(points: Sequence[WearPoint], limit_mm: float, fit: WearFit | 
            f'<title id="{ident}-t">{escape(title)}</title>',
            f'<desc id="{ident}-d">{escape(" ".join(desc))}</desc>',
            f'<rect x="0" y="0" width="{WIDTH}" height="{HEIGHT}" fill="{PAPER}"/>',
-           _text(16, 20, title, size=15, weight="bold")]
+           _text(16, 20, title, size=16, weight="bold")]
     for i in range(round(y_top / y_step) + 1):
         mm = i * y_step
         out += [_line(LEFT - 5, sy(mm), LEFT, sy(mm)),
@@ -119,7 +119,7 @@ def wear_chart_svg(points: Sequence[WearPoint], limit_mm: float, fit: WearFit | 
     out += [_line(LEFT, TOP, LEFT, BOTTOM, width=2), _line(LEFT, BOTTOM, RIGHT, BOTTOM, width=2),
             _text((LEFT + RIGHT) / 2, BOTTOM + 38, f"usage since fitted ({usage_label})",
                   "middle"),
-            f'<text x="16" y="{(TOP + BOTTOM) / 2:.1f}" font-size="13" fill="{INK}" '
+            f'<text x="16" y="{(TOP + BOTTOM) / 2:.1f}" font-size="14" fill="{INK}" '
             f'text-anchor="middle" transform="rotate(-90 16 {(TOP + BOTTOM) / 2:.1f})">'
             f'erosion (mm)</text>',
             _line(LEFT, sy(limit_mm), RIGHT, sy(limit_mm), LIMIT, 2.5, "8 5", "limit"),
@@ -139,11 +139,11 @@ def wear_chart_svg(points: Sequence[WearPoint], limit_mm: float, fit: WearFit | 
     for p in gauged:
         out += [_marker(sx(p.usage), sy(float(p.erosion_mm or 0)), p.estimated),
                 _text(sx(p.usage), sy(float(p.erosion_mm or 0)) - 10, f"{p.erosion_mm:.2f}",
-                      "middle", size=12, weight="bold")]
+                      "middle", size=13, weight="bold")]
     for p in go_no_go:
         out += [_marker(sx(p.usage), sy(limit_mm), p.estimated, "go-no-go"),
                 _text(sx(p.usage), sy(limit_mm) + 20, "pass" if p.passed else "fail",
-                      "middle", size=12, weight="bold")]
+                      "middle", size=13, weight="bold")]
     if any(p.estimated for p in points):
         legend.append(("estimated", "gauged, usage estimated"))
     out.append(_legend(legend))

@@ -9,7 +9,8 @@ from webapp.store.people import ROLES
 USERS = {"mechanic": "mech1", "supervisor": "super", "trainer": "trainer", "admin": "admin"}
 
 # A real URL for each GET route with arguments (job 1 is opened by the fixture below).
-SAMPLE_ARGS = {"engine_id": 1, "job_id": 1, "procedure_id": "exciter-removal"}
+SAMPLE_ARGS = {"engine_id": 1, "job_id": 1, "procedure_id": "exciter-removal",
+               "component_id": 3}  # 3: the DEMO-101 engine 1 channel A plug
 
 
 def _routes(app):
