@@ -100,3 +100,21 @@ def test_torque_in_lbf_in_shows_n_m(browser, live_server):
     expect(page.get_by_test_id("field-error-value")).to_contain_text("not a number")
     expect(page.get_by_test_id("reading-value")).to_have_value("lots")
     context.close()
+
+
+def test_fleet_wear_page_flags_the_fast_plug_with_its_chart(browser, live_server):
+    context = browser.new_context(viewport={"width": 1024, "height": 768})
+    page = context.new_page()
+    log_in(page, live_server, "mech1", "demo-mech1")
+    page.click("text=Fleet wear")
+    attention = page.locator("[data-testid^=attention-XP-]").first
+    # Demo data (invented): DEMO-101 engine 1 channel B wore 0.22 → 1.02 mm in 580 FH.
+    expect(attention).to_contain_text("DEMO-101")
+    expect(attention).to_contain_text("replace now")
+    chart = attention.locator("svg")
+    expect(chart).to_be_visible()
+    expect(chart.locator("title").first).not_to_be_empty()
+    assert chart.locator("circle, path, rect").count() >= 4
+    _audit(page, "fleet wear")
+    page.screenshot(path=str(ARTIFACTS / "fleet-wear.png"), full_page=True)
+    context.close()
