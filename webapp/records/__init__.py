@@ -1,0 +1,1 @@
+"""Work records: the PDF, the station's certificate authority, signing and verification."""
