@@ -141,6 +141,8 @@
   document.addEventListener("DOMContentLoaded", function () {
     tick();
     if (!window.htmx) return;
+    // No settle animation: the new step is there as soon as the station answers.
+    window.htmx.config.defaultSettleDelay = 0;
     // A refusal (409) or a bad entry (422) comes back as a fragment that says why: show it.
     window.htmx.config.responseHandling = [
       { code: "204", swap: false },

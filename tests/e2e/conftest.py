@@ -36,3 +36,11 @@ def log_in(page, base_url: str, username: str, password: str) -> None:
     page.fill("#password", password)
     page.click("[data-testid=login]")
     page.wait_for_url(f"{base_url}/fleet")
+
+
+def tap(page, selector: str) -> None:
+    """Click a control that htmx sends, then wait until the station's answer is swapped in
+    (acting on the old screen while a swap is on its way loses what was typed)."""
+    page.click(selector)
+    page.wait_for_function(
+        "() => !document.querySelector('.htmx-request, .htmx-swapping')")

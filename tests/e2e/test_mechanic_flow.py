@@ -7,7 +7,7 @@ from pathlib import Path
 import pytest
 from playwright.sync_api import expect
 
-from .conftest import log_in
+from .conftest import log_in, tap
 
 ARTIFACTS = Path(__file__).resolve().parents[1] / "artifacts"
 
@@ -32,19 +32,19 @@ def test_walk_steps_reload_and_resume_on_another_device(browser, playwright, liv
 
     job_url = page.url
     assert page.evaluate("window.htmx.version") == "2.0.11"
-    page.click("[data-testid=done]")
+    tap(page, "[data-testid=done]")
     expect(step).to_have_attribute("data-step-id", "selectors-off")
     assert page.url == job_url  # htmx swapped the step in place
     # The Done button does nothing until every item is ticked (the station would refuse too).
-    page.click("[data-testid=done]")
+    tap(page, "[data-testid=done]")
     expect(step).to_have_attribute("data-step-id", "selectors-off")
     for index in range(3):
         page.check(f"[data-testid=item-{index}]")
-    page.click("[data-testid=done]")
+    tap(page, "[data-testid=done]")
 
     expect(step).to_have_attribute("data-step-kind", "warning")
     expect(step).to_contain_text("WARNING")
-    page.click("[data-testid=acknowledge]")
+    tap(page, "[data-testid=acknowledge]")
     expect(step).to_have_attribute("data-step-id", "breakers")
     expect(page.get_by_test_id("reminders")).to_contain_text("lethal charge")
     expect(page.get_by_test_id("tag-number-IGN-A")).to_be_visible()

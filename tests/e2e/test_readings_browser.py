@@ -7,7 +7,7 @@ from pathlib import Path
 
 from playwright.sync_api import expect
 
-from .conftest import log_in
+from .conftest import log_in, tap
 from .test_tablet_grade import _audit
 
 ARTIFACTS = Path(__file__).resolve().parents[1] / "artifacts"
@@ -28,18 +28,18 @@ def test_tap_count_channel_a_gives_rate_and_verdict(browser, live_server):
     page.click("[data-testid=engine-QT6-10233]")   # DEMO-102: transistorised exciters
     page.click("[data-testid=open-ignition-functional-check-all]")
     step = page.get_by_test_id("step")
-    page.click("[data-testid=done]")
+    tap(page, "[data-testid=done]")
     _tick_all(page, 3)
-    page.click("[data-testid=done]")
-    page.click("[data-testid=acknowledge]")
-    page.click("[data-testid=done]")                 # no tags hang: all tags off
+    tap(page, "[data-testid=done]")
+    tap(page, "[data-testid=acknowledge]")
+    tap(page, "[data-testid=done]")                 # no tags hang: all tags off
     for _ in range(3):
-        page.click("[data-testid=acknowledge]")
+        tap(page, "[data-testid=acknowledge]")
     _tick_all(page, 8)
-    page.click("[data-testid=done]")
-    page.click("[data-testid=acknowledge]")
-    page.click("[data-testid=energise]")
-    page.click("[data-testid=continue]")
+    tap(page, "[data-testid=done]")
+    tap(page, "[data-testid=acknowledge]")
+    tap(page, "[data-testid=energise]")
+    tap(page, "[data-testid=continue]")
     expect(step).to_have_attribute("data-step-kind", "spark_count")
     _audit(page, "spark count")
 
@@ -50,7 +50,7 @@ def test_tap_count_channel_a_gives_rate_and_verdict(browser, live_server):
         page.get_by_test_id("tap").dispatch_event("pointerdown")
     expect(page.get_by_test_id("tap-count")).to_have_text("12")
     expect(page.get_by_test_id("tap-rate")).to_have_text("80")
-    page.click("[data-testid=use-taps]")
+    tap(page, "[data-testid=use-taps]")
     expect(step).to_have_attribute("data-step-id", "cross-connection-a")
     done = page.get_by_test_id("progress-count-a")
     expect(done).to_contain_text("80 per minute")
@@ -66,19 +66,19 @@ def test_torque_in_lbf_in_shows_n_m(browser, live_server):
     page.click("[data-testid=engine-QT6-10231]")
     page.click("[data-testid=open-exciter-installation-A]")
     step = page.get_by_test_id("step")
-    page.click("[data-testid=done]")
-    page.click("[data-testid=acknowledge]")
+    tap(page, "[data-testid=done]")
+    tap(page, "[data-testid=acknowledge]")
     for breaker, tag in (("IGN-A", "T-9001"), ("IGN-B", "T-9002")):
         page.fill(f"[data-testid=tag-number-{breaker}]", tag)
-        page.click(f"[data-testid=tag-{breaker}]")
-    page.click("[data-testid=done]")
+        tap(page, f"[data-testid=tag-{breaker}]")
+    tap(page, "[data-testid=done]")
     for text in ("XEX-1001-03", "XE-9911", "REL-2026-0442"):
         page.fill("[data-testid=reading-text]", text)
-        page.click("[data-testid=record-reading]")
-    page.click("[data-testid=acknowledge]")
-    page.click("[data-testid=done]")
-    page.click("[data-testid=acknowledge]")
-    page.click("[data-testid=done]")
+        tap(page, "[data-testid=record-reading]")
+    tap(page, "[data-testid=acknowledge]")
+    tap(page, "[data-testid=done]")
+    tap(page, "[data-testid=acknowledge]")
+    tap(page, "[data-testid=done]")
     expect(step).to_have_attribute("data-step-kind", "torque")
     _audit(page, "torque on a phone")
 
@@ -87,7 +87,7 @@ def test_torque_in_lbf_in_shows_n_m(browser, live_server):
     expect(page.get_by_test_id("converted")).to_contain_text("4.18 N·m")
     page.fill("[data-testid=wrench-id]", "TW-017")
     page.fill("[data-testid=calibration-due]", "2099-01-31")
-    page.click("[data-testid=record-reading]")
+    tap(page, "[data-testid=record-reading]")
     expect(step).to_have_attribute("data-step-id", "bonding-resistance")
     recorded = page.get_by_test_id("progress-mounting-torque")
     expect(recorded).to_contain_text("37 lbf·in")
@@ -96,7 +96,7 @@ def test_torque_in_lbf_in_shows_n_m(browser, live_server):
 
     # A senseless value is answered at the field, the typed text kept, nothing stored.
     page.fill("[data-testid=reading-value]", "lots")
-    page.click("[data-testid=record-reading]")
+    tap(page, "[data-testid=record-reading]")
     expect(page.get_by_test_id("field-error-value")).to_contain_text("not a number")
     expect(page.get_by_test_id("reading-value")).to_have_value("lots")
     context.close()

@@ -8,7 +8,7 @@ from pathlib import Path
 
 from playwright.sync_api import expect
 
-from .conftest import log_in
+from .conftest import log_in, tap
 
 ARTIFACTS = Path(__file__).resolve().parents[1] / "artifacts"
 
@@ -18,23 +18,23 @@ def _walk_to_discharge_wait(page, live_server):
     page.click("[data-testid=engine-QT6-10231]")
     page.click("[data-testid=open-exciter-removal-A]")
     step = page.get_by_test_id("step")
-    page.click("[data-testid=done]")
+    tap(page, "[data-testid=done]")
     for index in range(3):
         page.check(f"[data-testid=item-{index}]")
-    page.click("[data-testid=done]")
-    page.click("[data-testid=acknowledge]")
+    tap(page, "[data-testid=done]")
+    tap(page, "[data-testid=acknowledge]")
     expect(step).to_have_attribute("data-step-kind", "lockout")
     # Confirming before every breaker is tagged is refused on screen.
-    page.click("[data-testid=done]")
+    tap(page, "[data-testid=done]")
     expect(page.get_by_test_id("refusal")).to_contain_text("Tag every breaker of this step")
     for breaker, tag in (("IGN-A", "T-4471"), ("IGN-B", "T-4472")):
         page.fill(f"[data-testid=tag-number-{breaker}]", tag)
-        page.click(f"[data-testid=tag-{breaker}]")
+        tap(page, f"[data-testid=tag-{breaker}]")
         expect(page.get_by_test_id(f"tagged-{breaker}")).to_contain_text(tag)
     expect(page.get_by_test_id("engine-tag-T-4471")).to_contain_text("Aino Varga")
-    page.click("[data-testid=done]")
-    page.click("[data-testid=continue]")            # NOTE: input first
-    page.click("[data-testid=done]")                # input disconnected: the clock starts
+    tap(page, "[data-testid=done]")
+    tap(page, "[data-testid=continue]")            # NOTE: input first
+    tap(page, "[data-testid=done]")                # input disconnected: the clock starts
     expect(step).to_have_attribute("data-step-kind", "discharge_wait")
     return step
 
@@ -92,15 +92,15 @@ def test_functional_check_handover_release_and_duty_cycle(browser, live_server, 
     log_in(page, live_server, "mech1", "demo-mech1")
     page.click("[data-testid=engine-QT6-10231]")
     page.click("[data-testid=open-exciter-removal-A]")
-    page.click("[data-testid=done]")
+    tap(page, "[data-testid=done]")
     for index in range(3):
         page.check(f"[data-testid=item-{index}]")
-    page.click("[data-testid=done]")
-    page.click("[data-testid=acknowledge]")
+    tap(page, "[data-testid=done]")
+    tap(page, "[data-testid=acknowledge]")
     for breaker, tag in (("IGN-A", "T-4471"), ("IGN-B", "T-4472")):
         page.fill(f"[data-testid=tag-number-{breaker}]", tag)
-        page.click(f"[data-testid=tag-{breaker}]")
-    page.click("[data-testid=done]")
+        tap(page, f"[data-testid=tag-{breaker}]")
+    tap(page, "[data-testid=done]")
     first.close()
 
     # mech2 does the functional check: takes the tags over, removes them, energises A.
@@ -114,27 +114,27 @@ def test_functional_check_handover_release_and_duty_cycle(browser, live_server, 
     expect(page.get_by_test_id("engine-tag-T-4471")).to_contain_text("Aino Varga")
     page.click("[data-testid=open-ignition-functional-check-all]")
     step = page.get_by_test_id("step")
-    page.click("[data-testid=done]")
+    tap(page, "[data-testid=done]")
     for index in range(3):
         page.check(f"[data-testid=item-{index}]")
-    page.click("[data-testid=done]")
-    page.click("[data-testid=acknowledge]")
+    tap(page, "[data-testid=done]")
+    tap(page, "[data-testid=acknowledge]")
     expect(step).to_have_attribute("data-step-id", "release-tags")
     expect(page.get_by_test_id("owned-T-4471")).to_contain_text("Aino Varga")
     for tag in ("T-4471", "T-4472"):
         page.locator(f"[data-testid=engine-tag-{tag}] summary").click()
         page.check(f"[data-testid=confirm-open-{tag}]")
-        page.click(f"[data-testid=take-over-{tag}]")
-        page.click(f"[data-testid=remove-{tag}]")
-    page.click("[data-testid=done]")
+        tap(page, f"[data-testid=take-over-{tag}]")
+        tap(page, f"[data-testid=remove-{tag}]")
+    tap(page, "[data-testid=done]")
     for _ in range(3):
-        page.click("[data-testid=acknowledge]")
+        tap(page, "[data-testid=acknowledge]")
     for index in range(8):
         page.check(f"[data-testid=item-{index}]")
-    page.click("[data-testid=done]")
-    page.click("[data-testid=acknowledge]")          # CAUTION: duty cycle
+    tap(page, "[data-testid=done]")
+    tap(page, "[data-testid=acknowledge]")          # CAUTION: duty cycle
     expect(step).to_have_attribute("data-step-kind", "ignition_run")
-    page.click("[data-testid=energise]")
+    tap(page, "[data-testid=energise]")
     live = page.get_by_test_id("live-channel-A")
     expect(live).to_contain_text("Channel A ON")
     expect(page.get_by_test_id("limit-near")).to_be_hidden()
@@ -143,6 +143,6 @@ def test_functional_check_handover_release_and_duty_cycle(browser, live_server, 
     expect(page.get_by_test_id("limit-near")).to_be_visible()
     expect(live).to_contain_text("1:40")
     page.screenshot(path=str(ARTIFACTS / "ignition-run-limit-near.png"), full_page=True)
-    page.click("[data-testid=de-energise-A]")
+    tap(page, "[data-testid=de-energise-A]")
     expect(page.get_by_test_id("live-channel-A")).to_have_count(0)
     context.close()

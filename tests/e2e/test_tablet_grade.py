@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from .conftest import log_in
+from .conftest import log_in, tap
 
 VIEWPORTS = {
     "phone-portrait": {"width": 360, "height": 740},
@@ -84,25 +84,25 @@ def test_screens_are_tablet_grade(browser, live_server, viewport):
     page.click("[data-testid=open-exciter-removal-B]")
     page.wait_for_selector("[data-testid=step]")
     _audit(page, "check step")
-    page.click("[data-testid=done]")
+    tap(page, "[data-testid=done]")
     page.wait_for_selector("[data-step-id=selectors-off]")
     _audit(page, "check step with items")
     for index in range(3):
         page.check(f"[data-testid=item-{index}]")
-    page.click("[data-testid=done]")
-    page.click("[data-testid=acknowledge]")
+    tap(page, "[data-testid=done]")
+    tap(page, "[data-testid=acknowledge]")
     page.wait_for_selector("[data-step-kind=lockout]")
     page.fill("[data-testid=tag-number-IGN-A]", "T-1")
-    page.click("[data-testid=tag-IGN-A]")
+    tap(page, "[data-testid=tag-IGN-A]")
     page.wait_for_selector("[data-testid=tagged-IGN-A]")
     _audit(page, "lockout step with a tag hung")
     page.fill("[data-testid=tag-number-IGN-B]", "T-2")
-    page.click("[data-testid=tag-IGN-B]")
-    page.click("[data-testid=done]")
-    page.click("[data-testid=continue]")
-    page.click("[data-testid=done]")          # input disconnected
-    page.click("[data-testid=acknowledge]")   # CAUTION for AC-supplied exciters (DEMO-103)
-    page.click("[data-testid=done]")          # inverter supply open
+    tap(page, "[data-testid=tag-IGN-B]")
+    tap(page, "[data-testid=done]")
+    tap(page, "[data-testid=continue]")
+    tap(page, "[data-testid=done]")          # input disconnected
+    tap(page, "[data-testid=acknowledge]")   # CAUTION for AC-supplied exciters (DEMO-103)
+    tap(page, "[data-testid=done]")          # inverter supply open
     page.wait_for_selector("[data-step-kind=discharge_wait]")
     _audit(page, "discharge wait")
     context.close()
@@ -114,10 +114,10 @@ def test_warning_step_is_marked_by_word_and_shape_not_colour_alone(browser, live
     log_in(page, live_server, "mech1", "demo-mech1")
     page.click("[data-testid=engine-QT6-10231]")
     page.click("[data-testid=open-exciter-removal-A]")
-    page.click("[data-testid=done]")
+    tap(page, "[data-testid=done]")
     for index in range(3):
         page.check(f"[data-testid=item-{index}]")
-    page.click("[data-testid=done]")
+    tap(page, "[data-testid=done]")
     heading = page.locator("[data-step-kind=warning] .step-heading")
     assert "WARNING" in heading.inner_text() and "⚠" in heading.inner_text()
     _audit(page, "warning step")
