@@ -40,13 +40,15 @@ def browser_type_launch_args(browser_type_launch_args):
 @pytest.fixture(scope="session")
 def demo_template(tmp_path_factory) -> Path:
     """The demo station's database, built once with the same loader the demo uses."""
+    from webapp.authority import station_authority
     from webapp.scenario import load_scenario
 
     path = tmp_path_factory.mktemp("template") / "demo.db"
     db = store.create(path)
     clock = ManualClock()
     load_shop_library(db, clock())
-    load_scenario(db, read_scenario(scenario_path()), clock())
+    authority = station_authority(path, "Test station", clock())
+    load_scenario(db, read_scenario(scenario_path()), clock(), authority)
     db.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
     db.close()
     return path
@@ -59,8 +61,12 @@ def clock() -> ManualClock:
 
 @pytest.fixture
 def db_path(demo_template, tmp_path) -> Path:
+    from webapp.authority import authority_folder
+
     path = tmp_path / "station.db"
     shutil.copyfile(demo_template, path)
+    # The station's CA travels with its database: the demo people's certificates chain to it.
+    shutil.copytree(authority_folder(demo_template), authority_folder(path))
     return path
 
 
@@ -88,6 +94,7 @@ def csrf_token_of(html: str) -> str:
     return match.group(1)
 
 
+DEMO_PINS = {"mech1": "135790", "mech2": "246802", "super": "802468"}  # demo data, invented
 DEMO_PASSWORDS = {"mech1": "demo-mech1", "mech2": "demo-mech2", "super": "demo-super",
                   "trainer": "demo-trainer", "admin": "demo-admin"}
 

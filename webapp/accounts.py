@@ -7,8 +7,11 @@ from datetime import datetime, timedelta
 from werkzeug.security import check_password_hash, generate_password_hash
 
 from . import store
-from .store import people
+from .records.identity import PinProblem, StationAuthority, check_pin, enrol_signer
+from .store import people, signers
 from .store.people import Person
+
+__all__ = ["LoginRefused", "PinProblem", "enrol", "log_in"]
 
 MIN_PASSWORD_LENGTH = 8
 # Checked against when a username is unknown, so a wrong name costs the same time.
@@ -20,8 +23,12 @@ class LoginRefused(Exception):
 
 
 def enrol(db: store.Database, *, username: str, full_name: str, roles: list[str],
-          password: str, authorisation: str | None, now: datetime) -> Person:
-    """Add a person; raises ValueError with a sentence when something is wrong."""
+          password: str, authorisation: str | None, now: datetime,
+          pin: str | None = None, authority: StationAuthority | None = None) -> Person:
+    """Add a person, and with a PIN their signing key and certificate from the station's CA;
+    raises ValueError with a sentence when something is wrong (nothing is kept then)."""
+    if pin is not None:
+        check_pin(pin)
     username = username.strip()
     if not username or not username.replace("-", "").replace(".", "").isalnum():
         raise ValueError("a username is letters and digits (dots and dashes allowed)")
@@ -31,11 +38,21 @@ def enrol(db: store.Database, *, username: str, full_name: str, roles: list[str]
         raise ValueError("give the person at least one role")
     if len(password) < MIN_PASSWORD_LENGTH:
         raise ValueError(f"the password must be at least {MIN_PASSWORD_LENGTH} characters")
+    password_hash = generate_password_hash(password, method="scrypt")
+    enrolment = None
+    if pin is not None:
+        if authority is None:
+            raise ValueError("a signing PIN needs the station's certificate authority")
+        enrolment = enrol_signer(authority, full_name=full_name.strip(), username=username,
+                                 authorisation=authorisation or None, pin=pin, now=now)
     with store.writing(db):
-        return people.add_person(db, username=username, full_name=full_name.strip(),
-                                 roles=roles, authorisation=authorisation or None,
-                                 password_hash=generate_password_hash(password, method="scrypt"),
-                                 now=now)
+        person = people.add_person(db, username=username, full_name=full_name.strip(),
+                                   roles=roles, authorisation=authorisation or None,
+                                   password_hash=password_hash, now=now)
+        if enrolment is not None:
+            signers.add_signer(db, person.id, enrolment.cert_pem, enrolment.sealed.to_json(),
+                               now)
+    return person
 
 
 def log_in(db: store.Database, username: str, password: str, *, now: datetime,

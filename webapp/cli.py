@@ -28,6 +28,9 @@ def _app(db_path: Path | None) -> Flask:
 
 
 def _init(app: Flask) -> list[str]:
+    from .authority import station_authority
+
+    station_authority(app.config["DB_PATH"], app.config["STATION_NAME"], system_clock())
     db = store.create(app.config["DB_PATH"])
     try:
         return load_shop_library(db, system_clock())
@@ -66,16 +69,19 @@ def demo(db_path: Path | None, host: str, port: int, scenario: str) -> None:
     for stale in (path, path.with_name(path.name + "-wal"), path.with_name(path.name + "-shm")):
         stale.unlink(missing_ok=True)
     _init(app)
+    from .authority import station_authority
+
     chosen = read_scenario(scenario_path(scenario))
+    authority = station_authority(path, app.config["STATION_NAME"], system_clock())
     db = store.connect(path)
     try:
-        load_scenario(db, chosen, system_clock())
+        load_scenario(db, chosen, system_clock(), authority)
     finally:
         db.close()
     click.echo(f"Demo scenario '{chosen.name}' built in {path}")
-    click.echo("Demo log-ins (username / password / role):")
-    for username, password, roles in demo_logins(chosen):
-        click.echo(f"  {username:8} {password:14} {roles}")
+    click.echo("Demo log-ins (username / password / signing PIN / role):")
+    for username, password, pin, roles in demo_logins(chosen):
+        click.echo(f"  {username:8} {password:14} {pin:8} {roles}")
     _serve(app, host, port)
 
 
@@ -95,6 +101,40 @@ def _serve(app: Flask, host: str, port: int) -> None:
     click.echo(f"Open http://{shown}:{port}/ (press Ctrl+C to stop)", err=False)
     sys.stdout.flush()
     waitress_serve(app, host=host, port=port, threads=8, ident="Sparkward")
+
+
+@cli.command(help="Check a work record PDF: its signatures, and its event chain against the "
+                  "station's database. Exits non-zero on any failure.")
+@click.argument("pdf_file", type=click.Path(exists=True, dir_okay=False, path_type=Path))
+@DB_OPTION
+def verify(pdf_file: Path, db_path: Path | None) -> None:
+    from .authority import station_authority
+    from .records.verify import check_record
+    from .store import jobs
+
+    app = _app(db_path)
+    authority = station_authority(app.config["DB_PATH"], app.config["STATION_NAME"],
+                                  system_clock())
+    db = store.connect(app.config["DB_PATH"])
+    try:
+        result = check_record(pdf_file.read_bytes(), authority.cert,
+                              lambda job_id: jobs.events(db, job_id))
+    finally:
+        db.close()
+    click.echo(f"Record {result.record_id or '(unknown)'}"
+               + (f", job {result.job_id}" if result.job_id else ""))
+    for r in result.signatures:
+        click.echo(f"  {r.field_name}: {r.signer} ({r.authorisation or 'no authorisation'}), "
+                   f"{r.meaning}, {r.signed_at:%Y-%m-%d %H:%M:%S %Z}: "
+                   f"{'intact' if r.intact else 'NOT INTACT'}, "
+                   f"{'trusted' if r.trusted else 'NOT TRUSTED'}"
+                   + (", CHANGED AFTERWARDS" if r.modified_after else ""))
+    if result.chain_message:
+        click.echo(f"  chain: {result.chain_message}")
+    if not result.ok:
+        raise click.ClickException("the record does not check out: "
+                                   + "; ".join(result.problems))
+    click.echo("The record checks out.")
 
 
 @cli.group(help="The shop's procedure library.")
@@ -131,22 +171,30 @@ def people() -> None:
               help="Repeat for more than one role")
 @click.option("--authorisation", default=None, help="Certificate or authorisation number")
 @click.option("--password-stdin", is_flag=True, required=True,
-              help="Read the password from the first line of standard input")
+              help="Read the password, then the signing PIN (6+ digits), one a line, from "
+                   "standard input")
 def people_add(db_path: Path | None, username: str, full_name: str, roles: tuple[str, ...],
                authorisation: str | None, password_stdin: bool) -> None:
     from .accounts import enrol
+    from .authority import station_authority
 
     password = sys.stdin.readline().rstrip("\r\n")
+    pin = sys.stdin.readline().rstrip("\r\n") or None
     app = _app(db_path)
     db = store.create(app.config["DB_PATH"])
     try:
+        authority = station_authority(app.config["DB_PATH"], app.config["STATION_NAME"],
+                                      system_clock())
         person = enrol(db, username=username, full_name=full_name, roles=list(roles),
-                       password=password, authorisation=authorisation, now=system_clock())
+                       password=password, authorisation=authorisation, now=system_clock(),
+                       pin=pin, authority=authority)
     except ValueError as err:
         raise click.ClickException(str(err)) from None
     finally:
         db.close()
-    click.echo(f"Enrolled {person.full_name} ({person.username}) as {', '.join(person.roles)}")
+    signing = "with a signing key" if pin else "without a signing key (no PIN given)"
+    click.echo(f"Enrolled {person.full_name} ({person.username}) as "
+               f"{', '.join(person.roles)}, {signing}")
 
 
 def register(app: Flask) -> None:

@@ -10,8 +10,10 @@ import threading
 import uuid
 from collections import OrderedDict
 from dataclasses import dataclass
-from datetime import datetime
+from datetime import datetime, timedelta
 from typing import Any, Literal
+
+from cryptography.hazmat.primitives import hashes
 
 from . import store
 from .domain import gates
@@ -28,7 +30,9 @@ from .domain.execution import (
 from .domain.gates import Tag
 from .domain.readings import InputProblem
 from .library import procedure_of_revision
-from .store import fleet, jobs, people, procedures
+from .records import identity
+from .records.identity import StationAuthority
+from .store import fleet, jobs, people, procedures, signers
 from .store.people import Person
 
 
@@ -139,8 +143,15 @@ def load_job(db: store.Database, job_id: int) -> Job:
 
 def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
                  step_id: str | None, data: dict[str, Any], device_time: str | None,
-                 person: Person, now: datetime) -> Outcome:
-    """Check an event against the rules and append it; the same UUID twice stores once."""
+                 person: Person, now: datetime,
+                 authority: StationAuthority | None = None) -> Outcome:
+    """Check an event against the rules and append it; the same UUID twice stores once.
+
+    A signature (`signed`) carries the person's PIN in `data`; it is used to unseal their
+    key and sign the PDF record, and is never stored."""
+    pin = str(data.pop("pin", "")) if kind == "signed" else None
+    if kind == "signed":
+        data = {}
     with store.writing(db):
         existing = jobs.event(db, event_id)
         if existing is not None:
@@ -157,8 +168,11 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
                 _check_authorising_supervisor(db, data["absent_owner"])
             at = Circumstances(now=now, device_now=_device_time(device_time),
                                person_id=person.id, job_id=job_id, tags=tags,
-                               names=people.names_by_id(db, {t.owner_id for t in tags.values()}))
+                               names=people.names_by_id(db, {t.owner_id for t in tags.values()}),
+                               roles=person.roles)
             data = dict(check_event(job.state, kind, step_id, data, at))
+            signer = (_unlock_signer(db, person, pin or "", authority, now)
+                      if kind == "signed" else None)
         except InputProblem as problem:
             return Outcome("invalid", problem=problem)
         except RuleRefusal as refusal:
@@ -166,14 +180,93 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
                                 kind=kind, step_id=step_id, data=data, rule=refusal.rule,
                                 reason=refusal.reason, now=now)
             return Outcome("refused", refusal=refusal)
+        if signer is not None:
+            data.update(signer.manifestation)
         record = _chain(db, job_id=job_id, event_id=event_id, kind=kind, step_id=step_id,
                         data=data, person_id=person.id, device_time=device_time, now=now,
                         last=job.head)
         after = apply_event(job.state, record)
+        if signer is not None:
+            _sign_record(db, job_id, after, record, signer, now)
         if after.status != job.row["status"]:
             jobs.set_job_status(db, job_id, after.status)
     _STATES.put(record["hash"], after)  # only once committed
     return Outcome("stored", event=record)
+
+
+@dataclass(frozen=True)
+class _UnlockedSigner:
+    pyhanko_signer: Any
+    manifestation: dict[str, Any]
+
+
+PIN_MAX_FAILURES = 5
+PIN_LOCK_MINUTES = 10
+
+
+def _unlock_signer(db: store.Database, person: Person, pin: str,
+                   authority: StationAuthority | None, now: datetime) -> _UnlockedSigner:
+    """The person's signing key, unsealed by their PIN (the second component of a signature,
+    21 CFR 11.200(a)); wrong PINs are counted and throttled, and refused."""
+    if authority is None:
+        raise RuleRefusal("no_station_authority", "This station has no certificate authority; "
+                          "run `sparkward init` first.")
+    enrolled = signers.signer(db, person.id)
+    if enrolled is None or enrolled["revoked_at"]:
+        raise RuleRefusal("no_signing_key", "You have no signing key on this station (or it "
+                          "was revoked): ask an admin to enrol you with a PIN.")
+    since = now - timedelta(minutes=PIN_LOCK_MINUTES)
+    if signers.pin_failures_since(db, person.id, since) >= PIN_MAX_FAILURES:
+        raise RuleRefusal("pin_throttled", f"Too many wrong PINs: wait {PIN_LOCK_MINUTES} "
+                          "minutes before signing again.")
+    enrolment = identity.Enrolment(cert_pem=enrolled["cert_pem"],
+                                   sealed=identity.SealedKey.from_json(enrolled["sealed_key"]))
+    try:
+        pyhanko_signer = identity.signer_for(enrolment, pin, authority.cert)
+    except identity.WrongPin:
+        signers.record_pin_failure(db, person.id, now)
+        raise RuleRefusal("wrong_pin", "That PIN does not unlock your signing key.") from None
+    signers.clear_pin_failures(db, person.id)
+    fingerprint = enrolment.certificate.fingerprint(hashes.SHA256()).hex()
+    return _UnlockedSigner(pyhanko_signer, {
+        "signer_name": person.full_name, "authorisation": person.authorisation,
+        "certificate_sha256": fingerprint})
+
+
+def signatures_of(state: JobState) -> list[dict[str, Any]]:
+    """The job's signatures in the order given, as a record prints them (21 CFR 11.50)."""
+    found = []
+    for step in state.applicable:
+        event = state.completed.get(step.id)
+        if event is not None and event["kind"] == "signed":
+            found.append({"step": step.id, "name": event["data"]["signer_name"],
+                          "authorisation": event["data"].get("authorisation"),
+                          "meaning": event["data"]["meaning"],
+                          "scope": event["data"].get("scope"),
+                          "signed_at": event["received_at"]})
+    return found
+
+
+def _sign_record(db: store.Database, job_id: int, state: JobState, event: dict[str, Any],
+                 signer: _UnlockedSigner, now: datetime) -> None:
+    """Sign the job's PDF record: the first signature on a freshly rendered record, later
+    ones as incremental signatures on the same file (earlier ones stay valid)."""
+    from .records.pdf import render_work_record
+    from .records.signing import sign_record
+
+    latest = signers.latest_record(db, job_id)
+    if latest is None:
+        pdf = render_work_record(db, job_id, now, signatures=signatures_of(state))
+        revision, count, supersedes = 1, 0, None
+    else:
+        pdf, revision, count = latest["pdf"], latest["revision"], latest["signatures"]
+        supersedes = latest["supersedes"]
+    signed = sign_record(pdf, signer.pyhanko_signer, field_name=f"{event['step_id']}",
+                         meaning=f"{event['data']['meaning']} ({event['data']['scope']})",
+                         signer_name=event["data"]["signer_name"])
+    signers.add_record(db, job_id=job_id, revision=revision, pdf=signed,
+                       chain_hash=event["hash"], signatures=count + 1, now=now,
+                       supersedes=supersedes)
 
 
 def engine_tags(db: store.Database, engine_id: int) -> dict[str, Tag]:

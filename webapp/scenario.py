@@ -12,6 +12,7 @@ from pydantic import BaseModel, ConfigDict, Field
 
 from . import store
 from .accounts import enrol
+from .records.identity import StationAuthority
 from .resources import shipped_dir
 from .store import fleet, people
 
@@ -26,6 +27,7 @@ class DemoPerson(_Strict):
     roles: list[str] = Field(min_length=1)
     authorisation: str | None
     password: str
+    pin: str | None = None
 
 
 class Part(_Strict):
@@ -91,12 +93,15 @@ def read_scenario(path: Path) -> Scenario:
     return Scenario.model_validate(yaml.safe_load(path.read_text(encoding="utf-8")))
 
 
-def load_scenario(db: store.Database, scenario: Scenario, now: datetime) -> None:
-    """Build the scenario into an empty station database, the same way every time."""
+def load_scenario(db: store.Database, scenario: Scenario, now: datetime,
+                  authority: StationAuthority | None = None) -> None:
+    """Build the scenario into an empty station database, the same way every time.
+    With the station's `authority`, people with a PIN get their signing keys."""
     rng = random.Random(scenario.seed)
     for p in scenario.people:
         enrol(db, username=p.username, full_name=p.full_name, roles=p.roles,
-              password=p.password, authorisation=p.authorisation, now=now)
+              password=p.password, authorisation=p.authorisation, now=now,
+              pin=p.pin if authority is not None else None, authority=authority)
     explicit = {(h.engine, h.channel): h for h in scenario.plug_history}
     with store.writing(db):
         fleet.set_operator(db, scenario.operator.name, scenario.operator.approval)
@@ -151,9 +156,10 @@ def _ordinary_wear(wear: OrdinaryWear, rng: random.Random, today: date) -> list[
     return readings
 
 
-def demo_logins(scenario: Scenario) -> list[tuple[str, str, str]]:
-    """(username, password, roles) for the demo's printed log-in list."""
-    return [(p.username, p.password, ", ".join(p.roles)) for p in scenario.people]
+def demo_logins(scenario: Scenario) -> list[tuple[str, str, str, str]]:
+    """(username, password, signing PIN, roles) for the demo's printed log-in list."""
+    return [(p.username, p.password, p.pin or "-", ", ".join(p.roles))
+            for p in scenario.people]
 
 
 def is_empty(db: store.Database) -> bool:

@@ -130,8 +130,15 @@ def test_applying_events_one_by_one_equals_rebuilding_from_the_log():
             assert state == job_state(REMOVAL, events)
 
 
-def test_a_step_kind_without_its_rules_waits_rather_than_pretending():
-    # Signatures arrive with their own rules; until then the job waits at such a step.
+def test_every_step_kind_is_recorded_by_its_own_event():
+    from webapp.domain.execution import COMPLETING_EVENT
+    from webapp.domain.procedures import STEP_KINDS
+
+    assert set(COMPLETING_EVENT) == set(STEP_KINDS)
+
+
+def test_a_signature_is_not_a_tick():
+    # A sign step takes a signature (with the PIN, checked by the station), never "done".
     procedure = REMOVAL
     configuration = configuration_for(procedure, "QT-610", DC_ENGINE, "A")
     steps = procedure.steps_for(("dc",), ("surface-discharge",))
@@ -148,4 +155,4 @@ def test_a_step_kind_without_its_rules_waits_rather_than_pretending():
     assert state.next_step.id == "performer"
     with pytest.raises(RuleRefusal) as refused:
         check_event(state, "step_done", "performer", {}, AT)
-    assert refused.value.rule == "step_kind_not_available"
+    assert refused.value.rule == "wrong_event_for_step"

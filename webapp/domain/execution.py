@@ -25,6 +25,7 @@ from .procedures import (
     Lockout,
     Procedure,
     Reading,
+    Sign,
     SparkCount,
     Step,
     Torque,
@@ -34,7 +35,7 @@ from .procedures import (
 # Events a client may send, and the one the station writes itself when a job opens.
 CLIENT_EVENT_KINDS = ("acknowledged", "step_done", "breaker_tagged", "tag_taken_over",
                       "tag_removed", "input_reconnected", "energised", "de_energised",
-                      "reading_recorded", "finding", "sparks_counted")
+                      "reading_recorded", "finding", "sparks_counted", "signed")
 STATION_EVENT_KINDS = ("job_opened",)
 EVENT_KINDS = STATION_EVENT_KINDS + CLIENT_EVENT_KINDS
 
@@ -52,7 +53,12 @@ COMPLETING_EVENT = {
     "reading": "reading_recorded",   # unless out of limits: then a finding completes it
     "torque": "reading_recorded",
     "spark_count": "sparks_counted",
+    "sign": "signed",
 }
+# What each signature means (21 CFR 11.50(a)(3)); its scope is always this job's work only.
+SIGNATURE_MEANINGS = {"performer": "Performed", "inspector": "Inspected",
+                      "certifying": "Certified for release to service"}
+SIGNATURE_SCOPE = "this job's work only"
 # Events that happen within the current step without completing it.
 IN_STEP_EVENTS = {"breaker_tagged": "lockout", "tag_removed": "lockout",
                   "finding": ("reading", "torque", "spark_count")}
@@ -327,6 +333,7 @@ class Circumstances:
     job_id: int
     tags: Mapping[str, Tag] = field(default_factory=dict)
     names: Mapping[int, str] = field(default_factory=dict)
+    roles: tuple[str, ...] = ()
 
 
 def check_event(state: JobState, kind: str, step_id: str | None, data: Mapping[str, Any],
@@ -430,7 +437,34 @@ def _check_completion(state: JobState, target: StepProgress, data: Mapping[str, 
                                      at.now, at.device_now)
     elif isinstance(step, IgnitionRun):
         gates.check_energise(state.clocks, _channels(step), at.now, at.device_now)
+    elif isinstance(step, Sign):
+        return _check_signature(state, target, at)
     return data
+
+
+def _check_signature(state: JobState, target: StepProgress, at: Circumstances
+                     ) -> dict[str, Any]:
+    """A signature needs the work it covers complete, and the right person for its meaning."""
+    step = target.step
+    assert isinstance(step, Sign)
+    missing = [f"step {s.number} ({s.id})" for s in state.steps[:target.number - 1]
+               if s.status != "done" and not isinstance(s.step, Sign)]
+    missing += [f"the finding for step {state.positions[k] + 1} ({k})"
+                for k in state.awaiting_finding]
+    if missing:
+        raise RuleRefusal("sign_prerequisites", "Not ready to sign; still to do: "
+                          + ", ".join(missing) + ".", missing=missing)
+    performers = [e["person_id"] for k, e in state.completed.items()
+                  if isinstance(_step_of(state, k), Sign)
+                  and _step_of(state, k).role == "performer"]  # type: ignore[union-attr]
+    if step.role in ("inspector", "certifying") and at.person_id in performers:
+        raise RuleRefusal("inspector_is_performer", "The person who performed the work cannot "
+                          f"also sign as {step.role}: another person signs here.")
+    if step.role == "certifying" and "supervisor" not in at.roles:
+        raise RuleRefusal("certifier_role", "Only a certifying supervisor signs the release "
+                          "to service.")
+    return {"role": step.role, "meaning": SIGNATURE_MEANINGS[step.role],
+            "scope": SIGNATURE_SCOPE}
 
 
 def _short(step: Step) -> str:

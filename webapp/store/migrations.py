@@ -81,3 +81,22 @@ def initial(db: Database) -> None:
 def events_by_kind(db: Database) -> None:
     # The tags hanging on an engine are read from its jobs' tag events on every gate check.
     db.table("events").create_index(["kind", "job_id"])
+
+
+@MIGRATIONS(name="0003_signers_and_records")
+def signers_and_records(db: Database) -> None:
+    # A person's certificate and their signing key sealed under their PIN (never the PIN).
+    db.table("signers").create({"person_id": int, "cert_pem": str, "sealed_key": str,
+                                "enrolled_at": str, "revoked_at": str}, pk="person_id",
+                               foreign_keys=[("person_id", "people")],
+                               not_null={"cert_pem", "sealed_key", "enrolled_at"})
+    db.table("pin_failures").create({"id": int, "person_id": int, "at": str}, pk="id")
+    db.table("pin_failures").create_index(["person_id", "at"])
+    # Each signed state of a job's PDF record; an amendment makes a new revision that names
+    # the one it supersedes. Rows are never updated in place.
+    db.table("records").create({
+        "id": int, "job_id": int, "revision": int, "pdf": bytes, "chain_hash": str,
+        "signatures": int, "created_at": str, "supersedes": int, "reason": str,
+    }, pk="id", foreign_keys=[("job_id", "jobs")],
+        not_null={"job_id", "revision", "pdf", "chain_hash", "signatures", "created_at"})
+    db.table("records").create_index(["job_id", "revision", "signatures"], unique=True)

@@ -18,7 +18,7 @@ from ..domain.execution import CLIENT_EVENT_KINDS, JobState, StepProgress
 from ..domain.gates import ChannelClock
 from ..domain.procedures import Check, Lockout, Reading, Torque
 from ..store import fleet as fleet_store
-from .common import db, now, person, public, requires
+from .common import authority, db, now, person, public, requires
 from .openapi import openapi_document
 
 bp = Blueprint("api", __name__)
@@ -165,17 +165,21 @@ def job(job_id: int) -> Any:
 
 
 @bp.post("/api/jobs/<int:job_id>/events")
-@requires("mechanic")
+@requires("mechanic", "supervisor")
 def post_event(job_id: int) -> Any:
     try:
         body = _body(EventIn)
     except ValidationError as err:
         return _malformed(err)
     assert isinstance(body, EventIn)
+    if not person().has("mechanic") and body.kind != "signed":
+        return jsonify({"rule": "http_403", "reason": "Mechanics record the work; a "
+                        "supervisor signs it."}), 403
     device_time = body.device_time.isoformat() if isinstance(body.device_time, datetime) else None
     outcome = recording.record_event(db(), job_id, event_id=str(body.id), kind=body.kind,
                                      step_id=body.step, data=body.data,
-                                     device_time=device_time, person=person(), now=now())
+                                     device_time=device_time, person=person(), now=now(),
+                                     authority=authority())
     if outcome.status == "invalid":
         assert outcome.problem is not None
         return jsonify({"rule": "bad_input", "reason": outcome.problem.message + " Nothing "

@@ -88,6 +88,14 @@ def now() -> datetime:
     return current_app.config["CLOCK"]()
 
 
+def authority() -> Any:
+    """The station's certificate authority (made on first use, kept in the instance folder)."""
+    from ..authority import station_authority
+
+    return station_authority(current_app.config["DB_PATH"], current_app.config["STATION_NAME"],
+                             now())
+
+
 def person() -> Person:
     """The logged-in person (routes reach here only through `requires`)."""
     found = g.get("person")

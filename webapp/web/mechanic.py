@@ -15,7 +15,7 @@ from ..domain.readings import InputProblem
 from ..store import fleet as fleet_store
 from ..store import jobs as job_store
 from ..store import people
-from .common import db, now, page_or_fragment, person, requires
+from .common import authority, db, now, page_or_fragment, person, requires
 from .gate_views import gate_context
 
 bp = Blueprint("mechanic", __name__)
@@ -73,7 +73,7 @@ def _job_page(job_id: int, error: str | None = None, status: int = 200,
 
 
 @bp.get("/jobs/<int:job_id>")
-@requires("mechanic")
+@requires("mechanic", "supervisor")
 def job(job_id: int) -> Any:
     return _job_page(job_id)
 
@@ -97,6 +97,8 @@ def _event_data(kind: str, form: Any) -> dict[str, Any]:
         return {"channel": form["channel"]}
     if kind == "reading_recorded":
         return _reading_data(form)
+    if kind == "signed":
+        return {"pin": form.get("pin", "")}
     if kind == "sparks_counted":
         return _count_data(form)
     if kind == "finding":
@@ -153,9 +155,11 @@ def _device_time(text: str | None) -> str | None:
 
 @bp.post("/jobs/<int:job_id>/events")
 @bp.post("/jobs/<int:job_id>/steps/<step_id>")
-@requires("mechanic")
+@requires("mechanic", "supervisor")
 def record(job_id: int, step_id: str | None = None) -> Any:
     form = request.form
+    if not person().has("mechanic") and form.get("kind") != "signed":
+        abort(403, "Mechanics record the work; a supervisor signs it.")
     event_id = form.get("event_id", "")
     try:
         uuid.UUID(event_id)
@@ -165,7 +169,7 @@ def record(job_id: int, step_id: str | None = None) -> Any:
     outcome = recording.record_event(
         db(), job_id, event_id=event_id, kind=kind, step_id=step_id or form.get("step") or None,
         data=_event_data(kind, form), device_time=_device_time(form.get("device_time")),
-        person=person(), now=now())
+        person=person(), now=now(), authority=authority())
     if outcome.status == "invalid":
         assert outcome.problem is not None
         return _job_page(job_id, problem=outcome.problem, entered=form, status=422)

@@ -1,0 +1,164 @@
+"""The PDF work record: what the regulations ask a maintenance record to show, read back
+from the PDF's own text with pypdf.
+
+The job: igniter plug replacement on DEMO-101 engine 1, channel B (demo data), walked
+to its first sign step by two mechanics, with a handover of a tag, a reading entered in
+inches, and a failed inspection re-tested after its finding.
+"""
+
+from __future__ import annotations
+
+import io
+import re
+from datetime import timedelta
+
+import pytest
+from pypdf import PdfReader
+
+from tests.web.jobs import DEMO_101_ENGINE_1, Job, _event
+from webapp.records import pdf
+from webapp.store import jobs as job_store
+
+PROCEDURE = "igniter-plug-replacement"
+
+
+@pytest.fixture
+def plug_job(app, db, clock, mechanic, login):
+    """The job at its first sign step; returns its id."""
+    job = Job(mechanic, db, clock, PROCEDURE, channel="B", engine=DEMO_101_ENGINE_1)
+    job.walk_to("hot-case")  # both breakers tagged by mech1: T-1 on IGN-A, T-2 on IGN-B
+    reyes = login("mech2")
+    job.ok(_event(None, "tag_taken_over", tag="T-2", breaker_confirmed_open=True), reyes)
+    job.walk_to("erosion")
+    job.ok(_event("erosion", "reading_recorded", value="0.044", unit="in",
+                  usage={"engine_hours": 812, "starts": 760, "continuous_ignition_hours": 150}),
+           reyes)
+    job.walk_to("carbon")
+    job.ok(_event("carbon", "reading_recorded", result="fail"))
+    job.ok(_event("carbon", "finding", text="Light carbon on the shell face; wiped dry as "
+                  "the data allows and inspected again", disposition="re-tested"))
+    job.ok(_event("carbon", "reading_recorded", result="pass"))
+    job.walk_to("performer")
+    assert job.state()["steps"][37]["status"] == "next"
+    return job.id
+
+
+def _render(app, db, job_id, now, signatures=None):
+    with app.app_context():
+        data = pdf.render_work_record(db, job_id, now, signatures)
+    assert data.startswith(b"%PDF-")
+    reader = PdfReader(io.BytesIO(data))
+    pages = [page.extract_text() for page in reader.pages]
+    text = " ".join(" ".join(pages).split())
+    return reader, pages, text
+
+
+def test_14_cfr_43_9_a_four_elements_of_the_maintenance_record(app, db, clock, plug_job):
+    _, _, text = _render(app, db, plug_job, clock())
+    # 14 CFR 43.9(a)(1): a description of the work or a reference to data acceptable to the
+    # Administrator: the procedure, and the approved data it was performed in accordance with.
+    assert "Igniter plug — removal, inspection and installation" in text
+    assert ("Performed in accordance with the approved data QT-610 Engine Maintenance Manual "
+            "(demo data), 74-20-11") in text
+    assert "Rev 9, 2025-11-18" in text
+    assert "The approved data governs" in text
+    # 14 CFR 43.9(a)(2): the date the work was completed, or, before then, that it is not.
+    assert "Not yet completed: 37 of 39 steps done" in text
+    # 14 CFR 43.9(a)(3): the name of each person who did the work (with authorisation numbers).
+    for name, number in (("Aino Varga", "BCA-M-0147"), ("Tomas Reyes", "BCA-M-0152")):
+        assert name in text and number in text
+    # 14 CFR 43.9(a)(4): the signature with certificate number and kind of certificate.
+    assert "Step 38: Performer" in text and "Step 39: Inspector" in text
+    assert text.count("Authorisation / certificate no.") >= 2
+    assert text.count("Kind of certificate") >= 2
+    assert "Not yet signed." in text
+    # The header: aircraft, engine serial and position, channel (DOMAIN.md section 4).
+    for shown in ("DEMO-101", "QT6-10231", "Engine position 1", "Ignition channel B"):
+        assert shown in text
+
+
+def test_easa_145_a_50_release_to_service_content(app, db, clock, plug_job):
+    _, _, text = _render(app, db, plug_job, clock())
+    # EASA Part-145 145.A.50 and its AMC: the organisation and its approval reference, the
+    # certifying staff and their licence number, the completion, and any limitations, even none.
+    assert "Bramblecoast Air (demo)" in text and "DEMO.145.0042" in text
+    assert "Release to service" in text
+    assert "Certifying staff (printed name)" in text
+    assert "Licence / authorisation no." in text
+    assert "Limitations none" in text
+    assert "Not released to service by this record: no certifying signature." in text
+    # The procedure's requirements after completion travel with the release block.
+    assert "functional (audible) check of the ignition system must pass" in text
+
+
+def test_21_cfr_11_50_signature_shows_printed_name_time_with_zone_and_meaning(
+        app, db, clock, plug_job):
+    signed_at = clock() + timedelta(minutes=5)
+    signature = {"name": "Aino Varga", "authorisation": "BCA-M-0147",
+                 "meaning": "performed the work", "signed_at": signed_at,
+                 "kind": "mechanic authorisation"}
+    _, _, text = _render(app, db, plug_job, clock(), [signature])
+    # 21 CFR 11.50(a)(1)-(3): printed name, date and time of signing, and its meaning.
+    when = signed_at.strftime("%Y-%m-%d %H:%M:%S UTC")
+    assert (f"Signed electronically by Aino Varga (BCA-M-0147) on {when}; meaning: performed "
+            "the work.") in text
+    assert "mechanic authorisation" in text
+    assert text.count("Not yet signed.") == 1  # only the inspector's block is still open
+    # 21 CFR 11.50(b): the same manifestation on the screen as on paper.
+    with app.app_context():
+        html = pdf.record_html(db, plug_job, clock(), [signature], embedded=True)
+    assert "<html" not in html
+    assert "Signed electronically by Aino Varga (BCA-M-0147) on " + when in html
+
+
+def test_21_cfr_11_10_readings_gates_hashes_and_pages_in_readable_form(
+        app, db, clock, plug_job):
+    reader, pages, text = _render(app, db, plug_job, clock())
+    packed = "".join(text.split())
+    events = job_store.events(db, plug_job)
+    job = job_store.job(db, plug_job)
+    # 21 CFR 11.10(e) audit trail and 11.70 linking: the record names the revision it was
+    # done to and the head of the job's hash chain it was printed from.
+    assert job["revision_hash"] in packed
+    assert events[-1]["hash"] in packed
+    assert f"{len(events)} entries, intact" in text
+    # 21 CFR 11.10(b): accurate and complete copies in human-readable form. Readings: value
+    # as entered, converted to the data's unit, limits, verdict and disposition.
+    assert "0.044 in → 1.118 mm" in text
+    assert "at most 1.2 mm" in text and "▲ near limit" in text
+    assert "275 lbf·in → 275 lbf·in" in text and "250 to 300 lbf·in" in text
+    assert "✓ within" in text and "✗ out of limits" in text
+    assert "Light carbon on the shell face" in text and "re-tested" in text
+    assert "torque wrench TW-017" in text and "2027-06-30" in text
+    # Lockout/tagout (29 CFR 1910.147(d)-(e) order of work): tags, breakers, the handover,
+    # the power-off time and the discharge wait served.
+    for shown in ("T-1", "T-2", "IGN-A", "IGN-B", "taken over"):
+        assert shown in text
+    assert re.search(r"Tag T-2 on IGN-B .* handed over from Aino Varga, BCA-M-0147 to "
+                     r"Tomas Reyes, BCA-M-0152", text)
+    assert "exciter input disconnected (power off)" in text
+    assert "Wait served 2:00" in text
+    # Parts at work and as recorded (DOMAIN.md section 4: P/N and S/N removed and fitted).
+    assert "XIP-2207" in text and "XP-4402" in text
+    # The wear chart of the plug gauged on the job is drawn (its limit label is SVG text).
+    assert "limit 1.20 mm" in text and "Igniter plug wear · XIP-2207 S/N XP-4402" in text
+    # Every page: the record id at the top and "Page n of m" at the foot.
+    assert re.search(r"Page 1 of \d+", pages[0])
+    assert f"Page {len(reader.pages)} of {len(reader.pages)}" in pages[-1]
+    record_id = re.search(r"Record (SW-\d{5}-\d{3}-[0-9A-F]{8})", pages[0]).group(1)
+    assert all(record_id in page for page in pages)
+    # DESIGN.md "Safety": the approved data and regulations govern; computations are advisory.
+    assert "computations are advisory" in text and "WARNING" in text and "NOTE" in text
+
+
+def test_record_fetches_only_the_station_static_files_from_disk():
+    # No regulation: the house rule (TOOLCHAIN.md) that rendering never goes to the network.
+    fetcher = pdf.static_fetcher()
+    answer = fetcher.fetch(pdf.STATIC_PREFIX + "css/record.css")
+    assert b"@page" in answer.read()
+    assert "css" in answer.content_type
+    with pytest.raises(ValueError):
+        fetcher.fetch("https://elsewhere.invalid/static/css/record.css")
+    with pytest.raises(FileNotFoundError):
+        fetcher.fetch(pdf.STATIC_PREFIX + "../webapp/__init__.py")
+    assert pdf.font_configuration() is pdf.font_configuration()  # one per process

@@ -1,0 +1,94 @@
+"""Signing a job: the PIN as the second component, a real PDF signature, the right people."""
+
+from __future__ import annotations
+
+import pytest
+
+from tests.conftest import DEMO_PINS
+from tests.web.jobs import Job, _event
+from webapp.authority import station_authority
+from webapp.records.signing import verify_record
+from webapp.store import signers
+
+
+@pytest.fixture
+def removal(mechanic, db, clock):
+    job = Job(mechanic, db, clock, "exciter-removal")
+    job.walk_to("performer")
+    return job
+
+
+def sign(step, pin):
+    return _event(step, "signed", pin=pin)
+
+
+def test_wrong_pin_is_refused_and_never_stored(removal, db):
+    refusal = removal.refused(sign("performer", "000000"), "wrong_pin")
+    assert "PIN" in refusal["reason"]
+    stored = db.execute("select data from refusals").fetchall()
+    assert all("000000" not in row[0] for row in stored)  # the PIN is not kept anywhere
+
+
+def test_pin_attempts_are_throttled(removal):
+    for _ in range(5):
+        removal.refused(sign("performer", "000000"), "wrong_pin")
+    removal.refused(sign("performer", DEMO_PINS["mech1"]), "pin_throttled")
+
+
+def test_performer_signs_and_the_pdf_carries_a_valid_trusted_signature(removal, db, app,
+                                                                      clock):
+    answer = removal.ok(sign("performer", DEMO_PINS["mech1"]))
+    event = answer.get_json()
+    assert event["data"]["meaning"] == "Performed"
+    assert event["data"]["scope"] == "this job's work only"
+    assert event["data"]["signer_name"] == "Aino Varga"
+    assert "pin" not in event["data"]
+    record = signers.latest_record(db, removal.id)
+    assert record["signatures"] == 1 and record["chain_hash"] == event["hash"]
+    authority = station_authority(app.config["DB_PATH"], "x", clock())
+    reports = verify_record(record["pdf"], authority.cert)
+    assert len(reports) == 1
+    report = reports[0]
+    assert report.intact and report.valid and report.trusted
+    assert report.signer == "Aino Varga" and report.meaning.startswith("Performed")
+
+
+def test_the_station_refuses_to_sign_before_the_work_is_done(mechanic, db, clock):
+    job = Job(mechanic, db, clock, "exciter-removal")
+    job.walk_to("removal-reason")
+    job.refused(sign("performer", DEMO_PINS["mech1"]), "out_of_order")
+
+
+def test_inspector_cannot_be_the_performer(login, db, clock):
+    mech1, mech2 = login("mech1"), login("mech2")
+    job = Job(mech1, db, clock, "exciter-installation")
+    job.walk_to("performer")
+    job.ok(sign("performer", DEMO_PINS["mech1"]))
+    job.refused(sign("inspector", DEMO_PINS["mech1"]), "inspector_is_performer")
+    job.ok(sign("inspector", DEMO_PINS["mech2"]), client=mech2)
+    record = signers.latest_record(db, job.id)
+    assert record["signatures"] == 2
+    authority = station_authority(db_path_of(db), "x", clock())
+    reports = verify_record(record["pdf"], authority.cert)
+    assert [r.meaning.split(" (")[0] for r in reports] == ["Performed", "Inspected"]
+    assert all(r.intact and r.valid and r.trusted and not r.modified_after for r in reports)
+
+
+def test_a_person_without_a_signing_key_cannot_sign(mechanic, login, db, clock, app):
+    from webapp.accounts import enrol
+
+    enrol(db, username="nokey", full_name="Kim Demo", roles=["mechanic"],
+          password="long-enough-pw", authorisation=None, now=clock())
+    from tests.conftest import DEMO_PASSWORDS
+    DEMO_PASSWORDS["nokey"] = "long-enough-pw"
+    try:
+        other = login("nokey")
+        job = Job(other, db, clock, "exciter-removal")
+        job.walk_to("performer")
+        job.refused(sign("performer", "123456"), "no_signing_key")
+    finally:
+        del DEMO_PASSWORDS["nokey"]
+
+
+def db_path_of(db) -> str:
+    return db.execute("PRAGMA database_list").fetchone()[2]

@@ -1,0 +1,115 @@
+"""The work record as PDF: the record template rendered by WeasyPrint, our static files from disk.
+
+The same HTML is what the review page shows (`record_html`); the PDF only adds
+pages. WeasyPrint is imported on first use (it takes most of a second), keeps one
+FontConfiguration for the process, and reads /static/ files from the shipped
+folder instead of over HTTP: rendering a record never touches the network.
+"""
+
+from __future__ import annotations
+
+import mimetypes
+import threading
+from collections.abc import Mapping, Sequence
+from datetime import datetime
+from functools import lru_cache
+from pathlib import Path
+from typing import Any
+from urllib.parse import unquote, urlsplit
+
+from flask import current_app
+from jinja2 import StrictUndefined
+
+from ..resources import shipped_dir
+from ..store import Database
+from .record_data import NONE, WorkRecord, gather
+
+TEMPLATE = "records/work_record.html"
+# The record's pages are placed at this made-up origin (".invalid" never resolves); the
+# fetcher answers its /static/ URLs from disk and refuses every other URL.
+STATION_ORIGIN = "https://station.invalid/"
+STATIC_PREFIX = STATION_ORIGIN + "static/"
+
+_render_lock = threading.Lock()  # one FontConfiguration is shared: render one at a time
+
+
+def record_html(db: Database, job_id: int, now: datetime,
+                signatures: Sequence[Mapping[str, Any]] | None = None, *,
+                embedded: bool = False, record_id: str | None = None) -> str:
+    """The work record as HTML (a whole document, or only the record when `embedded`).
+
+    Needs an application context: the template comes from the app's Jinja environment.
+    """
+    record = gather(db, job_id, now, signatures, record_id)
+    return html_of(record, embedded=embedded)
+
+
+def html_of(record: WorkRecord, *, embedded: bool = False) -> str:
+    """The record template rendered; a name the template does not know is an error here, not
+    a blank on a signed record."""
+    environment = current_app.extensions.get("sparkward.record_jinja")
+    if environment is None:
+        environment = current_app.jinja_env.overlay(undefined=StrictUndefined)
+        current_app.extensions["sparkward.record_jinja"] = environment
+    return environment.get_template(TEMPLATE).render(r=record, embedded=embedded, NONE=NONE)
+
+
+def render_work_record(db: Database, job_id: int, now: datetime,
+                       signatures: Sequence[Mapping[str, Any]] | None = None, *,
+                       record_id: str | None = None) -> bytes:
+    """The work record of a job as PDF bytes (A4), as of `now`, with any signatures given
+    ({name, authorisation, meaning, signed_at}, optionally kind, role or step)."""
+    return pdf_of_html(record_html(db, job_id, now, signatures, record_id=record_id))
+
+
+def pdf_of_html(html: str) -> bytes:
+    """Print record HTML to PDF with the station's fonts and static files."""
+    weasyprint = _weasyprint()
+    document = weasyprint.HTML(string=html, base_url=STATION_ORIGIN, url_fetcher=static_fetcher())
+    with _render_lock:
+        return document.write_pdf(font_config=font_configuration())
+
+
+@lru_cache(maxsize=1)
+def _weasyprint() -> Any:
+    import weasyprint
+
+    return weasyprint
+
+
+@lru_cache(maxsize=1)
+def font_configuration() -> Any:
+    """The process's one FontConfiguration (building one per record costs time)."""
+    from weasyprint.text.fonts import FontConfiguration
+
+    return FontConfiguration()
+
+
+def static_path(url: str) -> Path:
+    """The file a station /static/ URL names, inside the shipped static folder.
+
+    Raises ValueError for any other URL (nothing is fetched from elsewhere) and
+    FileNotFoundError for a file that is not there.
+    """
+    if not url.startswith(STATIC_PREFIX):
+        raise ValueError(f"the work record fetches only the station's static files, not {url}")
+    root = shipped_dir("static").resolve()
+    path = (root / unquote(urlsplit(url).path).removeprefix("/static/")).resolve()
+    if not path.is_relative_to(root) or not path.is_file():
+        raise FileNotFoundError(f"no static file for {url}")
+    return path
+
+
+@lru_cache(maxsize=1)
+def static_fetcher() -> Any:
+    """A WeasyPrint URL fetcher that reads /static/ from disk; any failure stops the render
+    (a record without its layout must not go out looking complete)."""
+    from weasyprint.urls import URLFetcher, URLFetcherResponse
+
+    class StaticFileFetcher(URLFetcher):
+        def fetch(self, url: str, headers: Any = None) -> URLFetcherResponse:
+            path = static_path(url)
+            mime = mimetypes.guess_type(path.name)[0] or "application/octet-stream"
+            return URLFetcherResponse(url, path.read_bytes(), {"Content-Type": mime})
+
+    return StaticFileFetcher(fail_on_errors=True, allowed_protocols=("https",))

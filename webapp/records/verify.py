@@ -1,0 +1,88 @@
+"""Checking a work record: its PDF signatures, and its event chain against the station's log.
+
+Used by `sparkward verify FILE.pdf` and the verify page. A record is good only when every
+signature is intact, valid and trusted by this station's CA, nothing was changed after
+the last one, and the job's event chain in the database still holds up to the entry
+the record was printed from.
+"""
+
+from __future__ import annotations
+
+import io
+import re
+from dataclasses import dataclass, field
+from typing import Any
+
+from cryptography import x509
+
+from ..domain.chain import first_broken_link
+from .signing import RecordUnreadable, SignatureReport, verify_record
+
+_RECORD_ID = re.compile(r"SW-(\d{5})-(\d{3})-([0-9A-F]{8})")
+
+
+@dataclass(frozen=True)
+class RecordCheck:
+    signatures: list[SignatureReport]
+    record_id: str | None
+    job_id: int | None
+    chain_ok: bool | None          # None: the record names no job this station knows
+    chain_message: str
+    problems: list[str] = field(default_factory=list)
+
+    @property
+    def ok(self) -> bool:
+        return not self.problems
+
+
+def record_id_of(pdf: bytes) -> str | None:
+    """The record id printed in the PDF's title (WeasyPrint writes <title> into /Info)."""
+    from pyhanko.pdf_utils.reader import PdfFileReader
+
+    try:
+        info = PdfFileReader(io.BytesIO(pdf)).trailer_view.get("/Info")
+        title = str(info.get_object().get("/Title", "")) if info is not None else ""
+    except Exception:
+        return None
+    found = _RECORD_ID.search(title)
+    return found.group(0) if found else None
+
+
+def check_record(pdf: bytes, trust_root: x509.Certificate,
+                 events_of_job: Any) -> RecordCheck:
+    """`events_of_job(job_id)` gives the job's events from the station's database (or None)."""
+    try:
+        reports = verify_record(pdf, trust_root)
+    except RecordUnreadable as err:
+        return RecordCheck([], None, None, None, "", [str(err)])
+    problems = [f"signature '{r.field_name}': {r.summary}" for r in reports
+                if not (r.intact and r.valid and r.trusted) or r.modified_after]
+    if not reports:
+        problems.append("the file carries no signature")
+    record_id = record_id_of(pdf)
+    if record_id is None:
+        return RecordCheck(reports, None, None, None, "the file names no Sparkward record",
+                           problems + ["the file names no Sparkward record"])
+    match = _RECORD_ID.fullmatch(record_id)
+    assert match is not None
+    job_id, seq, prefix = int(match.group(1)), int(match.group(2)), match.group(3)
+    events = events_of_job(job_id)
+    if not events:
+        message = f"job {job_id} is not in this station's database"
+        return RecordCheck(reports, record_id, job_id, None, message, problems + [message])
+    broken = first_broken_link(events)
+    printed = next((e for e in events if e["seq"] == seq), None)
+    if broken is not None:
+        message = f"the job's event chain no longer holds from entry {broken}: the log was " \
+                  "changed after it was written"
+        chain_ok = False
+    elif printed is None or not printed["hash"].upper().startswith(prefix):
+        message = f"entry {seq} of job {job_id} is not the one the record was printed from"
+        chain_ok = False
+    else:
+        message = f"the event chain of job {job_id} holds ({len(events)} entries); the record " \
+                  f"was printed from entry {seq}"
+        chain_ok = True
+    if not chain_ok:
+        problems.append(message)
+    return RecordCheck(reports, record_id, job_id, chain_ok, message, problems)
