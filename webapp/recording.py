@@ -255,12 +255,12 @@ def _sign_record(db: store.Database, job_id: int, state: JobState, event: dict[s
     from .records.signing import sign_record
 
     latest = signers.latest_record(db, job_id)
-    if latest is None:
+    revision = len(state.returns) + 1  # a returned job's next signature starts a new record
+    if latest is None or latest["revision"] != revision:
         pdf = render_work_record(db, job_id, now, signatures=signatures_of(state))
-        revision, count, supersedes = 1, 0, None
+        count, supersedes = 0, (latest["id"] if latest else None)
     else:
-        pdf, revision, count = latest["pdf"], latest["revision"], latest["signatures"]
-        supersedes = latest["supersedes"]
+        pdf, count, supersedes = latest["pdf"], latest["signatures"], latest["supersedes"]
     signed = sign_record(pdf, signer.pyhanko_signer, field_name=f"{event['step_id']}",
                          meaning=f"{event['data']['meaning']} ({event['data']['scope']})",
                          signer_name=event["data"]["signer_name"])

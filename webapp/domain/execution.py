@@ -35,7 +35,7 @@ from .procedures import (
 # Events a client may send, and the one the station writes itself when a job opens.
 CLIENT_EVENT_KINDS = ("acknowledged", "step_done", "breaker_tagged", "tag_taken_over",
                       "tag_removed", "input_reconnected", "energised", "de_energised",
-                      "reading_recorded", "finding", "sparks_counted", "signed")
+                      "reading_recorded", "finding", "sparks_counted", "signed", "returned")
 STATION_EVENT_KINDS = ("job_opened",)
 EVENT_KINDS = STATION_EVENT_KINDS + CLIENT_EVENT_KINDS
 
@@ -63,7 +63,7 @@ SIGNATURE_SCOPE = "this job's work only"
 IN_STEP_EVENTS = {"breaker_tagged": "lockout", "tag_removed": "lockout",
                   "finding": ("reading", "torque", "spark_count")}
 # Events allowed whatever step the job is at. De-energising is never held back.
-ANYTIME_EVENTS = ("tag_taken_over", "input_reconnected", "de_energised")
+ANYTIME_EVENTS = ("tag_taken_over", "input_reconnected", "de_energised", "returned")
 
 StepStatus = Literal["done", "next", "waiting"]
 
@@ -114,6 +114,7 @@ class JobState:
     clocks: Mapping[str, ChannelClock] = field(default_factory=dict)
     readings: tuple[Mapping[str, Any], ...] = ()   # every attempt, in order, findings attached
     awaiting_finding: Mapping[str, Mapping[str, Any]] = field(default_factory=dict)
+    returns: tuple[Mapping[str, Any], ...] = ()   # supervisors' returns, with their reasons
 
     @cached_property
     def positions(self) -> dict[str, int]:
@@ -240,6 +241,11 @@ def apply_event(state: JobState, event: Mapping[str, Any]) -> JobState:
     if kind == "de_energised":
         return replace(state, clocks=_switched_off(state.clocks, event,
                                                    event["data"].get("channel")))
+    if kind == "returned":
+        # The job reopens for its signatures; the work recorded stays, every event is kept.
+        completed = {k: v for k, v in state.completed.items()
+                     if not isinstance(_step_of(state, k), Sign)}
+        return replace(state, completed=completed, returns=(*state.returns, event))
     if kind in ("reading_recorded", "sparks_counted") and step is not None:
         return _with_reading(state, step, event)
     if kind == "finding" and step is not None:
@@ -358,6 +364,8 @@ def check_event(state: JobState, kind: str, step_id: str | None, data: Mapping[s
     if kind == "de_energised":
         gates.check_de_energise(state.clocks, data.get("channel"))
         return data
+    if kind == "returned":
+        return _check_return(state, data, at)
     target = state.step(step_id) if step_id else None
     if target is None:
         raise RuleRefusal("unknown_step", f"Step '{step_id}' is not part of this job's "
@@ -440,6 +448,26 @@ def _check_completion(state: JobState, target: StepProgress, data: Mapping[str, 
     elif isinstance(step, Sign):
         return _check_signature(state, target, at)
     return data
+
+
+def _check_return(state: JobState, data: Mapping[str, Any], at: Circumstances
+                  ) -> dict[str, Any]:
+    if "supervisor" not in at.roles:
+        raise RuleRefusal("return_role", "Only a supervisor returns a job to the mechanic.")
+    if not any(isinstance(_step_of(state, k), Sign) for k in state.completed):
+        raise RuleRefusal("nothing_to_return", "Nothing has been signed on this job yet.")
+    reason = data.get("reason")
+    if not isinstance(reason, str) or not reason.strip():
+        raise readings.InputProblem("reason", "Say why the job goes back, so the mechanic "
+                                    "knows what to put right.")
+    return {"reason": reason.strip()}
+
+
+def awaiting_review(state: JobState) -> bool:
+    """All the work and its performer/inspector signatures are in; certification is next."""
+    upcoming = state.next_step
+    return (upcoming is not None and isinstance(upcoming.step, Sign)
+            and upcoming.step.role == "certifying")
 
 
 def _check_signature(state: JobState, target: StepProgress, at: Circumstances

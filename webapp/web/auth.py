@@ -11,7 +11,7 @@ from .common import db, now, public, requires
 
 bp = Blueprint("auth", __name__)
 
-HOME_BY_ROLE = (("mechanic", "mechanic.fleet"), ("supervisor", "supervisor.jobs"),
+HOME_BY_ROLE = (("mechanic", "mechanic.fleet"), ("supervisor", "supervisor.review_queue"),
                 ("trainer", "procedures.index"), ("admin", "admin.people_page"))
 
 

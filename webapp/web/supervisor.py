@@ -1,15 +1,17 @@
-"""The supervisor's room: every job on the station and where each one stands."""
+"""The supervisor's room: every job, the review queue, certifying or returning a job."""
 
 from __future__ import annotations
 
+import uuid
 from typing import Any
 
-from flask import Blueprint, render_template
+from flask import Blueprint, Response, abort, render_template, request
 
 from .. import recording
+from ..domain.execution import awaiting_review
 from ..store import jobs as job_store
-from ..store import people
-from .common import db, requires
+from ..store import people, signers
+from .common import authority, db, now, person, requires
 
 bp = Blueprint("supervisor", __name__)
 
@@ -28,4 +30,82 @@ def job_log(job_id: int) -> Any:
     names = people.names_by_id(db(), {e["person_id"] for e in events})
     return render_template("supervisor/job_log.html", job=job.row, state=job.state,
                            events=events, names=names,
-                           refusals=job_store.refusals(db(), job_id))
+                           refusals=job_store.refusals(db(), job_id),
+                           records=signers.records_of(db(), job_id))
+
+
+def _attention(state: Any) -> tuple[int, int]:
+    """Out-of-limits readings and findings first (more of them, earlier in the queue)."""
+    flagged = sum(1 for r in state.readings
+                  if r.get("verdict") == "out of limits" or r.get("finding"))
+    return (-flagged, 0)
+
+
+@bp.get("/review")
+@requires("supervisor")
+def review_queue() -> Any:
+    waiting = []
+    for row in job_store.jobs(db(), status="open"):
+        job = recording.load_job(db(), row["id"])
+        if awaiting_review(job.state):
+            flagged = [r for r in job.state.readings
+                       if r.get("verdict") == "out of limits" or r.get("finding")]
+            waiting.append({"job": row, "state": job.state, "flagged": flagged})
+    waiting.sort(key=lambda w: (-len(w["flagged"]), w["job"]["id"]))
+    return render_template("supervisor/review_queue.html", waiting=waiting)
+
+
+def _review_page(job_id: int, error: str | None = None, status: int = 200) -> Any:
+    from ..records.pdf import record_html
+
+    job = recording.load_job(db(), job_id)
+    record = record_html(db(), job_id, now(), signatures=recording.signatures_of(job.state),
+                         embedded=True)
+    certifying = job.state.next_step if awaiting_review(job.state) else None
+    return render_template("supervisor/review.html", job=job.row, state=job.state,
+                           record=record, certifying=certifying, error=error,
+                           latest=signers.latest_record(db(), job_id),
+                           event_id=str(uuid.uuid4())), status
+
+
+@bp.get("/review/<int:job_id>")
+@requires("supervisor")
+def review_job(job_id: int) -> Any:
+    return _review_page(job_id)
+
+
+@bp.post("/review/<int:job_id>")
+@requires("supervisor")
+def decide(job_id: int) -> Any:
+    form = request.form
+    action = form.get("action")
+    if action == "certify":
+        certifying = recording.load_job(db(), job_id).state.next_step
+        kind, step_id = "signed", certifying.id if certifying else None
+        data: dict[str, Any] = {"pin": form.get("pin", "")}
+    elif action == "return":
+        kind, step_id, data = "returned", None, {"reason": form.get("reason", "")}
+    else:
+        abort(400, "Choose to certify or to return the job.")
+    outcome = recording.record_event(db(), job_id, event_id=form.get("event_id") or
+                                     str(uuid.uuid4()), kind=kind, step_id=step_id,
+                                     data=data, device_time=None, person=person(), now=now(),
+                                     authority=authority())
+    if outcome.status == "refused":
+        assert outcome.refusal is not None
+        return _review_page(job_id, outcome.refusal.reason, 409)
+    if outcome.status == "invalid":
+        assert outcome.problem is not None
+        return _review_page(job_id, outcome.problem.message, 422)
+    return _review_page(job_id)
+
+
+@bp.get("/jobs/<int:job_id>/record.pdf")
+@requires("supervisor", "mechanic")
+def record_pdf(job_id: int) -> Any:
+    latest = signers.latest_record(db(), job_id)
+    if latest is None:
+        abort(404, "This job has no signed record yet.")
+    return Response(latest["pdf"], mimetype="application/pdf", headers={
+        "Content-Disposition": f"inline; filename=work-record-job-{job_id}-"
+                               f"r{latest['revision']}-s{latest['signatures']}.pdf"})

@@ -1,0 +1,85 @@
+"""The supervisor's review: the queue, returning a job with a reason, certifying it."""
+
+from __future__ import annotations
+
+import pytest
+
+from tests.conftest import DEMO_PINS, csrf_token_of
+from tests.web.jobs import Job, _event
+from webapp.authority import station_authority
+from webapp.records.signing import verify_record
+from webapp.store import signers
+
+
+@pytest.fixture
+def signed_check(login, db, clock):
+    """A functional check walked and signed by two mechanics: waiting for certification."""
+    mech1, mech2 = login("mech1"), login("mech2")
+    job = Job(mech1, db, clock, "ignition-functional-check", channel=None)
+    job.walk_to("sign-selector")
+    job.ok(_event("sign-selector", "signed", pin=DEMO_PINS["mech1"]))
+    job.ok(_event("sign-engine", "signed", pin=DEMO_PINS["mech2"]), client=mech2)
+    return job
+
+
+def _decide(client, job_id, **form):
+    page = client.get(f"/review/{job_id}").get_data(as_text=True)
+    return client.post(f"/review/{job_id}", data={**form,
+                                                  "csrf_token": csrf_token_of(page)})
+
+
+def test_the_queue_lists_jobs_waiting_for_certification(signed_check, login):
+    html = login("super").get("/review").get_data(as_text=True)
+    assert f'data-testid="review-{signed_check.id}"' in html
+
+
+def test_a_mechanic_cannot_certify(signed_check):
+    signed_check.refused(_event("certify", "signed", pin=DEMO_PINS["mech1"]),
+                         "inspector_is_performer")
+
+
+def test_certifying_closes_the_job_and_adds_the_third_signature(signed_check, login, db, app,
+                                                               clock):
+    supervisor = login("super").client
+    answer = _decide(supervisor, signed_check.id, action="certify", pin=DEMO_PINS["super"])
+    assert answer.status_code == 200
+    assert 'data-testid="certified"' in answer.get_data(as_text=True)
+    assert signed_check.state()["status"] == "complete"
+    # Closed: no further events.
+    signed_check.refused(_event(None, "de_energised"), "job_not_open")
+    record = signers.latest_record(db, signed_check.id)
+    reports = verify_record(record["pdf"], station_authority(app.config["DB_PATH"], "x",
+                                                             clock()).cert)
+    assert [r.meaning.split(" (")[0] for r in reports] == [
+        "Performed", "Performed", "Certified for release to service"]
+    assert all(r.intact and r.trusted and not r.modified_after for r in reports)
+
+
+def test_a_wrong_pin_does_not_certify(signed_check, login):
+    supervisor = login("super").client
+    answer = _decide(supervisor, signed_check.id, action="certify", pin="999999")
+    assert answer.status_code == 409
+    assert signed_check.state()["status"] == "open"
+
+
+def test_returning_reopens_the_signatures_and_the_next_record_is_a_new_revision(
+        signed_check, login, db):
+    supervisor = login("super").client
+    empty = _decide(supervisor, signed_check.id, action="return", reason=" ")
+    assert empty.status_code == 422
+    answer = _decide(supervisor, signed_check.id, action="return",
+                     reason="Channel B count taken with the GPU off: repeat it")
+    assert answer.status_code == 200
+    state = signed_check.state()
+    assert state["next_step"] == "sign-selector"     # the work stays, the signatures reopen
+    assert "count-b" in state["done"]
+    first = signers.latest_record(db, signed_check.id)
+    signed_check.ok(_event("sign-selector", "signed", pin=DEMO_PINS["mech1"]))
+    second = signers.latest_record(db, signed_check.id)
+    assert (first["revision"], second["revision"]) == (1, 2)
+    assert second["supersedes"] == first["id"] and second["signatures"] == 1
+    assert len(signers.records_of(db, signed_check.id)) == 3  # every state kept
+
+
+def test_only_a_supervisor_returns_a_job(signed_check):
+    signed_check.refused(_event(None, "returned", reason="x"), "return_role")
