@@ -161,3 +161,16 @@ def test_exciter_shows_its_channels_last_functional_check_reading(mechanic, db, 
     # Demo data, invented: input current limit 2.5 A, so 1.9 A is within.
     assert "input current a: 1.9 A (within)" in " ".join(cells[row["A"]].split())
     assert "none recorded" in cells[row["B"]]  # channel B's exciter was not read
+
+
+def test_plug_page_compares_the_usage_measures(mechanic, db):
+    # Demo data, invented: the fast plug's wear follows continuous-ignition hours
+    # (31/64/102/145 h) most closely; its rate per 100 FH is also shown.
+    serial_row = next(db.query(
+        "select c.id from components c join engines e on e.id = c.engine_id "
+        "where e.serial = 'QT6-10231' and c.kind = 'plug' and c.channel = 'B'"))
+    html = mechanic.get(f"/fleet/wear/plugs/{serial_row['id']}").get_data(as_text=True)
+    assert 'data-testid="measure-starts"' in html
+    assert 'data-testid="measure-continuous_ignition_hours"' in html
+    block = html.split('data-testid="measure-continuous_ignition_hours"')[1].split("</tr>")[0]
+    assert "yes" in block

@@ -145,4 +145,30 @@ def plug(component_id: int) -> Any:
     plugs = assess(wear_store.plug_histories(db()), limit, _interval())
     this = next(p for p in plugs if p.plug["component_id"] == component_id)
     return render_template("fleet/plug.html", p=this, limit=limit, interval=_interval(),
-                           usage_label=USAGE_LABEL)
+                           usage_label=USAGE_LABEL, measures=usage_measures(this.plug))
+
+
+MEASURE_LABELS = {"engine_hours": ("engine hours", 100, "per 100 FH"),
+                  "starts": ("starts", 100, "per 100 starts"),
+                  "continuous_ignition_hours": ("continuous-ignition hours", 10,
+                                                "per 10 h of continuous ignition")}
+
+
+def usage_measures(plug: dict[str, Any]) -> dict[str, Any]:
+    """The plug's wear rate against each usage measure its history records, and which one
+    explains the wear best (continuous ignition wears plugs faster than flying does)."""
+    rows = [p for p in plug["points"] if p["erosion_mm"] is not None]
+    fits = []
+    for name, (label, per, said) in MEASURE_LABELS.items():
+        points = [wear.WearPoint(usage=float(p[name]), erosion_mm=p["erosion_mm"])
+                  for p in rows if p[name] is not None]
+        fit = wear.wear_rate(points)
+        fits.append({"name": name, "label": label, "per": per, "said": said, "fit": fit})
+    history = {"erosion_mm": [p["erosion_mm"] for p in rows],
+               **{name: [p[name] for p in rows] for name in MEASURE_LABELS
+                  if all(p[name] is not None for p in rows)}}
+    try:
+        best = wear.best_usage_measure(history)
+    except RuleRefusal:
+        best = None
+    return {"fits": fits, "best": best}
