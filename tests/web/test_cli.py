@@ -56,15 +56,37 @@ def test_tasks_check_names_a_file_whose_name_is_not_its_id(tmp_path):
     assert result.exit_code != 0 and "exciter-removal.yaml" in result.output
 
 
-def test_people_add_reads_the_password_from_stdin(tmp_path):
+def test_people_add_reads_the_password_then_the_pin_from_stdin(tmp_path):
+    from cryptography import x509
+
+    from webapp.authority import station_authority
+    from webapp.store import signers
+
     path = tmp_path / "p.db"
     result = CliRunner().invoke(cli, [
         "people", "add", "--db", str(path), "--username", "kim", "--name", "Kim Demo",
         "--role", "mechanic", "--role", "supervisor", "--authorisation", "DEMO-77",
-        "--password-stdin"], input="a-long-password\n")
+        "--password-stdin"], input="a-long-password\n246813\n")
     assert result.exit_code == 0, result.output
-    person = people.person_by_username(store.connect(path), "kim")
+    assert "with a signing key" in result.output
+    db = store.connect(path)
+    person = people.person_by_username(db, "kim")
     assert person.roles == ("mechanic", "supervisor") and person.authorisation == "DEMO-77"
+    enrolled = signers.signer(db, person.id)
+    cert = x509.load_pem_x509_certificate(enrolled["cert_pem"].encode())
+    authority = station_authority(path, "x", __import__("datetime").datetime.now(
+        __import__("datetime").UTC))
+    cert.verify_directly_issued_by(authority.cert)   # issued by this station's CA
+    assert "246813" not in enrolled["sealed_key"]     # the PIN itself is never kept
+
+
+def test_people_add_refuses_a_short_pin_and_stores_nobody(tmp_path):
+    path = tmp_path / "p.db"
+    result = CliRunner().invoke(cli, [
+        "people", "add", "--db", str(path), "--username", "kim", "--name", "Kim Demo",
+        "--role", "mechanic", "--password-stdin"], input="a-long-password\n12345\n")
+    assert result.exit_code != 0 and "6" in result.output
+    assert store.connect(path)["people"].count == 0
 
 
 def test_people_add_refuses_a_short_password_and_stores_nobody(tmp_path):

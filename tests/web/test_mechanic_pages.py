@@ -148,9 +148,15 @@ def test_admin_enrols_a_person_and_bad_input_keeps_what_was_typed(login, db):
     assert "at least 8" in bad.get_data(as_text=True)
     assert 'value="Iris Demo"' in bad.get_data(as_text=True)
     assert db["people"].count == 5
+    short_pin = admin.post_form("/people", {"full_name": "Iris Demo", "username": "iris",
+                                            "roles": ["mechanic"], "password": "long-enough",
+                                            "pin": "123"})
+    assert short_pin.status_code == 422 and db["people"].count == 5
     good = admin.post_form("/people", {"full_name": "Iris Demo", "username": "iris",
-                                       "roles": ["mechanic"], "password": "long-enough"})
+                                       "roles": ["mechanic"], "password": "long-enough",
+                                       "pin": "864213"})
     assert good.status_code == 200 and db["people"].count == 6
+    assert db["signers"].count == 6  # the five demo people and Iris have signing keys
 
 
 def test_progress_list_escapes_procedure_text(app):

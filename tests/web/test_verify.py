@@ -98,3 +98,18 @@ def test_an_unsigned_or_unreadable_file_fails(tmp_path, db_path):
     junk.write_bytes(b"not a pdf at all " + datetime.now(UTC).isoformat().encode())
     result = _verify(junk, db_path)
     assert result.exit_code != 0
+
+
+def test_verify_page_reports_a_good_and_a_tampered_record(signed, login):
+    path, _ = signed
+    supervisor = login("super")
+    good = supervisor.client.post("/records/verify", data={
+        "csrf_token": supervisor.token, "record": (io.BytesIO(path.read_bytes()), "r.pdf")},
+        content_type="multipart/form-data")
+    assert good.status_code == 200 and "checks out" in good.get_data(as_text=True)
+    pdf = bytearray(path.read_bytes())
+    pdf[pdf.index(b"Work record") + 2] ^= 0x01
+    bad = supervisor.client.post("/records/verify", data={
+        "csrf_token": supervisor.token, "record": (io.BytesIO(bytes(pdf)), "r.pdf")},
+        content_type="multipart/form-data")
+    assert bad.status_code == 422 and "does not check out" in bad.get_data(as_text=True)

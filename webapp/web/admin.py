@@ -8,7 +8,7 @@ from flask import Blueprint, render_template, request
 
 from ..accounts import enrol
 from ..store import people
-from .common import db, now, requires
+from .common import authority, db, now, requires
 
 bp = Blueprint("admin", __name__)
 
@@ -25,7 +25,7 @@ def people_page() -> Any:
                           full_name=form.get("full_name", ""), roles=form.getlist("roles"),
                           password=form.get("password", ""),
                           authorisation=form.get("authorisation", "").strip() or None,
-                          now=now())
+                          now=now(), pin=form.get("pin") or None, authority=authority())
         except ValueError as err:
             error, status = str(err).capitalize() + ".", 422
     return render_template("admin/people.html", people=people.all_people(db()),

@@ -109,3 +109,22 @@ def record_pdf(job_id: int) -> Any:
     return Response(latest["pdf"], mimetype="application/pdf", headers={
         "Content-Disposition": f"inline; filename=work-record-job-{job_id}-"
                                f"r{latest['revision']}-s{latest['signatures']}.pdf"})
+
+
+@bp.route("/records/verify", methods=["GET", "POST"])
+@requires("supervisor", "mechanic", "trainer", "admin")
+def verify_page() -> Any:
+    from ..records.verify import check_record
+
+    result = error = None
+    status = 200
+    if request.method == "POST":
+        upload = request.files.get("record")
+        data = upload.read() if upload else b""
+        if not data:
+            error, status = "Choose the record's PDF file.", 422
+        else:
+            result = check_record(data, authority().cert,
+                                  lambda job_id: job_store.events(db(), job_id))
+            status = 200 if result.ok else 422
+    return render_template("supervisor/verify.html", result=result, error=error), status
