@@ -149,7 +149,8 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
 
     A signature (`signed`) carries the person's PIN in `data`; it is used to unseal their
     key and sign the PDF record, and is never stored."""
-    pin = str(data.pop("pin", "")) if kind == "signed" else None
+    signing = kind in ("signed", "amendment")
+    pin = str(data.pop("pin", "")) if signing else None
     if kind == "signed":
         data = {}
     with store.writing(db):
@@ -172,7 +173,7 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
                                roles=person.roles)
             data = dict(check_event(job.state, kind, step_id, data, at))
             signer = (_unlock_signer(db, person, pin or "", authority, now)
-                      if kind == "signed" else None)
+                      if signing else None)
         except InputProblem as problem:
             return Outcome("invalid", problem=problem)
         except RuleRefusal as refusal:
@@ -255,14 +256,20 @@ def _sign_record(db: store.Database, job_id: int, state: JobState, event: dict[s
     from .records.signing import sign_record
 
     latest = signers.latest_record(db, job_id)
-    revision = len(state.returns) + 1  # a returned job's next signature starts a new record
+    # A returned job's next signature, and each amendment, start a new record revision.
+    revision = len(state.returns) + len(state.amendments) + 1
     if latest is None or latest["revision"] != revision:
         pdf = render_work_record(db, job_id, now, signatures=signatures_of(state))
         count, supersedes = 0, (latest["id"] if latest else None)
     else:
         pdf, count, supersedes = latest["pdf"], latest["signatures"], latest["supersedes"]
-    signed = sign_record(pdf, signer.pyhanko_signer, field_name=f"{event['step_id']}",
-                         meaning=f"{event['data']['meaning']} ({event['data']['scope']})",
+    if event["kind"] == "amendment":
+        field_name = f"amendment-{len(state.amendments)}"
+        meaning = f"Amended: {event['data']['what']} (because: {event['data']['why']})"
+    else:
+        field_name = str(event["step_id"])
+        meaning = f"{event['data']['meaning']} ({event['data']['scope']})"
+    signed = sign_record(pdf, signer.pyhanko_signer, field_name=field_name, meaning=meaning,
                          signer_name=event["data"]["signer_name"])
     signers.add_record(db, job_id=job_id, revision=revision, pdf=signed,
                        chain_hash=event["hash"], signatures=count + 1, now=now,

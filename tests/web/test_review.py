@@ -83,3 +83,37 @@ def test_returning_reopens_the_signatures_and_the_next_record_is_a_new_revision(
 
 def test_only_a_supervisor_returns_a_job(signed_check):
     signed_check.refused(_event(None, "returned", reason="x"), "return_role")
+
+
+def test_an_amendment_after_certification_makes_a_new_revision(signed_check, login, db, app,
+                                                                clock):
+    supervisor = login("super")
+    _decide(supervisor.client, signed_check.id, action="certify", pin=DEMO_PINS["super"])
+    certified = signers.latest_record(db, signed_check.id)
+    bad = supervisor.post_json(f"/api/jobs/{signed_check.id}/events", _event(
+        None, "amendment", what=" ", why="typo", pin=DEMO_PINS["super"]))
+    assert bad.status_code == 422
+    answer = supervisor.post_json(f"/api/jobs/{signed_check.id}/events", _event(
+        "count-b", "amendment", what="Channel B count was 34, not 36, per the listener",
+        why="transcribed from the wrong column", pin=DEMO_PINS["super"]))
+    assert answer.status_code == 201, answer.get_json()
+    amended = signers.latest_record(db, signed_check.id)
+    assert amended["revision"] == certified["revision"] + 1
+    assert amended["supersedes"] == certified["id"]
+    # The certified revision is kept byte for byte.
+    assert signers.record(db, certified["id"])["pdf"] == certified["pdf"]
+    reports = verify_record(amended["pdf"], station_authority(app.config["DB_PATH"], "x",
+                                                              clock()).cert)
+    assert reports[-1].meaning.startswith("Amended: Channel B count")
+    import pypdf
+
+    text = "".join(page.extract_text() for page in pypdf.PdfReader(
+        __import__("io").BytesIO(amended["pdf"])).pages)
+    assert "Amendments after certification" in text and "wrong column" in text
+
+
+def test_an_amendment_is_only_for_a_certified_job(signed_check, login):
+    supervisor = login("super")
+    answer = supervisor.post_json(f"/api/jobs/{signed_check.id}/events", _event(
+        None, "amendment", what="x", why="y", pin=DEMO_PINS["super"]))
+    assert answer.status_code == 409 and answer.get_json()["rule"] == "not_certified"

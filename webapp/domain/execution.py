@@ -35,7 +35,8 @@ from .procedures import (
 # Events a client may send, and the one the station writes itself when a job opens.
 CLIENT_EVENT_KINDS = ("acknowledged", "step_done", "breaker_tagged", "tag_taken_over",
                       "tag_removed", "input_reconnected", "energised", "de_energised",
-                      "reading_recorded", "finding", "sparks_counted", "signed", "returned")
+                      "reading_recorded", "finding", "sparks_counted", "signed", "returned",
+                      "amendment")
 STATION_EVENT_KINDS = ("job_opened",)
 EVENT_KINDS = STATION_EVENT_KINDS + CLIENT_EVENT_KINDS
 
@@ -115,6 +116,7 @@ class JobState:
     readings: tuple[Mapping[str, Any], ...] = ()   # every attempt, in order, findings attached
     awaiting_finding: Mapping[str, Mapping[str, Any]] = field(default_factory=dict)
     returns: tuple[Mapping[str, Any], ...] = ()   # supervisors' returns, with their reasons
+    amendments: tuple[Mapping[str, Any], ...] = ()  # corrections after certification
 
     @cached_property
     def positions(self) -> dict[str, int]:
@@ -241,6 +243,8 @@ def apply_event(state: JobState, event: Mapping[str, Any]) -> JobState:
     if kind == "de_energised":
         return replace(state, clocks=_switched_off(state.clocks, event,
                                                    event["data"].get("channel")))
+    if kind == "amendment":
+        return replace(state, amendments=(*state.amendments, event))
     if kind == "returned":
         # The job reopens for its signatures; the work recorded stays, every event is kept.
         completed = {k: v for k, v in state.completed.items()
@@ -352,8 +356,11 @@ def check_event(state: JobState, kind: str, step_id: str | None, data: Mapping[s
     if kind not in CLIENT_EVENT_KINDS:
         raise RuleRefusal("unknown_event_kind", f"'{kind}' is not something this station "
                           "records; known: " + ", ".join(CLIENT_EVENT_KINDS) + ".")
+    if kind == "amendment":
+        return _check_amendment(state, step_id, data)
     if state.status != "open":
-        raise RuleRefusal("job_not_open", "This job is no longer open for work.")
+        raise RuleRefusal("job_not_open", "This job is certified and closed: a correction is "
+                          "made as an amendment.")
     if kind == "tag_taken_over":
         gates.check_tag_taken_over(data, at.tags, at.person_id)
         return data
@@ -448,6 +455,24 @@ def _check_completion(state: JobState, target: StepProgress, data: Mapping[str, 
     elif isinstance(step, Sign):
         return _check_signature(state, target, at)
     return data
+
+
+def _check_amendment(state: JobState, step_id: str | None, data: Mapping[str, Any]
+                     ) -> dict[str, Any]:
+    """A correction after certification: who (the event's person), why and what; it makes a
+    new record revision and never overwrites the earlier one."""
+    if state.status != "complete":
+        raise RuleRefusal("not_certified", "Amendments are for certified jobs; while a job is "
+                          "open its steps are corrected by recording them again.")
+    if step_id is not None and step_id not in state.positions:
+        raise RuleRefusal("unknown_step", f"Step '{step_id}' is not part of this job.")
+    stored: dict[str, Any] = {}
+    for name, asked in (("what", "Say what is corrected."), ("why", "Say why.")):
+        value = data.get(name)
+        if not isinstance(value, str) or not value.strip():
+            raise readings.InputProblem(name, asked)
+        stored[name] = value.strip()
+    return {**stored, "meaning": "Amended"}
 
 
 def _check_return(state: JobState, data: Mapping[str, Any], at: Circumstances

@@ -289,6 +289,7 @@ class WorkRecord:
     chain_events: int
     chain_status: str
     refusals: list[Entry] = field(default_factory=list)
+    amendments: list[Entry] = field(default_factory=list)   # corrections after certification
 
     @property
     def findings(self) -> list[ReadingLine]:
@@ -390,6 +391,9 @@ def gather(db: Database, job_id: int, now: datetime,
                         station_time(r["received_at"]), numbers.get(r["step_id"]),
                         f"{r['rule']}: {r['reason']}")
                   for r in job_store.refusals(db, job_id)],
+        amendments=[Entry(a["data"]["what"], who(a["person_id"]),
+                          station_time(a["received_at"]), numbers.get(a["step_id"]),
+                          a["data"]["why"]) for a in state.amendments],
     )
 
 

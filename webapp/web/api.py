@@ -18,7 +18,7 @@ from ..domain.execution import CLIENT_EVENT_KINDS, JobState, StepProgress
 from ..domain.gates import ChannelClock
 from ..domain.procedures import Check, Lockout, Reading, Torque
 from ..store import fleet as fleet_store
-from .common import authority, db, now, person, public, requires
+from .common import SUPERVISOR_EVENTS, authority, db, now, person, public, requires
 from .openapi import openapi_document
 
 bp = Blueprint("api", __name__)
@@ -172,7 +172,7 @@ def post_event(job_id: int) -> Any:
     except ValidationError as err:
         return _malformed(err)
     assert isinstance(body, EventIn)
-    if not person().has("mechanic") and body.kind != "signed":
+    if not person().has("mechanic") and body.kind not in SUPERVISOR_EVENTS:
         return jsonify({"rule": "http_403", "reason": "Mechanics record the work; a "
                         "supervisor signs it."}), 403
     device_time = body.device_time.isoformat() if isinstance(body.device_time, datetime) else None

@@ -18,6 +18,9 @@ from ..store.people import Person
 
 csrf = CSRFProtect()
 
+# What a supervisor who is not also a mechanic may send about a job: never the work itself.
+SUPERVISOR_EVENTS = ("signed", "returned", "amendment")
+
 F = TypeVar("F", bound=Callable[..., Any])
 
 

@@ -15,7 +15,7 @@ from ..domain.readings import InputProblem
 from ..store import fleet as fleet_store
 from ..store import jobs as job_store
 from ..store import people
-from .common import authority, db, now, page_or_fragment, person, requires
+from .common import SUPERVISOR_EVENTS, authority, db, now, page_or_fragment, person, requires
 from .gate_views import gate_context
 
 bp = Blueprint("mechanic", __name__)
@@ -99,6 +99,9 @@ def _event_data(kind: str, form: Any) -> dict[str, Any]:
         return _reading_data(form)
     if kind == "signed":
         return {"pin": form.get("pin", "")}
+    if kind == "amendment":
+        return {"what": form.get("what", ""), "why": form.get("why", ""),
+                "pin": form.get("pin", "")}
     if kind == "sparks_counted":
         return _count_data(form)
     if kind == "finding":
@@ -158,7 +161,7 @@ def _device_time(text: str | None) -> str | None:
 @requires("mechanic", "supervisor")
 def record(job_id: int, step_id: str | None = None) -> Any:
     form = request.form
-    if not person().has("mechanic") and form.get("kind") != "signed":
+    if not person().has("mechanic") and form.get("kind") not in SUPERVISOR_EVENTS:
         abort(403, "Mechanics record the work; a supervisor signs it.")
     event_id = form.get("event_id", "")
     try:

@@ -85,6 +85,10 @@ def decide(job_id: int) -> Any:
         data: dict[str, Any] = {"pin": form.get("pin", "")}
     elif action == "return":
         kind, step_id, data = "returned", None, {"reason": form.get("reason", "")}
+    elif action == "amend":
+        kind, step_id = "amendment", form.get("step") or None
+        data = {"what": form.get("what", ""), "why": form.get("why", ""),
+                "pin": form.get("pin", "")}
     else:
         abort(400, "Choose to certify or to return the job.")
     outcome = recording.record_event(db(), job_id, event_id=form.get("event_id") or
