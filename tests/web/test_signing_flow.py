@@ -92,3 +92,22 @@ def test_a_person_without_a_signing_key_cannot_sign(mechanic, login, db, clock, 
 
 def db_path_of(db) -> str:
     return db.execute("PRAGMA database_list").fetchone()[2]
+
+
+def test_a_revoked_person_cannot_sign_but_earlier_signatures_stay_valid(login, db, clock,
+                                                                         app):
+    mech1 = login("mech1")
+    first = Job(mech1, db, clock, "exciter-removal")
+    first.walk_to("performer")
+    first.ok(sign("performer", DEMO_PINS["mech1"]))
+    second = Job(mech1, db, clock, "exciter-removal", channel="B")
+    second.walk_to("performer", tags=("T-3", "T-4"))
+    admin = login("admin")
+    person_id = next(db.query("select id from people where username = 'mech1'"))["id"]
+    assert admin.post_form(f"/people/{person_id}/revoke", {}).status_code == 303
+    answer = mech1.post_json(second.url, sign("performer", DEMO_PINS["mech1"]))
+    assert answer.status_code in (401, 302, 409)      # logged out: the session is refused
+    authority = station_authority(app.config["DB_PATH"], "x", clock())
+    report = verify_record(signers.latest_record(db, first.id)["pdf"], authority.cert)[0]
+    assert report.intact and report.valid and report.trusted   # the earlier one still holds
+    assert signers.signer(db, person_id)["revoked_at"] is not None

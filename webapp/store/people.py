@@ -86,3 +86,10 @@ def login_failures_since(db: Database, username: str, since: datetime) -> int:
 
 def clear_login_failures(db: Database, username: str) -> None:
     db.execute("delete from login_failures where username = ?", [username])
+
+
+def revoke(db: Database, person_id: int, at: datetime) -> None:
+    """End a person's access: no log-in, no new signature (their earlier ones stay valid)."""
+    db.execute("update people set active = 0 where id = ?", [person_id])
+    db.execute("update signers set revoked_at = ? where person_id = ? and revoked_at is null",
+               [at.isoformat(), person_id])

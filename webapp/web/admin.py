@@ -31,3 +31,17 @@ def people_page() -> Any:
     return render_template("admin/people.html", people=people.all_people(db()),
                            roles=people.ROLES, error=error, added=added,
                            form=request.form if error else {}), status
+
+
+@bp.post("/people/<int:person_id>/revoke")
+@requires("admin")
+def revoke(person_id: int) -> Any:
+    from flask import abort, redirect, url_for
+
+    from .. import store
+
+    if people.person_by_id(db(), person_id) is None:
+        abort(404)
+    with store.writing(db()):
+        people.revoke(db(), person_id, now())
+    return redirect(url_for("admin.people_page"), code=303)
