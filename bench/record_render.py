@@ -1,0 +1,376 @@
+"""Bench: the work-record PDF render and render + sign against a one-page floor, in one run.
+
+Measures median and p95 wall time of
+
+  floor        pdf_of_html of a minimal page (record.css, a short paragraph, one small
+               table): one A4 page through the same WeasyPrint, fetcher and fonts
+  render       render_work_record(db, job, now, signatures=...) of a real exciter-removal
+               job walked to its performer sign step and signed there
+  render_sign  the same render, then sign_record with the performer's signer
+
+and prints the ratios render/floor and render_sign/floor against the target
+(render_sign <= 3x the floor), the absolute medians against <= 1 s for a 1-3 page
+record, and the record's page count. The three are interleaved round by round, so
+machine noise falls on all of them alike.
+
+The signer is unsealed once, outside the timing: the timed signing uses the unsealed
+signer. The station unseals the key with the PIN (Argon2id) on every signature; that
+cost is measured separately and printed, not counted in render_sign.
+
+    .venv/bin/python bench/record_render.py [--iterations 20] [--warmup 2]
+                                            [--profile] [--dir PATH]
+"""
+
+from __future__ import annotations
+
+import argparse
+import cProfile
+import io
+import os
+import pstats
+import statistics
+import sys
+import tempfile
+import time
+import uuid
+from collections.abc import Callable
+from datetime import UTC, datetime, timedelta
+from pathlib import Path
+from typing import Any
+
+from pypdf import PdfReader
+
+from webapp import create_app, recording, store
+from webapp.authority import station_authority
+from webapp.domain.procedures import Advisory, Check, DischargeWait, Lockout, Reading, Sign, Torque
+from webapp.library import load_shop_library
+from webapp.records import identity, signing
+from webapp.records.pdf import font_configuration, pdf_of_html, render_work_record
+from webapp.scenario import load_scenario, read_scenario, scenario_path
+from webapp.store import fleet, people
+from webapp.store import signers as signer_store
+
+RATIO_TARGET = 3.0  # render + sign <= 3x the one-page floor
+ABSOLUTE_TARGET_S = 1.0  # <= 1 s for a 1-3 page record
+PROCEDURE = "exciter-removal"
+MECHANIC = "mech1"
+SIGN_STEP = "performer"
+UNSEAL_ROUNDS = 3
+
+FLOOR_HTML = """<!doctype html>
+<html lang="en">
+<head>
+<meta charset="utf-8">
+<title>Bench floor page</title>
+<link rel="stylesheet" href="/static/css/record.css">
+</head>
+<body class="record-document">
+<article class="work-record">
+<h1>Bench page</h1>
+<p>A short paragraph of ordinary text, so the floor lays out one line box or two in the
+record's fonts.</p>
+<table class="fields">
+<tr><th scope="row">Aircraft registration</th><td>XX-BNC</td>
+    <th scope="row">Engine serial</th><td>QE-0001</td></tr>
+<tr><th scope="row">Channel</th><td>A</td>
+    <th scope="row">Job</th><td>1</td></tr>
+</table>
+</article>
+</body>
+</html>
+"""
+
+
+# --- the job, walked through recording like the API does --------------------------------
+
+def _reading_data(step: Reading | Torque) -> dict[str, Any]:
+    """A reading inside the step's limits, in the step's own unit (as tests/web/jobs.py)."""
+    if isinstance(step, Reading) and step.value == "text":
+        return {"text": "XEX-1001-03 / XE-9001 (demo)"}
+    if isinstance(step, Reading) and step.value == "pass_fail":
+        return {"result": "pass"}
+    assert step.limits is not None, step.id
+    low, high = step.limits.min, step.limits.max
+    value = ((low + high) / 2 if low is not None and high is not None
+             else low * 1.5 if low is not None else (high or 0) / 2)
+    data: dict[str, Any] = {"value": str(value), "unit": step.unit}
+    if isinstance(step, Torque):
+        data.update(wrench_id="TW-017", calibration_due="2027-06-30")
+        return data
+    for condition in step.conditions:
+        data[condition] = ({"value": "45"} if condition == "humidity" else
+                           {"value": "1000", "unit": "V"} if condition == "test_voltage" else
+                           {"value": "18", "unit": "degC"})
+    if step.wear:
+        data["usage"] = {"engine_hours": 812, "starts": 760, "continuous_ignition_hours": 150}
+    return data
+
+
+def walk_to_sign(db: store.Database, job_id: int, person: Any, now: datetime) -> datetime:
+    """Record every step before the performer's signature, in order; returns the clock."""
+
+    def record(kind: str, step_id: str, data: dict[str, Any]) -> None:
+        outcome = recording.record_event(db, job_id, event_id=str(uuid.uuid4()), kind=kind,
+                                         step_id=step_id, data=data, device_time=None,
+                                         person=person, now=now)
+        assert outcome.status == "stored", (step_id, kind, outcome)
+
+    while True:
+        nxt = recording.load_job(db, job_id).state.next_step
+        assert nxt is not None, "the job ended before its sign step"
+        step = nxt.step
+        if isinstance(step, Sign):
+            assert step.id == SIGN_STEP and step.role == "performer", step.id
+            return now
+        if isinstance(step, Advisory) and step.kind in ("warning", "caution"):
+            record("acknowledged", step.id, {})
+        elif isinstance(step, Lockout) and step.action == "apply":
+            for breaker, tag in zip(step.breakers, ("T-1", "T-2"), strict=False):
+                record("breaker_tagged", step.id, {"breaker": breaker.id, "tag": tag})
+            record("step_done", step.id, {})
+        elif isinstance(step, DischargeWait):
+            now += timedelta(seconds=120)  # past the 2 min minimum of the demo exciter
+            record("step_done", step.id, {})
+        elif isinstance(step, (Reading, Torque)):
+            record("reading_recorded", step.id, _reading_data(step))
+        elif isinstance(step, (Advisory, Check)):
+            items = getattr(step, "items", None) or []
+            record("step_done", step.id, {"items": list(range(len(items)))} if items else {})
+        else:
+            raise AssertionError(f"{PROCEDURE} has no {step.kind} step; the walk does not "
+                                 "know how to record one")
+        now += timedelta(seconds=20)
+
+
+def build_station(tmp: Path) -> tuple[Path, Any, datetime]:
+    """A demo station database, built as tests/conftest.py builds it, with its authority."""
+    db_path = tmp / "station.db"
+    now = datetime.now(UTC).replace(microsecond=0) - timedelta(hours=1)
+    db = store.create(db_path)
+    try:
+        load_shop_library(db, now)
+        authority = station_authority(db_path, "Bench station", now)
+        load_scenario(db, read_scenario(scenario_path()), now, authority)
+    finally:
+        db.close()
+    return db_path, authority, now
+
+
+def signed_job(db: store.Database, authority: Any, now: datetime) -> dict[str, Any]:
+    """One exciter-removal job walked to its performer step and signed there through
+    recording, the app's own path (unseal, chain, render, sign, store). Needs an app context:
+    the record template comes from the app."""
+    pin = next(p.pin for p in read_scenario(scenario_path()).people if p.username == MECHANIC)
+    mech = people.person_by_username(db, MECHANIC)
+    assert mech is not None
+    engine_id = fleet.fleet(db)[0]["engines"][0]["id"]
+    job_id = recording.open_job(db, procedure_id=PROCEDURE, engine_id=engine_id,
+                                channel="A", person=mech, now=now)
+    now = walk_to_sign(db, job_id, mech, now + timedelta(seconds=20))
+    outcome = recording.record_event(db, job_id, event_id=str(uuid.uuid4()), kind="signed",
+                                     step_id=SIGN_STEP, data={"pin": pin}, device_time=None,
+                                     person=mech, now=now, authority=authority)
+    assert outcome.status == "stored", outcome
+    stored = signer_store.latest_record(db, job_id)
+    assert stored is not None and stored["signatures"] == 1
+    enrolled = signer_store.signer(db, mech.id)
+    assert enrolled is not None
+    enrolment = identity.Enrolment(cert_pem=enrolled["cert_pem"],
+                                   sealed=identity.SealedKey.from_json(enrolled["sealed_key"]))
+    return {"job_id": job_id, "now": now, "pin": pin, "person": mech, "authority": authority,
+            "enrolment": enrolment, "stored_pdf": stored["pdf"],
+            "steps_done": len(recording.load_job(db, job_id).state.completed)}
+
+
+# --- measuring ----------------------------------------------------------------------------
+
+def percentile(values: list[float], p: float) -> float:
+    ordered = sorted(values)
+    rank = (len(ordered) - 1) * p
+    low = int(rank)
+    high = min(low + 1, len(ordered) - 1)
+    return ordered[low] + (ordered[high] - ordered[low]) * (rank - low)
+
+
+def timed(fn: Callable[[], Any]) -> float:
+    start = time.perf_counter()
+    fn()
+    return time.perf_counter() - start
+
+
+def pages_of(pdf: bytes) -> int:
+    return len(PdfReader(io.BytesIO(pdf)).pages)
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("--iterations", type=int, default=20, help="timed rounds (default 20)")
+    parser.add_argument("--warmup", type=int, default=2, help="untimed rounds first (default 2)")
+    parser.add_argument("--dir", type=Path, default=None,
+                        help="put the temporary station here (default: the system temp dir)")
+    parser.add_argument("--profile", action="store_true",
+                        help="after timing, profile extra renders and signings")
+    args = parser.parse_args(argv)
+    if args.iterations < 2 or args.warmup < 0:
+        parser.error("--iterations must be at least 2, --warmup at least 0")
+
+    with tempfile.TemporaryDirectory(prefix="sparkward-bench-", dir=args.dir) as tmpname:
+        tmp = Path(tmpname)
+        # Keep the bench hermetic: no instance file from the working directory.
+        os.environ["SPARKWARD_INSTANCE"] = str(tmp / "instance")
+        os.environ.pop("SPARKWARD_DB", None)
+        setup_started = time.perf_counter()
+        db_path, authority, now = build_station(tmp)
+        app = create_app({"DB_PATH": str(db_path), "SECRET_KEY": "bench", "TESTING": False})
+        with app.app_context():
+            db = store.connect(db_path)
+            try:
+                built = signed_job(db, authority, now)
+                run(db, built, args, time.perf_counter() - setup_started)
+            finally:
+                db.close()
+    return 0
+
+
+def run(db: store.Database, built: dict[str, Any], args: argparse.Namespace,
+        setup_s: float) -> None:
+    job_id, now, person = built["job_id"], built["now"], built["person"]
+    authority, enrolment, pin = built["authority"], built["enrolment"], built["pin"]
+    state = recording.load_job(db, job_id).state
+    signatures = recording.signatures_of(state)
+    assert [s["step"] for s in signatures] == [SIGN_STEP], signatures
+    meaning = f"{signatures[0]['meaning']} ({signatures[0]['scope']})"
+
+    # Unsealed once, outside the timing (Argon2id); the timed signing reuses it.
+    signer = identity.signer_for(enrolment, pin, authority.cert)
+    font_configuration()  # the process's one FontConfiguration, built before any timing
+
+    def floor() -> bytes:
+        return pdf_of_html(FLOOR_HTML)
+
+    def render() -> bytes:
+        return render_work_record(db, job_id, now, signatures=signatures)
+
+    sign_share: list[float] = []
+
+    def sign(pdf: bytes) -> bytes:
+        # sign_record runs pyHanko in signing.py's worker thread and waits for it.
+        return signing.sign_record(pdf, signer, field_name=SIGN_STEP, meaning=meaning,
+                                   signer_name=person.full_name)
+
+    def render_sign() -> bytes:
+        pdf = render()
+        started = time.perf_counter()
+        signed = sign(pdf)
+        sign_share.append(time.perf_counter() - started)
+        return signed
+
+    # Sanity, outside the timing: one page for the floor, the record as the app stored it,
+    # and a signature that verifies against the station's authority.
+    floor_pages = pages_of(floor())
+    assert floor_pages == 1, f"the floor should be one page, it is {floor_pages}"
+    record_pdf = render()
+    record_pages = pages_of(record_pdf)
+    stored_pages = pages_of(built["stored_pdf"])
+    assert record_pages == stored_pages, (record_pages, stored_pages)
+    signed = render_sign()
+    reports = signing.verify_record(signed, authority.cert)
+    assert signing.all_good(reports) and len(reports) == 1, [r.summary for r in reports]
+    sign_share.clear()
+
+    benches: dict[str, Callable[[], bytes]] = {
+        "floor": floor, "render": render, "render_sign": render_sign}
+    names = list(benches)
+    samples: dict[str, list[float]] = {n: [] for n in names}
+    started = time.perf_counter()
+    for round_no in range(args.warmup + args.iterations):
+        shift = round_no % len(names)  # rotate the order so no bench always follows another
+        if round_no == args.warmup:
+            sign_share.clear()
+        for name in names[shift:] + names[:shift]:
+            elapsed = timed(benches[name])
+            if round_no >= args.warmup:
+                samples[name].append(elapsed)
+    wall = time.perf_counter() - started
+
+    unseal = [timed(lambda: identity.signer_for(enrolment, pin, authority.cert))
+              for _ in range(UNSEAL_ROUNDS)]
+
+    report(samples, sign_share, unseal, args, wall, setup_s,
+           {"record_pages": record_pages, "record_kib": len(record_pdf) / 1024,
+            "steps_done": built["steps_done"], "floor_pages": floor_pages})
+
+    if args.profile:
+        profile(render, record_pdf, signer, meaning, person.full_name, max(5, args.iterations // 2))
+
+
+def report(samples: dict[str, list[float]], sign_share: list[float], unseal: list[float],
+           args: argparse.Namespace, wall: float, setup_s: float, facts: dict[str, Any]) -> None:
+    stats = {n: (statistics.median(v) * 1000, percentile(v, 0.95) * 1000)
+             for n, v in samples.items()}
+    print(f"Sparkward bench: work-record PDF, {args.iterations} timed rounds after "
+          f"{args.warmup} warm-up, interleaved ({wall:.1f} s; station built in {setup_s:.1f} s)")
+    print(f"record: {PROCEDURE} job walked by {MECHANIC} to its {SIGN_STEP} step and signed "
+          f"there ({facts['steps_done']} steps done), {facts['record_pages']} page"
+          f"{'' if facts['record_pages'] == 1 else 's'}, {facts['record_kib']:.0f} KiB "
+          f"unsigned; floor: {facts['floor_pages']} page")
+    print("render_sign signs with a signer unsealed once before timing (no Argon2id in it)")
+    print()
+    print(f"{'measure':<14}{'median ms':>11}{'p95 ms':>10}")
+    for name, (med, p95) in stats.items():
+        print(f"{name:<14}{med:>11.1f}{p95:>10.1f}")
+    sign_med = statistics.median(sign_share) * 1000
+    print(f"{'  of it sign':<14}{sign_med:>11.1f}{percentile(sign_share, 0.95) * 1000:>10.1f}")
+    print()
+    print(f"{'ratio':<22}{'median':>8}{'p95':>8}  target  met (median / p95)")
+    for label, num, target in (("render / floor", "render", None),
+                               ("render_sign / floor", "render_sign", RATIO_TARGET)):
+        rm = stats[num][0] / stats["floor"][0]
+        rp = stats[num][1] / stats["floor"][1]
+        if target is None:
+            print(f"{label:<22}{rm:>7.2f}x{rp:>7.2f}x  (no target)")
+        else:
+            met = " / ".join("yes" if r <= target else "NO" for r in (rm, rp))
+            print(f"{label:<22}{rm:>7.2f}x{rp:>7.2f}x  <= {target:.0f}x  {met}")
+    print()
+    limit_ms = ABSOLUTE_TARGET_S * 1000
+    for name in ("render", "render_sign"):
+        med, p95 = stats[name]
+        met = " / ".join("yes" if v <= limit_ms else "NO" for v in (med, p95))
+        print(f"{name:<14}median {med:7.1f} ms, p95 {p95:7.1f} ms  "
+              f"<= {limit_ms:.0f} ms for a 1-3 page record: {met} (median / p95)")
+    print(f"\nNot counted above: the station unseals the signer's key with the PIN on every "
+          f"signature, {statistics.median(unseal) * 1000:.0f} ms (median of {len(unseal)}).")
+
+
+def profile(render: Callable[[], bytes], pdf: bytes, signer: Any, meaning: str,
+            signer_name: str, rounds: int) -> None:
+    prof = cProfile.Profile()
+    prof.enable()
+    for _ in range(rounds):
+        render()
+    prof.disable()
+    _print_profile(prof, f"render_work_record, {rounds} renders")
+
+    # pyHanko runs in signing.py's worker thread; profile it there (cProfile is per thread).
+    def profiled_sign() -> cProfile.Profile:
+        inner = cProfile.Profile()
+        inner.enable()
+        for _ in range(rounds):
+            signing._sign(pdf, signer, SIGN_STEP, meaning, signer_name, None)
+        inner.disable()
+        return inner
+
+    _print_profile(signing._off_thread(profiled_sign), f"sign_record, {rounds} signings")
+
+
+def _print_profile(prof: cProfile.Profile, title: str) -> None:
+    for order in ("cumulative", "tottime"):
+        out = io.StringIO()
+        pstats.Stats(prof, stream=out).sort_stats(order).print_stats(30)
+        print(f"\n=== profile: {title}, by {order} time ===")
+        print(out.getvalue())
+
+
+if __name__ == "__main__":
+    sys.exit(main())
