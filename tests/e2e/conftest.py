@@ -44,3 +44,15 @@ def tap(page, selector: str) -> None:
     page.click(selector)
     page.wait_for_function(
         "() => !document.querySelector('.htmx-request, .htmx-swapping')")
+
+
+def open_removal_to_warning(page, base_url: str) -> None:
+    """mech1 opens the exciter removal on DEMO-101 engine 1 channel A and does its first two
+    steps (identify; selectors off, every item ticked): the lethal-energy WARNING is next."""
+    log_in(page, base_url, "mech1", "demo-mech1")
+    page.click("[data-testid=engine-QT6-10231]")
+    page.click("[data-testid=open-exciter-removal-A]")
+    tap(page, "[data-testid=done]")
+    for index in range(3):
+        page.check(f"[data-testid=item-{index}]")
+    tap(page, "[data-testid=done]")

@@ -8,20 +8,14 @@ from pathlib import Path
 
 from playwright.sync_api import expect
 
-from .conftest import log_in, tap
+from .conftest import log_in, open_removal_to_warning, tap
 
 ARTIFACTS = Path(__file__).resolve().parents[1] / "artifacts"
 
 
 def _walk_to_discharge_wait(page, live_server):
-    log_in(page, live_server, "mech1", "demo-mech1")
-    page.click("[data-testid=engine-QT6-10231]")
-    page.click("[data-testid=open-exciter-removal-A]")
+    open_removal_to_warning(page, live_server)
     step = page.get_by_test_id("step")
-    tap(page, "[data-testid=done]")
-    for index in range(3):
-        page.check(f"[data-testid=item-{index}]")
-    tap(page, "[data-testid=done]")
     tap(page, "[data-testid=acknowledge]")
     expect(step).to_have_attribute("data-step-kind", "lockout")
     # Confirming before every breaker is tagged is refused on screen.
@@ -89,13 +83,7 @@ def test_functional_check_handover_release_and_duty_cycle(browser, live_server, 
     # mech1 locks the engine out in a removal job and goes home.
     first = browser.new_context(viewport={"width": 1024, "height": 768})
     page = first.new_page()
-    log_in(page, live_server, "mech1", "demo-mech1")
-    page.click("[data-testid=engine-QT6-10231]")
-    page.click("[data-testid=open-exciter-removal-A]")
-    tap(page, "[data-testid=done]")
-    for index in range(3):
-        page.check(f"[data-testid=item-{index}]")
-    tap(page, "[data-testid=done]")
+    open_removal_to_warning(page, live_server)
     tap(page, "[data-testid=acknowledge]")
     for breaker, tag in (("IGN-A", "T-4471"), ("IGN-B", "T-4472")):
         page.fill(f"[data-testid=tag-number-{breaker}]", tag)

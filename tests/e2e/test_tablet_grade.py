@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from .conftest import log_in, tap
+from .conftest import log_in, open_removal_to_warning, tap
 
 VIEWPORTS = {
     "phone-portrait": {"width": 360, "height": 740},
@@ -111,13 +111,7 @@ def test_screens_are_tablet_grade(browser, live_server, viewport):
 def test_warning_step_is_marked_by_word_and_shape_not_colour_alone(browser, live_server):
     context = browser.new_context(viewport=VIEWPORTS["tablet-landscape"])
     page = context.new_page()
-    log_in(page, live_server, "mech1", "demo-mech1")
-    page.click("[data-testid=engine-QT6-10231]")
-    page.click("[data-testid=open-exciter-removal-A]")
-    tap(page, "[data-testid=done]")
-    for index in range(3):
-        page.check(f"[data-testid=item-{index}]")
-    tap(page, "[data-testid=done]")
+    open_removal_to_warning(page, live_server)
     heading = page.locator("[data-step-kind=warning] .step-heading")
     assert "WARNING" in heading.inner_text() and "⚠" in heading.inner_text()
     _audit(page, "warning step")
