@@ -177,6 +177,8 @@ def test_tapped_count_gives_the_rate_and_flags_a_double_tap(check):
     assert reading["rate"] == pytest.approx(80.0)
     assert reading["double_taps"] == [5]
     assert reading["verdict"] == "within"
+    page = check.client.get(f"/jobs/{check.id}").get_data(as_text=True)
+    assert "80 per minute (1 double tap(s) left out)" in page  # shown once the step is done
 
 
 def test_timed_count_gives_rate_with_its_resolution(check):

@@ -90,6 +90,17 @@ def reading_summary(data: dict) -> str:
         return ""
     if "rate" in data:
         shown = f"{data['rate']:.0f} per minute"
+        if data.get("method") == "timed":
+            shown += f" ({data['count']} in {data['window_s']:g} s, ±{data['resolution']:g})"
+        flags = []
+        if data.get("double_taps"):
+            flags.append(f"{len(data['double_taps'])} double tap(s) left out")
+        if data.get("missed"):
+            flags.append(f"{sum(m[1] for m in data['missed'])} missed snap(s) counted")
+        if flags:
+            shown += " (" + ", ".join(flags) + ")"
+        if data.get("both_check"):
+            shown += f"; A + B: {data['both_check']['result']}"
     elif "value" in data and "unit" in data:
         shown = f"{data['value']:g} {unit_label(data['unit'])}"
         if data["unit"] != data.get("procedure_unit"):
