@@ -38,6 +38,7 @@ from datetime import UTC, datetime, timedelta
 from pathlib import Path
 from typing import Any
 
+from measuring import percentile, timed  # bench/ is on sys.path when a bench runs
 from pypdf import PdfReader
 
 from webapp import create_app, recording, store
@@ -183,20 +184,6 @@ def signed_job(db: store.Database, authority: Any, now: datetime) -> dict[str, A
 
 
 # --- measuring ----------------------------------------------------------------------------
-
-def percentile(values: list[float], p: float) -> float:
-    ordered = sorted(values)
-    rank = (len(ordered) - 1) * p
-    low = int(rank)
-    high = min(low + 1, len(ordered) - 1)
-    return ordered[low] + (ordered[high] - ordered[low]) * (rank - low)
-
-
-def timed(fn: Callable[[], Any]) -> float:
-    start = time.perf_counter()
-    fn()
-    return time.perf_counter() - start
-
 
 def pages_of(pdf: bytes) -> int:
     return len(PdfReader(io.BytesIO(pdf)).pages)

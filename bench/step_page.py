@@ -35,6 +35,7 @@ from pathlib import Path
 from typing import Any
 
 from flask import Flask, jsonify, render_template, request
+from measuring import percentile, timed  # bench/ is on sys.path when a bench runs
 
 from webapp import create_app, recording, store
 from webapp.library import load_shop_library
@@ -174,20 +175,6 @@ def log_in(client: Any) -> str:
 
 
 # --- measuring ----------------------------------------------------------------------------
-
-def percentile(values: list[float], p: float) -> float:
-    ordered = sorted(values)
-    rank = (len(ordered) - 1) * p
-    low = int(rank)
-    high = min(low + 1, len(ordered) - 1)
-    return ordered[low] + (ordered[high] - ordered[low]) * (rank - low)
-
-
-def timed(fn: Callable[[], None]) -> float:
-    start = time.perf_counter()
-    fn()
-    return time.perf_counter() - start
-
 
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
