@@ -26,6 +26,7 @@ from .domain.execution import (
     check_event,
     configuration_for,
     job_state,
+    needs_engine_tags,
 )
 from .domain.gates import Tag
 from .domain.readings import InputProblem
@@ -164,7 +165,8 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
             return Outcome("refused", refusal=refusal)
         job = load_job(db, job_id)
         try:
-            tags = engine_tags(db, job.row["engine_id"])
+            tags = (engine_tags(db, job.row["engine_id"])
+                    if needs_engine_tags(job.state, kind, step_id) else {})
             if kind == "tag_removed" and isinstance(data.get("absent_owner"), dict):
                 _check_authorising_supervisor(db, data["absent_owner"])
             at = Circumstances(now=now, device_now=_device_time(device_time),

@@ -156,3 +156,15 @@ def test_a_signature_is_not_a_tick():
     with pytest.raises(RuleRefusal) as refused:
         check_event(state, "step_done", "performer", {}, AT)
     assert refused.value.rule == "wrong_event_for_step"
+
+
+def test_the_engine_s_tags_are_read_only_for_the_events_that_need_them():
+    from webapp.domain.execution import needs_engine_tags
+
+    state = _state()
+    for kind in ("breaker_tagged", "tag_taken_over", "tag_removed", "energised"):
+        assert needs_engine_tags(state, kind, None)
+    assert needs_engine_tags(state, "step_done", "breakers")        # completing the lockout
+    assert not needs_engine_tags(state, "step_done", "identify")
+    assert not needs_engine_tags(state, "acknowledged", "lethal-energy-breakers")
+    assert not needs_engine_tags(state, "reading_recorded", "removed-serial")

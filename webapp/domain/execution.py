@@ -346,6 +346,15 @@ class Circumstances:
     roles: tuple[str, ...] = ()
 
 
+def needs_engine_tags(state: JobState, kind: str, step_id: str | None) -> bool:
+    """Whether checking this event needs the tags hanging on the engine (read from every job
+    on it): tag events, energising, and completing a lockout step."""
+    if kind in gates.TAG_EVENT_KINDS or kind == "energised":
+        return True
+    target = state.step(step_id) if step_id and kind == "step_done" else None
+    return target is not None and isinstance(target.step, Lockout)
+
+
 def check_event(state: JobState, kind: str, step_id: str | None, data: Mapping[str, Any],
                 at: Circumstances) -> Mapping[str, Any]:
     """Refuse an event the rules do not allow, with a reason a mechanic understands; return

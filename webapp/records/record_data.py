@@ -31,11 +31,11 @@ from ..domain.procedures import (
     Torque,
 )
 from ..domain.readings import VERDICT_SYMBOL
+from ..shown import limits_text, unit_label
 from ..store import Database, fleet, people
 from ..store import jobs as job_store
 from ..store import procedures as procedure_store
 from ..store import wear as wear_store
-from ..web.reading_views import limits_text, unit_label
 
 NONE = "none"
 # What each sign step's signature means (21 CFR 11.50(a)(3): the meaning is printed with it).
@@ -296,13 +296,6 @@ class WorkRecord:
         return [r for r in self.readings if r.finding]
 
 
-# --- queries this record needs that the store does not offer ---------------------------
-
-def station_settings(db: Database) -> dict[str, str]:
-    """The station's settings (operator name, approval reference) as key -> value."""
-    return {row["key"]: row["value"] for row in db.query("select key, value from settings")}
-
-
 # --- gathering -------------------------------------------------------------------------
 
 def _consistent_read(db: Database, job_id: int) -> tuple[recording.Job, list[dict[str, Any]]]:
@@ -334,7 +327,7 @@ def gather(db: Database, job_id: int, now: datetime,
     who = _People(db)
     numbers = {p.id: p.number for p in state.steps}
     engine = fleet.engine(db, row["engine_id"]) or {}
-    settings = station_settings(db)
+    settings = fleet.settings(db)
     revision = procedure_store.revision(db, row["revision_hash"]) or {}
     procedure = state.procedure
     source = procedure.source

@@ -13,6 +13,11 @@ def set_operator(db: Database, name: str, approval: str) -> None:
                                {"key": "operator_approval", "value": approval}], pk="key")
 
 
+def settings(db: Database) -> dict[str, str]:
+    """The station's settings (operator name, approval reference) as key -> value."""
+    return {row["key"]: row["value"] for row in db.table("settings").rows}
+
+
 def add_aircraft(db: Database, registration: str, model: str, operator: str) -> int:
     row = {"registration": registration, "model": model, "operator": operator}
     return new_row_id(db.table("aircraft").insert(row))

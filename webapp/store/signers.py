@@ -59,8 +59,3 @@ def records_of(db: Database, job_id: int) -> list[dict]:
     return list(db.query("select id, job_id, revision, signatures, chain_hash, created_at, "
                          "supersedes, reason from records where job_id = ? "
                          "order by revision, signatures", [job_id]))
-
-
-def setting(db: Database, key: str) -> str | None:
-    rows = list(db.table("settings").rows_where("key = ?", [key], limit=1))
-    return rows[0]["value"] if rows else None

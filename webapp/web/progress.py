@@ -17,7 +17,7 @@ from jinja2.filters import do_truncate
 from markupsafe import Markup, escape
 
 from ..domain.execution import JobState
-from .reading_views import reading_summary
+from ..shown import reading_summary
 
 _MARKS = {"done": ("✓", "Done:"), "next": ("▶", "Now:"), "waiting": ("○", "To do:")}
 
