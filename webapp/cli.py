@@ -173,13 +173,19 @@ def people() -> None:
 @click.option("--password-stdin", is_flag=True, required=True,
               help="Read the password, then the signing PIN (6+ digits), one a line, from "
                    "standard input")
+@click.option("--no-signing-key", is_flag=True,
+              help="Enrol a person who never signs (no PIN line is read; no key is issued)")
 def people_add(db_path: Path | None, username: str, full_name: str, roles: tuple[str, ...],
-               authorisation: str | None, password_stdin: bool) -> None:
+               authorisation: str | None, password_stdin: bool, no_signing_key: bool) -> None:
     from .accounts import enrol
     from .authority import station_authority
 
     password = sys.stdin.readline().rstrip("\r\n")
-    pin = sys.stdin.readline().rstrip("\r\n") or None
+    pin = None if no_signing_key else sys.stdin.readline().rstrip("\r\n")
+    if pin == "":
+        raise click.ClickException(
+            "the signing PIN is missing: give it (6 or more digits) on the line after the "
+            "password, or pass --no-signing-key for a person who never signs")
     app = _app(db_path)
     db = store.create(app.config["DB_PATH"])
     try:
@@ -192,7 +198,7 @@ def people_add(db_path: Path | None, username: str, full_name: str, roles: tuple
         raise click.ClickException(str(err)) from None
     finally:
         db.close()
-    signing = "with a signing key" if pin else "without a signing key (no PIN given)"
+    signing = "with a signing key" if pin else "without a signing key (--no-signing-key)"
     click.echo(f"Enrolled {person.full_name} ({person.username}) as "
                f"{', '.join(person.roles)}, {signing}")
 

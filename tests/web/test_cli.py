@@ -89,11 +89,33 @@ def test_people_add_refuses_a_short_pin_and_stores_nobody(tmp_path):
     assert store.connect(path)["people"].count == 0
 
 
+def test_people_add_without_a_pin_line_is_refused_and_stores_nobody(tmp_path):
+    path = tmp_path / "p.db"
+    result = CliRunner().invoke(cli, [
+        "people", "add", "--db", str(path), "--username", "kim", "--name", "Kim Demo",
+        "--role", "mechanic", "--password-stdin"], input="a-long-password\n")
+    assert result.exit_code != 0 and "signing PIN is missing" in result.output
+    assert not path.exists()   # refused before the station was even opened
+
+
+def test_people_add_with_no_signing_key_enrols_a_person_who_cannot_sign(tmp_path):
+    from webapp.store import signers
+
+    path = tmp_path / "p.db"
+    result = CliRunner().invoke(cli, [
+        "people", "add", "--db", str(path), "--username", "ada", "--name", "Ada Admin",
+        "--role", "admin", "--password-stdin", "--no-signing-key"], input="a-long-password\n")
+    assert result.exit_code == 0, result.output
+    assert "without a signing key" in result.output
+    db = store.connect(path)
+    assert signers.signer(db, people.person_by_username(db, "ada").id) is None
+
+
 def test_people_add_refuses_a_short_password_and_stores_nobody(tmp_path):
     path = tmp_path / "p.db"
     result = CliRunner().invoke(cli, [
         "people", "add", "--db", str(path), "--username", "kim", "--name", "Kim Demo",
-        "--role", "mechanic", "--password-stdin"], input="short\n")
+        "--role", "mechanic", "--password-stdin"], input="short\n135791\n")
     assert result.exit_code != 0 and "at least 8" in result.output
     assert store.connect(path)["people"].count == 0
 
