@@ -44,7 +44,8 @@ case "${1:-}" in
     ;;
   test)
     shift
-    apt_install chromium
+    # pdftoppm (poppler-utils): the sign-off browser test renders the record to PNG.
+    apt_install chromium poppler-utils
     python_env
     export CHROMIUM_PATH=${CHROMIUM_PATH:-/usr/bin/chromium}
     "$VENV/bin/sparkward" tasks check

@@ -129,6 +129,8 @@ def verify(pdf_file: Path, db_path: Path | None) -> None:
                    f"{'intact' if r.intact else 'NOT INTACT'}, "
                    f"{'trusted' if r.trusted else 'NOT TRUSTED'}"
                    + (", CHANGED AFTERWARDS" if r.modified_after else ""))
+    for name in result.unsigned:
+        click.echo(f"  {name}: signature box still empty (not signed on this revision)")
     if result.chain_message:
         click.echo(f"  chain: {result.chain_message}")
     if not result.ok:

@@ -33,6 +33,7 @@ from .domain.readings import InputProblem
 from .library import procedure_of_revision
 from .records import identity
 from .records.identity import StationAuthority
+from .records.signing import StampBox
 from .store import fleet, jobs, people, procedures, signers
 from .store.people import Person
 
@@ -154,10 +155,11 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
     pin = str(data.pop("pin", "")) if signing else None
     if kind == "signed":
         data = {}
-    signer = None
+    signer, printed = None, None
     if signing and jobs.event(db, event_id) is None:
-        # The PIN's key derivation takes a third of a second: it runs before the job's log
-        # is locked for writing, so other tablets' entries do not wait for it.
+        # The PIN's key derivation (a third of a second) and printing the record (most of a
+        # second) run before the job's log is locked for writing, so other tablets' entries
+        # do not wait for them.
         try:
             signer = _unlock_signer(db, person, pin or "", authority, now)
         except RuleRefusal as refusal:
@@ -168,6 +170,8 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
                                     kind=kind, step_id=step_id, data=data, rule=refusal.rule,
                                     reason=refusal.reason, now=now)
             return Outcome("refused", refusal=refusal)
+        if kind == "signed":
+            printed = _print_ahead(db, job_id, step_id, dict(data), device_time, person, now)
     with store.writing(db):
         existing = jobs.event(db, event_id)
         if existing is not None:
@@ -179,14 +183,7 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
             return Outcome("refused", refusal=refusal)
         job = load_job(db, job_id)
         try:
-            tags = (engine_tags(db, job.row["engine_id"])
-                    if needs_engine_tags(job.state, kind, step_id) else {})
-            if kind == "tag_removed" and isinstance(data.get("absent_owner"), dict):
-                _check_authorising_supervisor(db, data["absent_owner"])
-            at = Circumstances(now=now, device_now=_device_time(device_time),
-                               person_id=person.id, job_id=job_id, tags=tags,
-                               names=people.names_by_id(db, {t.owner_id for t in tags.values()}),
-                               roles=person.roles)
+            at = _circumstances(db, job, kind, step_id, data, device_time, person, now)
             data = dict(check_event(job.state, kind, step_id, data, at))
         except InputProblem as problem:
             return Outcome("invalid", problem=problem)
@@ -198,16 +195,36 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
         if signer is not None:
             signers.clear_pin_failures(db, person.id)
             data.update(signer.manifestation)
+            if printed is None or printed.head_hash != job.head["hash"]:
+                printed = None  # someone wrote in between: print again, now under the lock
         record = _chain(db, job_id=job_id, event_id=event_id, kind=kind, step_id=step_id,
                         data=data, person_id=person.id, device_time=device_time, now=now,
                         last=job.head)
         after = apply_event(job.state, record)
         if signer is not None:
-            _sign_record(db, job_id, after, record, signer, now)
+            if printed is None:
+                # An amendment's record prints the amendment itself, so it is printed here.
+                printed = _print_for_signing(db, job_id, job.state if kind == "signed"
+                                             else after, job.head["hash"], now)
+            _sign_record(db, job_id, after, record, signer, printed, now)
         if after.status != job.row["status"]:
             jobs.set_job_status(db, job_id, after.status)
     _STATES.put(record["hash"], after)  # only once committed
     return Outcome("stored", event=record)
+
+
+def _circumstances(db: store.Database, job: Job, kind: str, step_id: str | None,
+                   data: dict[str, Any], device_time: str | None, person: Person,
+                   now: datetime) -> Circumstances:
+    """What the rules need to know beyond the job's own log (the engine's tags, who is who)."""
+    tags = (engine_tags(db, job.row["engine_id"])
+            if needs_engine_tags(job.state, kind, step_id) else {})
+    if kind == "tag_removed" and isinstance(data.get("absent_owner"), dict):
+        _check_authorising_supervisor(db, data["absent_owner"])
+    return Circumstances(now=now, device_now=_device_time(device_time), person_id=person.id,
+                         job_id=job.row["id"], tags=tags,
+                         names=people.names_by_id(db, {t.owner_id for t in tags.values()}),
+                         roles=person.roles)
 
 
 @dataclass(frozen=True)
@@ -261,32 +278,87 @@ def signatures_of(state: JobState) -> list[dict[str, Any]]:
     return found
 
 
+@dataclass(frozen=True)
+class _PrintedRecord:
+    """The PDF a signature goes on: a new print, or the revision's record as last signed."""
+
+    head_hash: str                  # the job's latest event when it was looked at
+    pdf: bytes
+    boxes: dict[str, StampBox]      # empty signature fields to add (a new print only)
+    revision: int
+    signatures: int                 # how many it already carries
+    supersedes: int | None
+
+
+def _record_revision(state: JobState) -> int:
+    """A returned job's next signature, and each amendment, start a new record revision."""
+    return len(state.returns) + len(state.amendments) + 1
+
+
+def _print_for_signing(db: store.Database, job_id: int, state: JobState, head_hash: str,
+                       now: datetime) -> _PrintedRecord:
+    from .records.pdf import render_for_signing
+
+    revision = _record_revision(state)
+    latest = signers.latest_record(db, job_id)
+    if latest is not None and latest["revision"] == revision:
+        return _PrintedRecord(head_hash, latest["pdf"], {}, revision, latest["signatures"],
+                              latest["supersedes"])
+    pdf, boxes = render_for_signing(db, job_id, now, signatures_of(state),
+                                    record_revision=revision)
+    return _PrintedRecord(head_hash, pdf, boxes, revision, 0,
+                          latest["id"] if latest else None)
+
+
+def _print_ahead(db: store.Database, job_id: int, step_id: str | None, data: dict[str, Any],
+                 device_time: str | None, person: Person, now: datetime
+                 ) -> _PrintedRecord | None:
+    """The record a signature will go on, printed before the write lock; None when the rules
+    would refuse the signature now (the locked path then refuses and records why)."""
+    job = load_job(db, job_id)
+    try:
+        check_event(job.state, "signed", step_id, data,
+                    _circumstances(db, job, "signed", step_id, data, device_time, person, now))
+    except (RuleRefusal, InputProblem):
+        return None
+    return _print_for_signing(db, job_id, job.state, job.head["hash"], now)
+
+
+def _stamp_text(data: dict[str, Any], at: datetime) -> str:
+    """What a signature's visible stamp says (21 CFR 11.50: printed name, date and time,
+    meaning)."""
+    from .records.record_data import AUTHORISATION_KIND, station_time
+
+    return "\n".join((
+        f"Signed electronically by {data['signer_name']}",
+        f"Authorisation no. {data.get('authorisation') or 'none recorded'} "
+        f"({AUTHORISATION_KIND})",
+        f"Meaning: {data['meaning']} ({data['scope']})" if "scope" in data
+        else f"Meaning: {data['meaning']}",
+        f"Date and time: {station_time(at)}"))
+
+
 def _sign_record(db: store.Database, job_id: int, state: JobState, event: dict[str, Any],
-                 signer: _UnlockedSigner, now: datetime) -> None:
-    """Sign the job's PDF record: the first signature on a freshly rendered record, later
-    ones as incremental signatures on the same file (earlier ones stay valid)."""
-    from .records.pdf import render_work_record
+                 signer: _UnlockedSigner, printed: _PrintedRecord, now: datetime) -> None:
+    """Sign the job's PDF record: the first signature of a revision on a fresh print (which
+    reserves the boxes of the signatures to come), later ones as incremental signatures in
+    their boxes on the same file (earlier ones stay valid)."""
     from .records.signing import sign_record
 
-    latest = signers.latest_record(db, job_id)
-    # A returned job's next signature, and each amendment, start a new record revision.
-    revision = len(state.returns) + len(state.amendments) + 1
-    if latest is None or latest["revision"] != revision:
-        pdf = render_work_record(db, job_id, now, signatures=signatures_of(state))
-        count, supersedes = 0, (latest["id"] if latest else None)
-    else:
-        pdf, count, supersedes = latest["pdf"], latest["signatures"], latest["supersedes"]
     if event["kind"] == "amendment":
         field_name = f"amendment-{len(state.amendments)}"
         meaning = f"Amended: {event['data']['what']} (because: {event['data']['why']})"
+        stamp = _stamp_text({**event["data"], "meaning": meaning}, now)
     else:
         field_name = str(event["step_id"])
         meaning = f"{event['data']['meaning']} ({event['data']['scope']})"
-    signed = sign_record(pdf, signer.pyhanko_signer, field_name=field_name, meaning=meaning,
-                         signer_name=event["data"]["signer_name"])
-    signers.add_record(db, job_id=job_id, revision=revision, pdf=signed,
-                       chain_hash=event["hash"], signatures=count + 1, now=now,
-                       supersedes=supersedes)
+        stamp = _stamp_text(event["data"], now)
+    signed = sign_record(printed.pdf, signer.pyhanko_signer, field_name=field_name,
+                         meaning=meaning, signer_name=event["data"]["signer_name"],
+                         stamp=stamp, reserve=printed.boxes)
+    signers.add_record(db, job_id=job_id, revision=printed.revision, pdf=signed,
+                       chain_hash=event["hash"], signatures=printed.signatures + 1, now=now,
+                       supersedes=printed.supersedes)
 
 
 def engine_tags(db: store.Database, engine_id: int) -> dict[str, Tag]:

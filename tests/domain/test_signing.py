@@ -214,7 +214,7 @@ def test_performer_then_inspector_both_verify_and_the_second_is_not_a_modificati
 
 
 def test_a_second_signature_under_a_used_field_name_is_refused(signed_once, inspector):
-    with pytest.raises(ValueError, match="already has a signature field named 'Performer'"):
+    with pytest.raises(ValueError, match="already signed in the field 'Performer'"):
         sign_record(signed_once, inspector, field_name="Performer", meaning="Inspected",
                     signer_name="Robin Inspector")
 

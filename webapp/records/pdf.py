@@ -23,6 +23,7 @@ from jinja2 import StrictUndefined
 from ..resources import shipped_dir
 from ..store import Database
 from .record_data import NONE, WorkRecord, gather
+from .signing import StampBox
 
 TEMPLATE = "records/work_record.html"
 # The record's pages are placed at this made-up origin (".invalid" never resolves); the
@@ -31,16 +32,21 @@ STATION_ORIGIN = "https://station.invalid/"
 STATIC_PREFIX = STATION_ORIGIN + "static/"
 
 _render_lock = threading.Lock()  # one FontConfiguration is shared: render one at a time
+# Elements whose id starts so are the boxes reserved for signatures still to come; the rest
+# of the id is the signature's field name.
+STAMP_ID_PREFIX = "stamp-"
+_PT_PER_CSS_PX = 0.75  # 1 CSS px = 1/96 in, 1 pt = 1/72 in (CSS Values 3, absolute lengths)
 
 
 def record_html(db: Database, job_id: int, now: datetime,
                 signatures: Sequence[Mapping[str, Any]] | None = None, *,
-                embedded: bool = False, record_id: str | None = None) -> str:
+                embedded: bool = False, record_id: str | None = None,
+                record_revision: int = 1) -> str:
     """The work record as HTML (a whole document, or only the record when `embedded`).
 
     Needs an application context: the template comes from the app's Jinja environment.
     """
-    record = gather(db, job_id, now, signatures, record_id)
+    record = gather(db, job_id, now, signatures, record_id, record_revision)
     return html_of(record, embedded=embedded)
 
 
@@ -62,12 +68,35 @@ def render_work_record(db: Database, job_id: int, now: datetime,
     return pdf_of_html(record_html(db, job_id, now, signatures, record_id=record_id))
 
 
+def render_for_signing(db: Database, job_id: int, now: datetime,
+                       signatures: Sequence[Mapping[str, Any]], *,
+                       record_revision: int = 1) -> tuple[bytes, dict[str, StampBox]]:
+    """The record as PDF and, by field name, the box its layout reserves for each signature
+    not among `signatures` (the ones already made print as text)."""
+    html = record_html(db, job_id, now, signatures, record_revision=record_revision)
+    return pdf_and_boxes(html)
+
+
 def pdf_of_html(html: str) -> bytes:
     """Print record HTML to PDF with the station's fonts and static files."""
+    return pdf_and_boxes(html)[0]
+
+
+def pdf_and_boxes(html: str) -> tuple[bytes, dict[str, StampBox]]:
+    """Print record HTML to PDF; also where each signature box landed, in PDF points."""
     weasyprint = _weasyprint()
     document = weasyprint.HTML(string=html, base_url=STATION_ORIGIN, url_fetcher=static_fetcher())
     with _render_lock:
-        return document.write_pdf(font_config=font_configuration())
+        laid_out = document.render(font_config=font_configuration())
+        boxes = {}
+        for number, page in enumerate(laid_out.pages):
+            height = page.height * _PT_PER_CSS_PX
+            for anchor, (x1, y1, x2, y2) in page.anchors.items():
+                if anchor.startswith(STAMP_ID_PREFIX):
+                    boxes[anchor.removeprefix(STAMP_ID_PREFIX)] = StampBox(number, (
+                        x1 * _PT_PER_CSS_PX, height - y2 * _PT_PER_CSS_PX,
+                        x2 * _PT_PER_CSS_PX, height - y1 * _PT_PER_CSS_PX))
+        return laid_out.write_pdf(), boxes
 
 
 @lru_cache(maxsize=1)

@@ -53,6 +53,11 @@ _PART_READING = re.compile(r"serial|part-number|release")
 USAGE_LABEL = "FH"  # plug wear is tracked against engine hours, as on the fleet pages
 
 
+# The kind of certificate a signer's authorisation number is (14 CFR 43.9(a)(4)): the
+# station issues signing authority under the organisation's approval.
+AUTHORISATION_KIND = "organisation authorisation"
+
+
 # --- time and people, as the record writes them -----------------------------------------
 
 def station_time(moment: str | datetime | None, seconds: bool = True) -> str:
@@ -230,7 +235,8 @@ class SignBlock:
     role: str
     meaning: str
     text: str
-    signature: Signature | None
+    signature: Signature | None   # a signature made before this print, shown as text
+    field_name: str | None = None  # the PDF signature field whose stamp box this block has
 
 
 @dataclass(frozen=True)
@@ -289,6 +295,7 @@ class WorkRecord:
     chain_events: int
     chain_status: str
     refusals: list[Entry] = field(default_factory=list)
+    record_revision: int = 1   # 1, then one more after each return and each amendment
     amendments: list[Entry] = field(default_factory=list)   # corrections after certification
 
     @property
@@ -320,7 +327,7 @@ def record_id_for(job_id: int, head: Mapping[str, Any]) -> str:
 
 def gather(db: Database, job_id: int, now: datetime,
            signatures: Sequence[Mapping[str, Any]] | None = None,
-           record_id: str | None = None) -> WorkRecord:
+           record_id: str | None = None, record_revision: int = 1) -> WorkRecord:
     """Everything the work record of a job prints, as of `now`."""
     job, events = _consistent_read(db, job_id)
     row, state = job.row, job.state
@@ -338,6 +345,7 @@ def gather(db: Database, job_id: int, now: datetime,
     tagged = _tags_by_step(events)
     return WorkRecord(
         record_id=record_id or record_id_for(job_id, job.head),
+        record_revision=record_revision,
         printed_at=station_time(now),
         operator_name=settings.get("operator_name") or "(operator not set on this station)",
         operator_approval=settings.get("operator_approval") or "(approval reference not set)",
@@ -391,14 +399,18 @@ def gather(db: Database, job_id: int, now: datetime,
 
 
 def _completion(state: JobState) -> str:
-    if state.status == "complete":
-        last = max(e["received_at"] for e in state.completed.values())
-        return f"Completed {station_time(last)}"
+    """When the work was completed (14 CFR 43.9(a)(2)): the last work step, signatures apart."""
+    work = [p for p in state.steps if not isinstance(p.step, Sign)]
+    if work and all(p.status == "done" for p in work):
+        last = max(state.completed[p.id]["received_at"] for p in work)
+        signed = all(p.status == "done" for p in state.steps)
+        return (f"Work completed {station_time(last)}"
+                + ("" if signed else "; signatures in section 9"))
     upcoming = state.next_step
     waiting = (f"; waiting at step {upcoming.number} ({upcoming.step.kind.replace('_', ' ')})"
                if upcoming is not None else "")
-    return (f"Not yet completed: {state.done_count} of {len(state.steps)} steps done"
-            f"{waiting}")
+    return (f"Not yet completed: {sum(p.status == 'done' for p in work)} of {len(work)} "
+            f"work steps done{waiting}")
 
 
 def _tags_by_step(events: Sequence[Mapping[str, Any]]) -> dict[str, str]:
@@ -731,7 +743,7 @@ def _performers(events: Sequence[Mapping[str, Any]], row: Mapping[str, Any], sta
 def _signature(raw: Mapping[str, Any]) -> Signature:
     return Signature(name=str(raw.get("name") or "—"),
                      authorisation=str(raw.get("authorisation") or "—"),
-                     kind=str(raw.get("kind") or "organisation authorisation"),
+                     kind=str(raw.get("kind") or AUTHORISATION_KIND),
                      meaning=str(raw.get("meaning") or "—"),
                      signed_at=station_time(raw.get("signed_at")))
 
@@ -758,7 +770,8 @@ def _sign_blocks(state: JobState, signatures: Sequence[Mapping[str, Any]]
         if match is not None:
             unused.remove(match)
         blocks.append(SignBlock(progress.number, step.role, SIGN_MEANINGS[step.role],
-                                step.text.strip(), _signature(match) if match else None))
+                                step.text.strip(), _signature(match) if match else None,
+                                field_name=step.id))
     release_raw = next((s for s in unused if _role_of(s) == "certifying"), None)
     if release_raw is not None:
         unused.remove(release_raw)
@@ -767,4 +780,7 @@ def _sign_blocks(state: JobState, signatures: Sequence[Mapping[str, Any]]
     certified = next((b for b in blocks if b.role == "certifying" and b.signature), None)
     release = (SignBlock(None, "certifying", SIGN_MEANINGS["certifying"], "",
                          _signature(release_raw)) if release_raw is not None else certified)
+    if release is None:
+        # The certifying signature is still to come: the release names the box it goes in.
+        release = next((b for b in blocks if b.role == "certifying"), None)
     return blocks, release

@@ -5,6 +5,13 @@ it cannot be excised, copied or moved to another record by ordinary means (21 CF
 11.70), and any reader can check it without Sparkward. Each signature carries the
 signer's printed name and its meaning as /Name and /Reason (21 CFR 11.50).
 
+Why visible stamps: a record is printed and filed, and a later signer's signature must
+show on paper too (21 CFR 11.50). The record reserves a box for each signature still to
+come; the first signature of a revision adds an empty signature field over every box in
+the same update, and each signer's signature fills its own field with a stamp giving the
+printed name, authorisation, meaning and time. Filling a reserved field is form filling,
+so earlier signatures stay valid.
+
 Why a worker thread: pyHanko's sync API calls ``asyncio.run()``, which fails when an
 event loop already runs in the calling thread (pytest-playwright, some servers). Every
 pyHanko call here goes through one module-level worker thread, which also keeps a web
@@ -14,10 +21,12 @@ request's thread free of pyHanko's event loop.
 from __future__ import annotations
 
 import io
-from collections.abc import Callable, Iterable
+from collections.abc import Callable, Iterable, Mapping
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, replace
 from datetime import datetime
+from functools import lru_cache
+from pathlib import Path
 from typing import Any, TypeVar
 
 from asn1crypto import x509 as asn1_x509
@@ -26,14 +35,21 @@ from cryptography.hazmat.primitives.serialization import Encoding
 from pyhanko.pdf_utils.incremental_writer import IncrementalPdfFileWriter
 from pyhanko.pdf_utils.misc import PdfError
 from pyhanko.pdf_utils.reader import PdfFileReader
+from pyhanko.pdf_utils.text import TextBoxStyle
 from pyhanko.sign import fields, signers
 from pyhanko.sign.diff_analysis import ModificationLevel
 from pyhanko.sign.validation import validate_pdf_signature
 from pyhanko.sign.validation.pdf_embedded import EmbeddedPdfSignature
 from pyhanko.sign.validation.status import SignatureCoverageLevel
+from pyhanko.stamp import TextStampStyle
 from pyhanko_certvalidator import ValidationContext
 
 T = TypeVar("T")
+
+# The stamp's font: DejaVu Sans, the record's own font (Debian's fonts-dejavu-core), embedded
+# as a subset so a name in any script prints as entered.
+STAMP_FONT = Path("/usr/share/fonts/truetype/dejavu/DejaVuSans.ttf")
+STAMP_FONT_SIZE = 8
 
 _EXECUTOR = ThreadPoolExecutor(max_workers=1, thread_name_prefix="sparkward-pyhanko")
 
@@ -52,6 +68,15 @@ _COVERAGE = {SignatureCoverageLevel.ENTIRE_FILE: "entire file",
 
 class RecordUnreadable(ValueError):
     """The bytes are not a PDF that can be parsed; nothing can be said about signatures."""
+
+
+@dataclass(frozen=True)
+class StampBox:
+    """Where a signature's stamp goes: a page (0-based) and a rectangle in PDF points
+    (x1, y1, x2, y2, origin at the page's bottom left)."""
+
+    page: int
+    rect: tuple[float, float, float, float]
 
 
 @dataclass(frozen=True)
@@ -77,30 +102,100 @@ def _off_thread(fn: Callable[..., T], *args: Any) -> T:
     return _EXECUTOR.submit(fn, *args).result()
 
 
+# What the stamp font keeps of DejaVu Sans: Latin with its extensions, Greek, Cyrillic and
+# the general punctuation (names as people write them in the regions the fonts cover).
+_STAMP_RANGES = (*range(0x20, 0x250), *range(0x370, 0x530), *range(0x1E00, 0x1F00),
+                 *range(0x2000, 0x2070), 0x20AC, 0x2122)
+
+
+@lru_cache(maxsize=1)
+def stamp_font() -> bytes:
+    """DejaVu Sans cut to the stamp's scripts and scaled to 1000 units per em.
+
+    The scaling is needed, not cosmetic: pyHanko writes the glyph widths of an embedded
+    font in the font's own units, and PDF reads them as thousandths of an em (ISO 32000-1
+    9.7.4.3), so a 2048-unit font would print with its letters twice as far apart. About a
+    second, once per process; `sparkward serve` does it at start-up.
+    """
+    from fontTools import subset, ttLib
+    from fontTools.ttLib.scaleUpem import scale_upem
+
+    font = ttLib.TTFont(STAMP_FONT)
+    options = subset.Options()
+    options.drop_tables += ["FFTM"]
+    options.notdef_outline = True
+    subsetter = subset.Subsetter(options)
+    subsetter.populate(unicodes=_STAMP_RANGES)
+    subsetter.subset(font)
+    scale_upem(font, 1000)
+    out = io.BytesIO()
+    font.save(out)
+    font.close()
+    return out.getvalue()
+
+
+@lru_cache(maxsize=1)
+def _stamp_style() -> TextStampStyle:
+    from pyhanko.pdf_utils.font.opentype import GlyphAccumulator, GlyphAccumulatorFactory
+
+    font = stamp_font()
+
+    class InMemoryFont(GlyphAccumulatorFactory):
+        """pyHanko's OpenType font factory over bytes prepared once (its own opens the file
+        on every signature and never closes it)."""
+
+        def create_font_engine(self, writer: Any, obj_stream: Any = None) -> GlyphAccumulator:
+            if obj_stream is None and writer.stream_xrefs and self.create_objstream_if_needed:
+                obj_stream = writer.prepare_object_stream()
+            return GlyphAccumulator(writer=writer, font_handle=io.BytesIO(font),
+                                    font_size=self.font_size, obj_stream=obj_stream)
+
+    return TextStampStyle(
+        stamp_text="%(stamp)s", border_width=1, background=None,
+        text_box_style=TextBoxStyle(font=InMemoryFont(str(STAMP_FONT), STAMP_FONT_SIZE),
+                                    font_size=STAMP_FONT_SIZE))
+
+
 def _sign(pdf: bytes, signer: signers.Signer, field_name: str, meaning: str,
-          signer_name: str, location: str | None) -> bytes:
+          signer_name: str, location: str | None, stamp: str | None,
+          reserve: Mapping[str, StampBox]) -> bytes:
     try:
         writer = IncrementalPdfFileWriter(io.BytesIO(pdf))
+        # name -> the signature in it, None for an empty (reserved) field
+        existing = {name: value for name, value, _ in fields.enumerate_sig_fields(writer)}
     except (PdfError, ValueError) as exc:
         raise RecordUnreadable(f"The record could not be read as a PDF: {exc}") from exc
-    if any(name == field_name for name, _, _ in fields.enumerate_sig_fields(writer)):
-        raise ValueError(f"The record already has a signature field named {field_name!r}.")
+    if existing.get(field_name) is not None:
+        raise ValueError(f"The record is already signed in the field {field_name!r}.")
+    for name, box in reserve.items():
+        if name in existing:
+            raise ValueError(f"The record already has a signature field named {name!r}.")
+        fields.append_signature_field(writer, fields.SigFieldSpec(
+            sig_field_name=name, on_page=box.page, box=box.rect))  # type: ignore[arg-type]
     meta = signers.PdfSignatureMetadata(
         field_name=field_name, md_algorithm="sha256", subfilter=fields.SigSeedSubFilter.PADES,
         reason=meaning, name=signer_name, location=location)
-    out = signers.sign_pdf(writer, meta, signer=signer)
+    visible = field_name in existing or field_name in reserve
+    pdf_signer = signers.PdfSigner(meta, signer,
+                                   stamp_style=_stamp_style() if visible else None)
+    out = pdf_signer.sign_pdf(writer, appearance_text_params={"stamp": stamp or meaning})
     return out.getvalue()
 
 
 def sign_record(pdf: bytes, signer: signers.Signer, *, field_name: str, meaning: str,
-                signer_name: str, location: str | None = None) -> bytes:
+                signer_name: str, location: str | None = None, stamp: str | None = None,
+                reserve: Mapping[str, StampBox] | None = None) -> bytes:
     """Add one PAdES signature as an incremental update and return the new PDF bytes.
 
     Incremental, so an earlier signature (the performer's) stays valid when a later one
-    (the inspector's) is added. A field name already used is refused with ValueError:
-    two signatures under one name would make the record ambiguous about who signed what.
+    (the inspector's) is added. `reserve` adds empty signature fields over the record's
+    boxes in the same update (the first signature of a revision does this); a signature
+    whose field is one of them, or one reserved earlier, shows `stamp` in its box. A field
+    name with no box gets an invisible signature. A field already signed is refused with
+    ValueError: two signatures under one name would make the record ambiguous.
     """
-    return _off_thread(_sign, pdf, signer, field_name, meaning, signer_name, location)
+    return _off_thread(_sign, pdf, signer, field_name, meaning, signer_name, location,
+                       stamp, dict(reserve or {}))
 
 
 def _as_asn1(cert: crypto_x509.Certificate | asn1_x509.Certificate) -> asn1_x509.Certificate:
@@ -194,6 +289,16 @@ def _verify(pdf: bytes, trust_root: asn1_x509.Certificate) -> list[SignatureRepo
         except (PdfError, ValueError, KeyError, TypeError) as exc:
             reports.append(_broken(name, sig_field, exc))
     return reports
+
+
+def empty_signature_fields(pdf: bytes) -> list[str]:
+    """The names of the record's signature boxes nobody has signed yet (RecordUnreadable when
+    the bytes are not a PDF)."""
+    try:
+        reader = PdfFileReader(io.BytesIO(pdf))
+        return [name for name, _, _ in fields.enumerate_sig_fields(reader, filled_status=False)]
+    except (PdfError, ValueError, KeyError, IndexError, TypeError) as exc:
+        raise RecordUnreadable(f"The record could not be read as a PDF: {exc}") from exc
 
 
 def verify_record(pdf: bytes, trust_root: crypto_x509.Certificate | asn1_x509.Certificate

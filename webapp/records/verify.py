@@ -16,7 +16,7 @@ from typing import Any
 from cryptography import x509
 
 from ..domain.chain import first_broken_link
-from .signing import RecordUnreadable, SignatureReport, verify_record
+from .signing import RecordUnreadable, SignatureReport, empty_signature_fields, verify_record
 
 _RECORD_ID = re.compile(r"SW-(\d{5})-(\d{3})-([0-9A-F]{8})")
 
@@ -29,6 +29,7 @@ class RecordCheck:
     chain_ok: bool | None          # None: the record names no job this station knows
     chain_message: str
     problems: list[str] = field(default_factory=list)
+    unsigned: list[str] = field(default_factory=list)  # signature boxes still empty
 
     @property
     def ok(self) -> bool:
@@ -53,8 +54,16 @@ def check_record(pdf: bytes, trust_root: x509.Certificate,
     """`events_of_job(job_id)` gives the job's events from the station's database (or None)."""
     try:
         reports = verify_record(pdf, trust_root)
+        unsigned = empty_signature_fields(pdf)
     except RecordUnreadable as err:
         return RecordCheck([], None, None, None, "", [str(err)])
+    check = _check_chain(pdf, reports, events_of_job)
+    return RecordCheck(check.signatures, check.record_id, check.job_id, check.chain_ok,
+                       check.chain_message, check.problems, unsigned)
+
+
+def _check_chain(pdf: bytes, reports: list[SignatureReport],
+                 events_of_job: Any) -> RecordCheck:
     problems = [f"signature '{r.field_name}': {r.summary}" for r in reports
                 if not (r.intact and r.valid and r.trusted) or r.modified_after]
     if not reports:
