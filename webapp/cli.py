@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import sys
+import threading
 from pathlib import Path
 
 import click
@@ -93,9 +94,19 @@ def serve(db_path: Path | None, host: str, port: int) -> None:
     _serve(_app(db_path), host, port)
 
 
+def _warm_up() -> None:
+    """Load what the first signature would otherwise wait for (WeasyPrint and its fonts, about
+    a second; the stamp font, about a second), while the station starts serving."""
+    from .records import pdf, signing
+
+    pdf.font_configuration()
+    signing.stamp_font()
+
+
 def _serve(app: Flask, host: str, port: int) -> None:
     from waitress import serve as waitress_serve
 
+    threading.Thread(target=_warm_up, name="sparkward-warm-up", daemon=True).start()
     shown = "127.0.0.1" if host in ("0.0.0.0", "::") else host
     click.echo(f"Sparkward station serving {app.config['DB_PATH']}")
     click.echo(f"Open http://{shown}:{port}/ (press Ctrl+C to stop)", err=False)

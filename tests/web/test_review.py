@@ -22,10 +22,10 @@ def signed_check(login, db, clock):
     return job
 
 
-def _decide(client, job_id, **form):
+def _decide(client, job_id, follow_redirects=True, **form):
     page = client.get(f"/review/{job_id}").get_data(as_text=True)
-    return client.post(f"/review/{job_id}", data={**form,
-                                                  "csrf_token": csrf_token_of(page)})
+    return client.post(f"/review/{job_id}", data={**form, "csrf_token": csrf_token_of(page)},
+                       follow_redirects=follow_redirects)
 
 
 def test_the_queue_lists_jobs_waiting_for_certification(signed_check, login):
@@ -41,7 +41,12 @@ def test_a_mechanic_cannot_certify(signed_check):
 def test_certifying_closes_the_job_and_adds_the_third_signature(signed_check, login, db, app,
                                                                clock):
     supervisor = login("super").client
-    answer = _decide(supervisor, signed_check.id, action="certify", pin=DEMO_PINS["super"])
+    answer = _decide(supervisor, signed_check.id, follow_redirects=False, action="certify",
+                     pin=DEMO_PINS["super"])
+    # A decision answers with a redirect, so reloading the page never sends it again.
+    assert answer.status_code == 303
+    assert answer.headers["Location"].endswith(f"/review/{signed_check.id}")
+    answer = supervisor.get(answer.headers["Location"])
     assert answer.status_code == 200
     assert 'data-testid="certified"' in answer.get_data(as_text=True)
     assert signed_check.state()["status"] == "complete"

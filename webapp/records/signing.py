@@ -124,6 +124,10 @@ def stamp_font() -> bytes:
     options = subset.Options()
     options.drop_tables += ["FFTM"]
     options.notdef_outline = True
+    # No kerning or ligature tables and no hinting: the stamp is a few short lines, and
+    # pyHanko subsets the font again on every signature, which these tables make slow.
+    options.layout_features = []
+    options.hinting = False
     subsetter = subset.Subsetter(options)
     subsetter.populate(unicodes=_STAMP_RANGES)
     subsetter.subset(font)

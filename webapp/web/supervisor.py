@@ -5,7 +5,7 @@ from __future__ import annotations
 import uuid
 from typing import Any
 
-from flask import Blueprint, Response, abort, render_template, request
+from flask import Blueprint, Response, abort, redirect, render_template, request, url_for
 
 from .. import recording
 from ..domain.execution import awaiting_review
@@ -101,7 +101,8 @@ def decide(job_id: int) -> Any:
     if outcome.status == "invalid":
         assert outcome.problem is not None
         return _review_page(job_id, outcome.problem.message, 422)
-    return _review_page(job_id)
+    # Post/redirect/get: reloading the page afterwards does not send the decision again.
+    return redirect(url_for("supervisor.review_job", job_id=job_id), 303)
 
 
 @bp.get("/jobs/<int:job_id>/record.pdf")
