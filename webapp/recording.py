@@ -6,6 +6,7 @@ one BEGIN IMMEDIATE transaction, the domain decides, the store appends.
 
 from __future__ import annotations
 
+import textwrap
 import threading
 import uuid
 from collections import OrderedDict
@@ -234,6 +235,7 @@ class _UnlockedSigner:
 
 
 PIN_MAX_FAILURES = 5
+STAMP_LINE_CHARACTERS = 72  # about what 110 mm holds at 8 pt DejaVu Sans
 PIN_LOCK_MINUTES = 10
 
 
@@ -326,15 +328,16 @@ def _print_ahead(db: store.Database, job_id: int, step_id: str | None, data: dic
 
 def _stamp_text(data: dict[str, Any], at: datetime) -> str:
     """What a signature's visible stamp says (21 CFR 11.50: printed name, date and time,
-    meaning)."""
+    meaning), in lines short enough for the stamp box."""
     from .records.record_data import AUTHORISATION_KIND, station_time
 
+    meaning = (f"Meaning: {data['meaning']} ({data['scope']})" if "scope" in data
+               else f"Meaning: {data['meaning']}")
     return "\n".join((
         f"Signed electronically by {data['signer_name']}",
         f"Authorisation no. {data.get('authorisation') or 'none recorded'} "
         f"({AUTHORISATION_KIND})",
-        f"Meaning: {data['meaning']} ({data['scope']})" if "scope" in data
-        else f"Meaning: {data['meaning']}",
+        *textwrap.wrap(meaning, STAMP_LINE_CHARACTERS),
         f"Date and time: {station_time(at)}"))
 
 

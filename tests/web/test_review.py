@@ -5,9 +5,10 @@ from __future__ import annotations
 import pytest
 
 from tests.conftest import DEMO_PINS, csrf_token_of
+from tests.pdf_text import pdf_text
 from tests.web.jobs import Job, _event
 from webapp.authority import station_authority
-from webapp.records.signing import verify_record
+from webapp.records.signing import empty_signature_fields, verify_record
 from webapp.store import signers
 
 
@@ -91,7 +92,7 @@ def test_only_a_supervisor_returns_a_job(signed_check):
 
 
 def test_an_amendment_after_certification_makes_a_new_revision(signed_check, login, db, app,
-                                                                clock):
+                                                                clock, tmp_path):
     supervisor = login("super")
     _decide(supervisor.client, signed_check.id, action="certify", pin=DEMO_PINS["super"])
     certified = signers.latest_record(db, signed_check.id)
@@ -115,6 +116,47 @@ def test_an_amendment_after_certification_makes_a_new_revision(signed_check, log
     text = "".join(page.extract_text() for page in pypdf.PdfReader(
         __import__("io").BytesIO(amended["pdf"])).pages)
     assert "Amendments after certification" in text and "wrong column" in text
+    # The amending signature is stamped in the amendment's box, so it shows on paper
+    # (21 CFR 11.50), and the box is filled: nothing left unsigned on this revision.
+    stamped = " ".join(pdf_text(amended["pdf"], tmp_path).split())
+    assert "Signed electronically by Priya Halvorsen" in stamped
+    assert "Meaning: Amended: Channel B count was 34, not 36" in stamped
+    assert empty_signature_fields(amended["pdf"]) == []
+
+
+def test_a_return_can_ask_for_the_work_again_from_a_step(signed_check, login, db, mechanic,
+                                                         tmp_path):
+    supervisor = login("super").client
+    wrong = _decide(supervisor, signed_check.id, action="return", reason="x",
+                    repeat_from="sign-engine")
+    assert wrong.status_code == 422      # a signature is not work to repeat; nothing kept
+    assert signed_check.state()["next_step"] == "certify"
+    answer = _decide(supervisor, signed_check.id, action="return",
+                     reason="Channel B count taken with the GPU off: repeat it",
+                     repeat_from="count-b")
+    assert answer.status_code == 200
+    state = signed_check.state()
+    assert state["next_step"] == "count-b"           # the work reopens from the step named
+    assert "count-a" in state["done"] and "count-both" not in state["done"]
+    # The mechanic is told, on the job's screen, what to do again.
+    page = mechanic.client.get(f"/jobs/{signed_check.id}").get_data(as_text=True)
+    assert "Channel B count taken with the GPU off" in page
+    assert "Do the work again from step" in page
+    # Signing before the work is done again is refused, naming the step that comes first.
+    refusal = signed_check.refused(_event("sign-selector", "signed", pin=DEMO_PINS["mech1"]),
+                                   "out_of_order")
+    assert "Count the spark snaps on channel B" in refusal["reason"]
+    # Done again, in order (energising again on channel B, the gates checked again), then
+    # signed: the new revision shows the return and both channel B counts.
+    signed_check.walk_to("sign-selector")
+    signed_check.ok(_event("sign-selector", "signed", pin=DEMO_PINS["mech1"]))
+    record = signers.latest_record(db, signed_check.id)
+    assert record["revision"] == 2
+    text = " ".join(pdf_text(record["pdf"], tmp_path).split())
+    assert "Returned for correction" in text and "This is revision 2 of the record" in text
+    assert "Channel B count taken with the GPU off: repeat it" in text
+    counts_b = [r for r in signed_check.state()["readings"] if r["step"] == "count-b"]
+    assert len(counts_b) == 2                         # the first count is kept, not replaced
 
 
 def test_an_amendment_is_only_for_a_certified_job(signed_check, login):

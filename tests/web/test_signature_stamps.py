@@ -5,19 +5,19 @@ independent inspector (mech2). The inspector signs later, on the same file: the 
 reserved the inspector's box when the performer signed, and the inspector's signature
 fills it with a stamp, so the paper copy shows both signatures (21 CFR 11.50).
 
-The stamps are read back with Debian's `pdftotext` (poppler-utils), which draws the page
-as a PDF reader does, annotation appearances included; pypdf reads the page content only.
+The stamps are read back with Debian's `pdftotext` (tests/pdf_text.py), which draws the
+page as a PDF reader does, annotation appearances included.
 """
 
 from __future__ import annotations
 
-import subprocess
 from pathlib import Path
 
 import pytest
 from pypdf import PdfReader
 
 from tests.conftest import DEMO_PINS
+from tests.pdf_text import pdf_pages_text
 from tests.web.jobs import Job, _event
 from webapp.authority import station_authority
 from webapp.records.signing import empty_signature_fields, verify_record
@@ -31,14 +31,6 @@ def installation(login, db, clock):
     job = Job(login("mech1"), db, clock, "exciter-installation")
     job.walk_to("performer")
     return job
-
-
-def _pages_text(pdf: bytes, tmp_path: Path) -> list[str]:
-    path = tmp_path / "record.pdf"
-    path.write_bytes(pdf)
-    done = subprocess.run(["pdftotext", "-layout", str(path), "-"], capture_output=True,
-                          text=True, check=True, timeout=60)
-    return [" ".join(page.split()) for page in done.stdout.split("\f")]
 
 
 def _widgets(pdf: bytes, tmp_path: Path) -> dict[str, tuple[int, list[float]]]:
@@ -70,7 +62,7 @@ def test_each_signature_is_stamped_in_its_box_with_name_number_meaning_and_time(
     assert signed.startswith(first)           # incremental: the first file is kept byte for byte
     assert empty_signature_fields(signed) == []
 
-    pages = _pages_text(signed, tmp_path)
+    pages = pdf_pages_text(signed, tmp_path)
     text = " ".join(pages)
     # 21 CFR 11.50(a): printed name, date and time, and meaning, for each signature; 14 CFR
     # 43.9(a)(4): with the certificate (authorisation) number and its kind.
@@ -120,5 +112,5 @@ def test_a_name_outside_latin_1_is_stamped_as_written(installation, db, clock, a
                ["Łucja Dvořák-Παπαδοπούλου"])
     db.conn.commit()
     installation.ok(_event("performer", "signed", pin=DEMO_PINS["mech1"]))
-    text = " ".join(_pages_text(signers.latest_record(db, installation.id)["pdf"], tmp_path))
+    text = " ".join(pdf_pages_text(signers.latest_record(db, installation.id)["pdf"], tmp_path))
     assert "Signed electronically by Łucja Dvořák-Παπαδοπούλου" in text

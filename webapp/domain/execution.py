@@ -246,9 +246,12 @@ def apply_event(state: JobState, event: Mapping[str, Any]) -> JobState:
     if kind == "amendment":
         return replace(state, amendments=(*state.amendments, event))
     if kind == "returned":
-        # The job reopens for its signatures; the work recorded stays, every event is kept.
+        # The job reopens for its signatures, and from the step to repeat when the supervisor
+        # named one (every step after it is done again, in order, gates and all). The work
+        # recorded stays in the log, every attempt with it.
+        again = state.positions.get(event["data"].get("repeat_from") or "", len(state.applicable))
         completed = {k: v for k, v in state.completed.items()
-                     if not isinstance(_step_of(state, k), Sign)}
+                     if not isinstance(_step_of(state, k), Sign) and state.positions[k] < again}
         return replace(state, completed=completed, returns=(*state.returns, event))
     if kind in ("reading_recorded", "sparks_counted") and step is not None:
         return _with_reading(state, step, event)
@@ -494,7 +497,14 @@ def _check_return(state: JobState, data: Mapping[str, Any], at: Circumstances
     if not isinstance(reason, str) or not reason.strip():
         raise readings.InputProblem("reason", "Say why the job goes back, so the mechanic "
                                     "knows what to put right.")
-    return {"reason": reason.strip()}
+    repeat_from = data.get("repeat_from") or None
+    if repeat_from is None:
+        return {"reason": reason.strip()}
+    target = state.step(str(repeat_from))
+    if target is None or isinstance(target.step, Sign) or target.status != "done":
+        raise readings.InputProblem("repeat_from", "Choose a work step of this job that is "
+                                    "done, or none to ask only for the signatures again.")
+    return {"reason": reason.strip(), "repeat_from": target.id}
 
 
 def awaiting_review(state: JobState) -> bool:

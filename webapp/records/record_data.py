@@ -296,6 +296,7 @@ class WorkRecord:
     chain_status: str
     refusals: list[Entry] = field(default_factory=list)
     record_revision: int = 1   # 1, then one more after each return and each amendment
+    returns: list[Entry] = field(default_factory=list)      # sent back by a supervisor
     amendments: list[Entry] = field(default_factory=list)   # corrections after certification
 
     @property
@@ -392,6 +393,11 @@ def gather(db: Database, job_id: int, now: datetime,
                         station_time(r["received_at"]), numbers.get(r["step_id"]),
                         f"{r['rule']}: {r['reason']}")
                   for r in job_store.refusals(db, job_id)],
+        returns=[Entry(r["data"]["reason"], who(r["person_id"]), station_time(r["received_at"]),
+                       numbers.get(r["data"].get("repeat_from") or ""),
+                       "work done again from this step on" if r["data"].get("repeat_from")
+                       else "signatures only")
+                 for r in state.returns],
         amendments=[Entry(a["data"]["what"], who(a["person_id"]),
                           station_time(a["received_at"]), numbers.get(a["step_id"]),
                           a["data"]["why"]) for a in state.amendments],

@@ -23,7 +23,12 @@ EVENT_DATA = (
     "{engine_hours, starts, continuous_ignition_hours, continuous_ignition_estimated}; "
     "torque adds wrench_id, calibration_due (YYYY-MM-DD) and adapter {wrench_length, "
     "extension}. finding (after an out-of-limits reading): {\"text\", \"disposition\": "
-    "replaced|re-tested|deferred, \"reference\" (for deferred)}.")
+    "replaced|re-tested|deferred, \"reference\" (for deferred)}. sparks_counted (spark "
+    "count step): {\"method\": \"taps\", \"taps\": [seconds, ...]} or {\"method\": \"timed\", "
+    "\"count\", \"window_s\"}. signed (sign "
+    "step): {\"pin\"} (used, never stored). returned (supervisor, step null): "
+    "{\"reason\", \"repeat_from\": a done work step's id or null}. amendment (supervisor, "
+    "after certification): {\"what\", \"why\", \"pin\"}.")
 
 _REFUSAL = {
     "type": "object", "required": ["rule", "reason"],

@@ -84,7 +84,8 @@ def decide(job_id: int) -> Any:
         kind, step_id = "signed", certifying.id if certifying else None
         data: dict[str, Any] = {"pin": form.get("pin", "")}
     elif action == "return":
-        kind, step_id, data = "returned", None, {"reason": form.get("reason", "")}
+        kind, step_id = "returned", None
+        data = {"reason": form.get("reason", ""), "repeat_from": form.get("repeat_from") or None}
     elif action == "amend":
         kind, step_id = "amendment", form.get("step") or None
         data = {"what": form.get("what", ""), "why": form.get("why", ""),
