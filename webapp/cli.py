@@ -120,8 +120,8 @@ def _serve(app: Flask, host: str, port: int) -> None:
 @DB_OPTION
 def verify(pdf_file: Path, db_path: Path | None) -> None:
     from .authority import station_authority
-    from .records.verify import check_record
-    from .store import jobs
+    from .records.verify import check_record, revocations
+    from .store import jobs, signers
 
     app = _app(db_path)
     authority = station_authority(app.config["DB_PATH"], app.config["STATION_NAME"],
@@ -129,7 +129,8 @@ def verify(pdf_file: Path, db_path: Path | None) -> None:
     db = store.connect(app.config["DB_PATH"])
     try:
         result = check_record(pdf_file.read_bytes(), authority.cert,
-                              lambda job_id: jobs.events(db, job_id))
+                              lambda job_id: jobs.events(db, job_id),
+                              revocations(signers.revoked_signers(db)))
     finally:
         db.close()
     click.echo(f"Record {result.record_id or '(unknown)'}"
@@ -142,6 +143,8 @@ def verify(pdf_file: Path, db_path: Path | None) -> None:
                    + (", CHANGED AFTERWARDS" if r.modified_after else ""))
     for name in result.unsigned:
         click.echo(f"  {name}: signature box still empty (not signed on this revision)")
+    for note in result.notes:
+        click.echo(f"  note: {note}")
     if result.chain_message:
         click.echo(f"  chain: {result.chain_message}")
     if not result.ok:

@@ -358,7 +358,7 @@ def _sign_record(db: store.Database, job_id: int, state: JobState, event: dict[s
         stamp = _stamp_text(event["data"], now)
     signed = sign_record(printed.pdf, signer.pyhanko_signer, field_name=field_name,
                          meaning=meaning, signer_name=event["data"]["signer_name"],
-                         stamp=stamp, reserve=printed.boxes)
+                         stamp=stamp, reserve=printed.boxes, signed_at=now)
     signers.add_record(db, job_id=job_id, revision=printed.revision, pdf=signed,
                        chain_hash=event["hash"], signatures=printed.signatures + 1, now=now,
                        supersedes=printed.supersedes)

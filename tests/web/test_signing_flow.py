@@ -2,12 +2,17 @@
 
 from __future__ import annotations
 
+from datetime import datetime
+
 import pytest
 
 from tests.conftest import DEMO_PINS
 from tests.web.jobs import Job, _event
 from webapp.authority import station_authority
-from webapp.records.signing import verify_record
+from webapp.records import identity
+from webapp.records.signing import sign_record, verify_record
+from webapp.records.verify import check_record, revocations
+from webapp.store import jobs as job_store
 from webapp.store import signers
 
 
@@ -108,6 +113,36 @@ def test_a_revoked_person_cannot_sign_but_earlier_signatures_stay_valid(login, d
     answer = mech1.post_json(second.url, sign("performer", DEMO_PINS["mech1"]))
     assert answer.status_code in (401, 302, 409)      # logged out: the session is refused
     authority = station_authority(app.config["DB_PATH"], "x", clock())
-    report = verify_record(signers.latest_record(db, first.id)["pdf"], authority.cert)[0]
+    earlier = signers.latest_record(db, first.id)["pdf"]
+    report = verify_record(earlier, authority.cert)[0]
     assert report.intact and report.valid and report.trusted   # the earlier one still holds
     assert signers.signer(db, person_id)["revoked_at"] is not None
+    # The station's check says so, and says when access ended.
+    revoked = revocations(signers.revoked_signers(db))
+    check = check_record(earlier, authority.cert, lambda job_id: job_store.events(db, job_id),
+                         revoked)
+    assert check.ok, check.problems
+    assert any("revoked" in n and "stays valid" in n for n in check.notes)
+    # A signature made with the revoked person's key after that (the key and PIN taken
+    # off the station) is reported: the station would have refused to make it.
+    enrolled = signers.signer(db, person_id)
+    key = identity.signer_for(identity.Enrolment(
+        cert_pem=enrolled["cert_pem"], sealed=identity.SealedKey.from_json(
+            enrolled["sealed_key"])), DEMO_PINS["mech1"], authority.cert)
+    clock.advance(3600)
+    late = sign_record(earlier, key, field_name="late", meaning="Performed",
+                       signer_name="Aino Varga", signed_at=clock())
+    check = check_record(late, authority.cert, lambda job_id: job_store.events(db, job_id),
+                         revoked)
+    assert not check.ok
+    assert any("dated after Aino Varga's signing access was revoked" in p
+               for p in check.problems)
+
+
+def test_the_signature_states_the_station_time_of_the_signing_event(removal, db, app, clock):
+    # 21 CFR 11.50(a)(2): the date and time of signing; the PDF signature and the event log
+    # give the same one (the station's clock), so the record and the log agree.
+    event = removal.ok(sign("performer", DEMO_PINS["mech1"])).get_json()
+    authority = station_authority(app.config["DB_PATH"], "x", clock())
+    report = verify_record(signers.latest_record(db, removal.id)["pdf"], authority.cert)[0]
+    assert report.signed_at == datetime.fromisoformat(event["received_at"])

@@ -20,6 +20,7 @@ request's thread free of pyHanko's event loop.
 
 from __future__ import annotations
 
+import hashlib
 import io
 from collections.abc import Callable, Iterable, Mapping
 from concurrent.futures import ThreadPoolExecutor
@@ -95,6 +96,7 @@ class SignatureReport:
     coverage: str
     modified_after: bool
     summary: str
+    certificate_sha256: str = ""  # of the signer's certificate (DER), to look the signer up
 
 
 def _off_thread(fn: Callable[..., T], *args: Any) -> T:
@@ -160,9 +162,24 @@ def _stamp_style() -> TextStampStyle:
                                     font_size=STAMP_FONT_SIZE))
 
 
+class _StationClockSigner(signers.PdfSigner):
+    """A PdfSigner whose signing time is the station's clock, the one every event of the
+    job carries, rather than the process's wall clock."""
+
+    def __init__(self, *args: Any, signing_time: datetime | None, **kwargs: Any) -> None:
+        super().__init__(*args, **kwargs)
+        self._signing_time = signing_time
+
+    def init_signing_session(self, *args: Any, **kwargs: Any) -> Any:
+        session = super().init_signing_session(*args, **kwargs)
+        if self._signing_time is not None:
+            session.system_time = self._signing_time
+        return session
+
+
 def _sign(pdf: bytes, signer: signers.Signer, field_name: str, meaning: str,
           signer_name: str, location: str | None, stamp: str | None,
-          reserve: Mapping[str, StampBox]) -> bytes:
+          reserve: Mapping[str, StampBox], signed_at: datetime | None = None) -> bytes:
     try:
         writer = IncrementalPdfFileWriter(io.BytesIO(pdf))
         # name -> the signature in it, None for an empty (reserved) field
@@ -180,15 +197,16 @@ def _sign(pdf: bytes, signer: signers.Signer, field_name: str, meaning: str,
         field_name=field_name, md_algorithm="sha256", subfilter=fields.SigSeedSubFilter.PADES,
         reason=meaning, name=signer_name, location=location)
     visible = field_name in existing or field_name in reserve
-    pdf_signer = signers.PdfSigner(meta, signer,
-                                   stamp_style=_stamp_style() if visible else None)
+    pdf_signer = _StationClockSigner(meta, signer, signing_time=signed_at,
+                                     stamp_style=_stamp_style() if visible else None)
     out = pdf_signer.sign_pdf(writer, appearance_text_params={"stamp": stamp or meaning})
     return out.getvalue()
 
 
 def sign_record(pdf: bytes, signer: signers.Signer, *, field_name: str, meaning: str,
                 signer_name: str, location: str | None = None, stamp: str | None = None,
-                reserve: Mapping[str, StampBox] | None = None) -> bytes:
+                reserve: Mapping[str, StampBox] | None = None,
+                signed_at: datetime | None = None) -> bytes:
     """Add one PAdES signature as an incremental update and return the new PDF bytes.
 
     Incremental, so an earlier signature (the performer's) stays valid when a later one
@@ -197,9 +215,10 @@ def sign_record(pdf: bytes, signer: signers.Signer, *, field_name: str, meaning:
     whose field is one of them, or one reserved earlier, shows `stamp` in its box. A field
     name with no box gets an invisible signature. A field already signed is refused with
     ValueError: two signatures under one name would make the record ambiguous.
+    `signed_at` is the signing time the signature states (default: now).
     """
     return _off_thread(_sign, pdf, signer, field_name, meaning, signer_name, location,
-                       stamp, dict(reserve or {}))
+                       stamp, dict(reserve or {}), signed_at)
 
 
 def _as_asn1(cert: crypto_x509.Certificate | asn1_x509.Certificate) -> asn1_x509.Certificate:
@@ -252,7 +271,7 @@ def _report(sig: EmbeddedPdfSignature, context: ValidationContext) -> SignatureR
         coverage=_coverage(status.coverage),
         # Unknown level or a failed DocMDP check counts as modified: fail closed.
         modified_after=level not in _ACCEPTABLE or status.docmdp_ok is False,
-        summary="")
+        summary="", certificate_sha256=hashlib.sha256(sig.signer_cert.dump()).hexdigest())
     return replace(report, summary=_summary(report))
 
 

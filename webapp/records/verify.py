@@ -10,10 +10,13 @@ from __future__ import annotations
 
 import io
 import re
+from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
+from datetime import UTC, datetime
 from typing import Any
 
 from cryptography import x509
+from cryptography.hazmat.primitives import hashes
 
 from ..domain.chain import first_broken_link
 from .signing import RecordUnreadable, SignatureReport, empty_signature_fields, verify_record
@@ -30,6 +33,7 @@ class RecordCheck:
     chain_message: str
     problems: list[str] = field(default_factory=list)
     unsigned: list[str] = field(default_factory=list)  # signature boxes still empty
+    notes: list[str] = field(default_factory=list)     # worth knowing, not failures
 
     @property
     def ok(self) -> bool:
@@ -49,17 +53,49 @@ def record_id_of(pdf: bytes) -> str | None:
     return found.group(0) if found else None
 
 
-def check_record(pdf: bytes, trust_root: x509.Certificate,
-                 events_of_job: Any) -> RecordCheck:
-    """`events_of_job(job_id)` gives the job's events from the station's database (or None)."""
+def revocations(revoked_rows: Iterable[Mapping[str, Any]]) -> dict[str, datetime]:
+    """Revocation times by certificate SHA-256, from the station's revoked signer rows."""
+    found = {}
+    for row in revoked_rows:
+        cert = x509.load_pem_x509_certificate(str(row["cert_pem"]).encode())
+        at = datetime.fromisoformat(str(row["revoked_at"]))
+        found[cert.fingerprint(hashes.SHA256()).hex()] = (
+            at.replace(tzinfo=UTC) if at.tzinfo is None else at)
+    return found
+
+
+def _revocation_notes(reports: list[SignatureReport], revoked: Mapping[str, datetime]
+                      ) -> tuple[list[str], list[str]]:
+    """(problems, notes): a signature dated after its signer's access ended is a problem (the
+    station would have refused it); one made before stays valid, and is noted."""
+    problems, notes = [], []
+    for r in reports:
+        ended = revoked.get(r.certificate_sha256)
+        if ended is None:
+            continue
+        when = ended.isoformat(timespec="seconds")
+        if r.signed_at is None or r.signed_at >= ended:
+            problems.append(f"signature '{r.field_name}' is dated after {r.signer}'s signing "
+                            f"access was revoked ({when}): this station did not make it")
+        else:
+            notes.append(f"{r.signer}'s signing access was revoked at {when}, after the "
+                         f"signature '{r.field_name}': that signature stays valid")
+    return problems, notes
+
+
+def check_record(pdf: bytes, trust_root: x509.Certificate, events_of_job: Any,
+                 revoked: Mapping[str, datetime] | None = None) -> RecordCheck:
+    """`events_of_job(job_id)` gives the job's events from the station's database (or None);
+    `revoked` the station's revocation times by certificate SHA-256 (see `revocations`)."""
     try:
         reports = verify_record(pdf, trust_root)
         unsigned = empty_signature_fields(pdf)
     except RecordUnreadable as err:
         return RecordCheck([], None, None, None, "", [str(err)])
     check = _check_chain(pdf, reports, events_of_job)
+    late, notes = _revocation_notes(reports, revoked or {})
     return RecordCheck(check.signatures, check.record_id, check.job_id, check.chain_ok,
-                       check.chain_message, check.problems, unsigned)
+                       check.chain_message, check.problems + late, unsigned, notes)
 
 
 def _check_chain(pdf: bytes, reports: list[SignatureReport],

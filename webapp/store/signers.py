@@ -59,3 +59,9 @@ def records_of(db: Database, job_id: int) -> list[dict]:
     return list(db.query("select id, job_id, revision, signatures, chain_hash, created_at, "
                          "supersedes, reason from records where job_id = ? "
                          "order by revision, signatures", [job_id]))
+
+
+def revoked_signers(db: Database) -> list[dict]:
+    """Every revoked signing identity: its certificate and when access ended."""
+    return list(db.query("select person_id, cert_pem, revoked_at from signers "
+                         "where revoked_at is not null"))

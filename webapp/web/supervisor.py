@@ -120,7 +120,7 @@ def record_pdf(job_id: int) -> Any:
 @bp.route("/records/verify", methods=["GET", "POST"])
 @requires("supervisor", "mechanic", "trainer", "admin")
 def verify_page() -> Any:
-    from ..records.verify import check_record
+    from ..records.verify import check_record, revocations
 
     result = error = None
     status = 200
@@ -131,6 +131,7 @@ def verify_page() -> Any:
             error, status = "Choose the record's PDF file.", 422
         else:
             result = check_record(data, authority().cert,
-                                  lambda job_id: job_store.events(db(), job_id))
+                                  lambda job_id: job_store.events(db(), job_id),
+                                  revocations(signers.revoked_signers(db())))
             status = 200 if result.ok else 422
     return render_template("supervisor/verify.html", result=result, error=error), status
