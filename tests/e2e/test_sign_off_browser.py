@@ -5,7 +5,6 @@ and downloads the signed PDF record, and the record is checked for real."""
 from __future__ import annotations
 
 import io
-import json
 import struct
 import subprocess
 from pathlib import Path
@@ -55,23 +54,6 @@ def check_job(live_server, db_path, station_clock):
     db.close()
 
 
-@pytest.fixture
-def downloading_browser(browser_type, browser_type_launch_args, tmp_path):
-    """The supervisor's Chromium, set to download PDFs rather than show them in its viewer
-    (the station serves the record inline; Debian's Chromium, headless, opens it in the
-    viewer, and Playwright then sees no download). The setting is the user preference behind
-    chrome://settings/content/pdfDocuments, written in a fresh profile."""
-    profile = tmp_path / "supervisor-profile"
-    (profile / "Default").mkdir(parents=True)
-    # Preference name: Chromium's `plugins.always_open_pdf_externally` ("Download PDFs").
-    (profile / "Default" / "Preferences").write_text(json.dumps(
-        {"plugins": {"always_open_pdf_externally": True}}))
-    context = browser_type.launch_persistent_context(
-        str(profile), **browser_type_launch_args, accept_downloads=True, **TABLET)
-    yield context
-    context.close()
-
-
 def _tablet(browser, outside: list[str], base_url: str, context=None):
     context = context or browser.new_context(**TABLET)
     page = context.pages[0] if context.pages else context.new_page()
@@ -108,7 +90,7 @@ def _png_size(data: bytes) -> tuple[int, int]:
 
 def test_sign_return_sign_again_certify_and_download_the_record(browser, live_server,
                                                                 station_clock, check_job,
-                                                                db_path, downloading_browser):
+                                                                db_path):
     job_id = check_job.id
     outside: list[str] = []
 
@@ -139,7 +121,8 @@ def test_sign_return_sign_again_certify_and_download_the_record(browser, live_se
     expect(mech2.get_by_test_id("step")).to_have_attribute("data-step-id", "certify")
 
     # The supervisor finds the job in the review queue, reads the record, returns it.
-    _, boss = _tablet(browser, outside, live_server, downloading_browser)
+    _, boss = _tablet(browser, outside, live_server,
+                      browser.new_context(accept_downloads=True, **TABLET))
     _supervisor_logs_in(boss, live_server)
     boss.click(f"[data-testid=review-{job_id}]")
     boss.wait_for_url(f"{live_server}/review/{job_id}")
@@ -189,10 +172,9 @@ def test_sign_return_sign_again_certify_and_download_the_record(browser, live_se
         boss.click("[data-testid=certify]")
     expect(boss.get_by_test_id("refusal")).to_have_count(0)
     expect(boss.get_by_test_id("certified")).to_be_visible()
-    link = boss.get_by_test_id("record-pdf")
-    expect(link).to_contain_text("revision 2, 3 signature(s)")
+    expect(boss.get_by_test_id("record-pdf")).to_contain_text("revision 2, 3 signature(s)")
     with boss.expect_download() as download_info:
-        link.click()
+        boss.get_by_test_id("record-pdf-download").click()
     download = download_info.value
     assert download.failure() is None
     assert download.suggested_filename == f"work-record-job-{job_id}-r2-s3.pdf"

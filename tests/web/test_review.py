@@ -85,6 +85,14 @@ def test_returning_reopens_the_signatures_and_the_next_record_is_a_new_revision(
     assert (first["revision"], second["revision"]) == (1, 2)
     assert second["supersedes"] == first["id"] and second["signatures"] == 1
     assert len(signers.records_of(db, signed_check.id)) == 3  # every state kept
+    # The superseded revision can still be fetched, byte for byte, from the job's log page.
+    log = supervisor.get(f"/jobs/{signed_check.id}/log").get_data(as_text=True)
+    assert f"/jobs/{signed_check.id}/records/{first['id']}.pdf" in log
+    fetched = supervisor.get(f"/jobs/{signed_check.id}/records/{first['id']}.pdf?download=1")
+    assert fetched.status_code == 200 and fetched.data == first["pdf"]
+    assert fetched.headers["Content-Disposition"].startswith("attachment;")
+    assert supervisor.get(f"/jobs/{signed_check.id + 1}/records/{first['id']}.pdf"
+                          ).status_code == 404      # a record is reached only under its job
 
 
 def test_only_a_supervisor_returns_a_job(signed_check):

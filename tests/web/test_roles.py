@@ -10,7 +10,7 @@ USERS = {"mechanic": "mech1", "supervisor": "super", "trainer": "trainer", "admi
 
 # A real URL for each GET route with arguments (job 1 is opened by the fixture below).
 SAMPLE_ARGS = {"engine_id": 1, "job_id": 1, "procedure_id": "exciter-removal",
-               "component_id": 3}  # 3: the DEMO-101 engine 1 channel A plug
+               "component_id": 3, "record_id": 1}  # 3: the DEMO-101 engine 1 channel A plug
 
 
 def _routes(app):
@@ -48,7 +48,8 @@ def test_each_role_reaches_only_its_pages(app, login, job_one, role):
         answer = client.get(url)
         status = answer.status_code
         if role in allowed:
-            expected = {"/": 302, "/jobs/1/record.pdf": 404}.get(url, 200)  # job 1: unsigned
+            expected = {"/": 302, "/jobs/1/record.pdf": 404,  # job 1 is unsigned
+                        "/jobs/1/records/1.pdf": 404}.get(url, 200)
             assert status == expected, (url, status)
             if status == 200 and answer.mimetype == "text/html":
                 # Every page's footer defers to the approved data and the regulations.

@@ -112,9 +112,25 @@ def record_pdf(job_id: int) -> Any:
     latest = signers.latest_record(db(), job_id)
     if latest is None:
         abort(404, "This job has no signed record yet.")
-    return Response(latest["pdf"], mimetype="application/pdf", headers={
-        "Content-Disposition": f"inline; filename=work-record-job-{job_id}-"
-                               f"r{latest['revision']}-s{latest['signatures']}.pdf"})
+    return _pdf_answer(latest)
+
+
+@bp.get("/jobs/<int:job_id>/records/<int:record_id>.pdf")
+@requires("supervisor", "mechanic")
+def record_file(job_id: int, record_id: int) -> Any:
+    """Any signed state of a job's record, superseded ones included (never changed)."""
+    found = signers.record(db(), record_id)
+    if found is None or found["job_id"] != job_id:
+        abort(404, "This job has no such record.")
+    return _pdf_answer(found)
+
+
+def _pdf_answer(record: dict[str, Any]) -> Response:
+    """The PDF as stored; `?download=1` saves it instead of showing it."""
+    how = "attachment" if request.args.get("download") else "inline"
+    name = f"work-record-job-{record['job_id']}-r{record['revision']}-s{record['signatures']}.pdf"
+    return Response(record["pdf"], mimetype="application/pdf",
+                    headers={"Content-Disposition": f"{how}; filename={name}"})
 
 
 @bp.route("/records/verify", methods=["GET", "POST"])
