@@ -46,9 +46,8 @@ from typing import Any
 from measuring import percentile, timed  # bench/ is on sys.path when a bench runs
 from pypdf import PdfReader
 
-from webapp import create_app, recording, store
+from webapp import create_app, demo_jobs, recording, store
 from webapp.authority import station_authority
-from webapp.domain.procedures import Advisory, Check, DischargeWait, Lockout, Reading, Sign, Torque
 from webapp.library import load_shop_library
 from webapp.records import identity, signing
 from webapp.records.pdf import font_configuration, pdf_of_html, record_html, render_for_signing
@@ -87,66 +86,7 @@ record's fonts.</p>
 """
 
 
-# --- the job, walked through recording like the API does --------------------------------
-
-def _reading_data(step: Reading | Torque) -> dict[str, Any]:
-    """A reading inside the step's limits, in the step's own unit (as tests/web/jobs.py)."""
-    if isinstance(step, Reading) and step.value == "text":
-        return {"text": "XEX-1001-03 / XE-9001 (demo)"}
-    if isinstance(step, Reading) and step.value == "pass_fail":
-        return {"result": "pass"}
-    assert step.limits is not None, step.id
-    low, high = step.limits.min, step.limits.max
-    value = ((low + high) / 2 if low is not None and high is not None
-             else low * 1.5 if low is not None else (high or 0) / 2)
-    data: dict[str, Any] = {"value": str(value), "unit": step.unit}
-    if isinstance(step, Torque):
-        data.update(wrench_id="TW-017", calibration_due="2027-06-30")
-        return data
-    for condition in step.conditions:
-        data[condition] = ({"value": "45"} if condition == "humidity" else
-                           {"value": "1000", "unit": "V"} if condition == "test_voltage" else
-                           {"value": "18", "unit": "degC"})
-    if step.wear:
-        data["usage"] = {"engine_hours": 812, "starts": 760, "continuous_ignition_hours": 150}
-    return data
-
-
-def walk_to_sign(db: store.Database, job_id: int, person: Any, now: datetime) -> datetime:
-    """Record every step before the performer's signature, in order; returns the clock."""
-
-    def record(kind: str, step_id: str, data: dict[str, Any]) -> None:
-        outcome = recording.record_event(db, job_id, event_id=str(uuid.uuid4()), kind=kind,
-                                         step_id=step_id, data=data, device_time=None,
-                                         person=person, now=now)
-        assert outcome.status == "stored", (step_id, kind, outcome)
-
-    while True:
-        nxt = recording.load_job(db, job_id).state.next_step
-        assert nxt is not None, "the job ended before its sign step"
-        step = nxt.step
-        if isinstance(step, Sign):
-            assert step.id == SIGN_STEP and step.role == "performer", step.id
-            return now
-        if isinstance(step, Advisory) and step.kind in ("warning", "caution"):
-            record("acknowledged", step.id, {})
-        elif isinstance(step, Lockout) and step.action == "apply":
-            for breaker, tag in zip(step.breakers, ("T-1", "T-2"), strict=False):
-                record("breaker_tagged", step.id, {"breaker": breaker.id, "tag": tag})
-            record("step_done", step.id, {})
-        elif isinstance(step, DischargeWait):
-            now += timedelta(seconds=120)  # past the 2 min minimum of the demo exciter
-            record("step_done", step.id, {})
-        elif isinstance(step, (Reading, Torque)):
-            record("reading_recorded", step.id, _reading_data(step))
-        elif isinstance(step, (Advisory, Check)):
-            items = getattr(step, "items", None) or []
-            record("step_done", step.id, {"items": list(range(len(items)))} if items else {})
-        else:
-            raise AssertionError(f"{PROCEDURE} has no {step.kind} step; the walk does not "
-                                 "know how to record one")
-        now += timedelta(seconds=20)
-
+# --- the station and the job --------------------------------------------------------------
 
 def build_station(tmp: Path) -> tuple[Path, Any, datetime]:
     """A demo station database, built as tests/conftest.py builds it, with its authority."""
@@ -172,7 +112,7 @@ def signed_job(db: store.Database, authority: Any, now: datetime) -> dict[str, A
     engine_id = fleet.fleet(db)[0]["engines"][0]["id"]
     job_id = recording.open_job(db, procedure_id=PROCEDURE, engine_id=engine_id,
                                 channel="A", person=mech, now=now)
-    now = walk_to_sign(db, job_id, mech, now + timedelta(seconds=20))
+    now = demo_jobs.walk(db, job_id, by=mech, now=now + demo_jobs.STEP_GAP, until=SIGN_STEP)
     outcome = recording.record_event(db, job_id, event_id=str(uuid.uuid4()), kind="signed",
                                      step_id=SIGN_STEP, data={"pin": pin}, device_time=None,
                                      person=mech, now=now, authority=authority)

@@ -63,7 +63,7 @@ def init(db_path: Path | None) -> None:
 @PORT_OPTION
 @click.option("--scenario", default="bramblecoast", show_default=True)
 def demo(db_path: Path | None, host: str, port: int, scenario: str) -> None:
-    from .scenario import demo_logins, load_scenario, read_scenario, scenario_path
+    from .scenario import demo_logins, load_demo_jobs, load_scenario, read_scenario, scenario_path
 
     app = _app(db_path)
     path = Path(app.config["DB_PATH"])
@@ -77,9 +77,12 @@ def demo(db_path: Path | None, host: str, port: int, scenario: str) -> None:
     db = store.connect(path)
     try:
         load_scenario(db, chosen, system_clock(), authority)
+        with app.app_context():  # a signed job's record is printed from the app's template
+            opened = load_demo_jobs(db, chosen, system_clock(), authority)
     finally:
         db.close()
-    click.echo(f"Demo scenario '{chosen.name}' built in {path}")
+    click.echo(f"Demo scenario '{chosen.name}' built in {path}"
+               + (f", with {len(opened)} job(s) under way" if opened else ""))
     click.echo("Demo log-ins (username / password / signing PIN / role):")
     for username, password, pin, roles in demo_logins(chosen):
         click.echo(f"  {username:8} {password:14} {pin:8} {roles}")

@@ -73,6 +73,19 @@ class Operator(_Strict):
     approval: str
 
 
+class DemoJob(_Strict):
+    """A job the demo starts with: opened and worked by `by`, up to the step `until` (not
+    included; none: to the end), each sign step signed by the person named for it."""
+
+    procedure: str
+    engine: str                                  # engine serial number
+    channel: Literal["A", "B"] | None = None     # for a one-channel procedure
+    by: str                                      # username
+    hours_ago: float = Field(default=3, gt=0)    # when the walk started
+    until: str | None = None
+    signers: dict[str, str] = Field(default_factory=dict)  # sign step id -> username
+
+
 class Scenario(_Strict):
     name: str
     seed: int
@@ -83,6 +96,7 @@ class Scenario(_Strict):
     lead_part_numbers: dict[Literal["A", "B"], str]
     plug_history: list[PlugHistory]
     ordinary_wear: OrdinaryWear
+    jobs: list[DemoJob] = Field(default_factory=list)
 
 
 def scenario_path(name: str = "bramblecoast") -> Path:
@@ -154,6 +168,36 @@ def _ordinary_wear(wear: OrdinaryWear, rng: random.Random, today: date) -> list[
             engine_hours=hours, starts=int(hours * rng.uniform(0.85, 0.95)),
             continuous_ignition_hours=round(hours * 0.02, 1), erosion_mm=round(erosion, 3)))
     return readings
+
+
+def load_demo_jobs(db: store.Database, scenario: Scenario, now: datetime,
+                   authority: StationAuthority) -> list[int]:
+    """Open and work the scenario's jobs through the station's recording path (needs the
+    shop library loaded and the people enrolled with their PINs); returns the job ids."""
+    from . import demo_jobs, recording
+
+    engines = {e["serial"]: e["id"] for a in fleet.fleet(db) for e in a["engines"]}
+    pins = {p.username: p.pin for p in scenario.people}
+
+    def person(username: str) -> people.Person:
+        found = people.person_by_username(db, username)
+        if found is None:
+            raise ValueError(f"demo job: no person '{username}' in the scenario")
+        return found
+
+    opened = []
+    for job in scenario.jobs:
+        if job.engine not in engines:
+            raise ValueError(f"demo job: no engine '{job.engine}' in the scenario's fleet")
+        start = now - timedelta(hours=job.hours_ago)
+        job_id = recording.open_job(db, procedure_id=job.procedure, engine_id=engines[job.engine],
+                                    channel=job.channel, person=person(job.by), now=start)
+        demo_jobs.walk(db, job_id, by=person(job.by), now=start + demo_jobs.STEP_GAP,
+                       until=job.until, authority=authority,
+                       signers={step: demo_jobs.Signer(person(u), pins[u] or "")
+                                for step, u in job.signers.items()})
+        opened.append(job_id)
+    return opened
 
 
 def demo_logins(scenario: Scenario) -> list[tuple[str, str, str, str]]:

@@ -1,0 +1,120 @@
+"""Demo jobs: a procedure worked through the station's own recording path, for the demo.
+
+The demo station starts with jobs in the states a supervisor or mechanic would meet (one
+waiting for certification, say), so each role has something to do at once. Every entry
+goes through `recording.record_event`, the path a tablet's entries take, with the same
+rules and gates; the values are invented demo readings inside each step's limits.
+The bench uses the same walk to build its record.
+"""
+
+from __future__ import annotations
+
+import uuid
+from collections.abc import Mapping
+from dataclasses import dataclass
+from datetime import datetime, timedelta
+from typing import Any
+
+from . import recording, store
+from .domain.procedures import (
+    Advisory,
+    Check,
+    DischargeWait,
+    IgnitionRun,
+    Lockout,
+    Reading,
+    Sign,
+    SparkCount,
+    Torque,
+)
+from .records.identity import StationAuthority
+from .store.people import Person
+
+STEP_GAP = timedelta(seconds=20)         # between two entries of the walk
+DISCHARGE_PAST = timedelta(seconds=120)  # past the 2 min minimum of the demo exciters
+DUTY_REST = timedelta(seconds=1500)      # past any duty-cycle off period (23 min at most)
+DEMO_TAGS = ("T-1", "T-2", "T-3", "T-4")
+
+
+@dataclass(frozen=True)
+class Signer:
+    person: Person
+    pin: str
+
+
+class WalkRefused(RuntimeError):
+    """The station refused an entry of the walk: the demo data and the procedure disagree."""
+
+
+def reading_data(step: Reading | Torque) -> dict[str, Any]:
+    """A demo reading inside the step's limits, in the step's own unit."""
+    if isinstance(step, Reading) and step.value == "text":
+        return {"text": "XEX-1001-03 / XE-9001 (demo)"}
+    if isinstance(step, Reading) and step.value == "pass_fail":
+        return {"result": "pass"}
+    assert step.limits is not None, step.id
+    low, high = step.limits.min, step.limits.max
+    value = ((low + high) / 2 if low is not None and high is not None
+             else low * 1.5 if low is not None else (high or 0) / 2)
+    data: dict[str, Any] = {"value": f"{value:g}", "unit": step.unit}
+    if isinstance(step, Torque):
+        data.update(wrench_id="TW-017", calibration_due="2027-06-30")
+        return data
+    for condition in step.conditions:
+        data[condition] = ({"value": "45"} if condition == "humidity" else
+                           {"value": "1000", "unit": "V"} if condition == "test_voltage" else
+                           {"value": "18", "unit": "degC"})
+    if step.wear:
+        data["usage"] = {"engine_hours": 812, "starts": 760, "continuous_ignition_hours": 150}
+    return data
+
+
+def walk(db: store.Database, job_id: int, *, by: Person, now: datetime,
+         until: str | None = None, signers: Mapping[str, Signer] | None = None,
+         authority: StationAuthority | None = None) -> datetime:
+    """Record the job's steps in order, as `by` (sign steps as the signer named for them),
+    up to the step `until` (not included) or the end. Returns the clock after the walk;
+    raises WalkRefused when the station refuses an entry."""
+
+    def record(kind: str, step_id: str, data: dict[str, Any], person: Person = by) -> None:
+        outcome = recording.record_event(db, job_id, event_id=str(uuid.uuid4()), kind=kind,
+                                         step_id=step_id, data=data, device_time=None,
+                                         person=person, now=now, authority=authority)
+        if outcome.status != "stored":
+            why = outcome.refusal or outcome.problem
+            raise WalkRefused(f"{kind} at {step_id} was {outcome.status}: {why}")
+
+    while True:
+        upcoming = recording.load_job(db, job_id).state.next_step
+        if upcoming is None or upcoming.id == until:
+            return now
+        step = upcoming.step
+        if isinstance(step, Sign):
+            signer = (signers or {}).get(step.id)
+            if signer is None:
+                raise WalkRefused(f"no demo signer is named for the sign step {step.id}")
+            record("signed", step.id, {"pin": signer.pin}, signer.person)
+        elif isinstance(step, Advisory) and step.kind in ("warning", "caution"):
+            record("acknowledged", step.id, {})
+        elif isinstance(step, Lockout) and step.action == "apply":
+            for breaker, tag in zip(step.breakers, DEMO_TAGS, strict=False):
+                record("breaker_tagged", step.id, {"breaker": breaker.id, "tag": tag})
+            record("step_done", step.id, {})
+        elif isinstance(step, DischargeWait):
+            now += DISCHARGE_PAST
+            record("step_done", step.id, {})
+        elif isinstance(step, (Reading, Torque)):
+            record("reading_recorded", step.id, reading_data(step))
+        elif isinstance(step, IgnitionRun):
+            now += DUTY_REST
+            record("energised", step.id, {})
+        elif isinstance(step, SparkCount):
+            # Demo counts: about 1.2 snaps a second on one channel, twice that on both.
+            count = 70 if step.channel == "both" else 36
+            record("sparks_counted", step.id, {"method": "timed", "count": count,
+                                               "window_s": 30})
+        elif isinstance(step, Check) and step.items:
+            record("step_done", step.id, {"items": list(range(len(step.items)))})
+        else:
+            record("step_done", step.id, {})
+        now += STEP_GAP
