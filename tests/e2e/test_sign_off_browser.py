@@ -14,6 +14,7 @@ import pytest
 from playwright.sync_api import expect
 
 from tests.conftest import DEMO_PASSWORDS, DEMO_PINS, LoggedIn
+from tests.pdf_text import pdf_text
 from tests.web.jobs import Job
 from webapp import create_app, store
 from webapp.authority import station_authority
@@ -210,6 +211,10 @@ def test_sign_return_sign_again_certify_and_download_the_record(browser, live_se
     text = "".join(page.extract_text() for page in pypdf.PdfReader(io.BytesIO(pdf)).pages)
     for name in NAMES.values():
         assert name in text
+    # On paper too: each signature is stamped in its box (21 CFR 11.50).
+    printed = pdf_text(pdf, RESULTS)
+    for name in NAMES.values():
+        assert f"Signed electronically by {name}" in printed
 
     # Page 1 as a picture, kept with the run's results (Debian's poppler-utils).
     for stale in RESULTS.glob("sign-off-record-page-*.png"):
