@@ -34,6 +34,8 @@ from .domain.readings import InputProblem
 from .library import procedure_of_revision
 from .records import identity
 from .records.identity import StationAuthority
+from .records.record_entries import station_time
+from .records.record_signatures import AUTHORISATION_KIND
 from .records.signing import StampBox
 from .store import fleet, jobs, people, procedures, signers
 from .store.people import Person
@@ -329,8 +331,6 @@ def _print_ahead(db: store.Database, job_id: int, step_id: str | None, data: dic
 def _stamp_text(data: dict[str, Any], at: datetime) -> str:
     """What a signature's visible stamp says (21 CFR 11.50: printed name, date and time,
     meaning), in lines short enough for the stamp box."""
-    from .records.record_data import AUTHORISATION_KIND, station_time
-
     meaning = (f"Meaning: {data['meaning']} ({data['scope']})" if "scope" in data
                else f"Meaning: {data['meaning']}")
     return "\n".join((

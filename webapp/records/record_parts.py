@@ -1,0 +1,104 @@
+"""The work record's parts and wear (sections 7 and 8): tools, parts, plug wear charts."""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any
+
+from ..charts import wear_chart_svg
+from ..domain import wear
+from ..domain.execution import JobState
+from ..domain.procedures import Reading
+from ..shown import unit_label
+from ..store import Database
+from ..store import wear as wear_store
+from .record_entries import Entry, People, station_time, step_of
+
+COMPONENT_WORDS = {"exciter": "Ignition exciter", "lead": "High-tension lead",
+                   "plug": "Igniter plug"}
+# Text readings that name a part: their values belong in the parts section as well.
+_PART_READING = re.compile(r"serial|part-number|release")
+USAGE_LABEL = "FH"  # plug wear is tracked against engine hours, as on the fleet pages
+
+
+@dataclass(frozen=True)
+class PartLine:
+    kind: str
+    channel: str
+    part_number: str
+    serial: str
+    type: str
+
+
+@dataclass(frozen=True)
+class WearChart:
+    title: str
+    where: str
+    svg: str
+    limit: str
+    points: int
+    trend: str
+
+
+def tool_entries(state: JobState, numbers: Mapping[str, int], who: People) -> list[Entry]:
+    lines = []
+    for r in state.readings:
+        if not r.get("wrench_id"):
+            continue
+        adapter = r.get("adapter")
+        adapter_text = (f"adapter: wrench length {adapter['wrench_length']:g}, extension "
+                        f"{adapter['extension']:g}; torque applied {adapter['applied']:.4g} "
+                        f"{unit_label(r['procedure_unit'])}" if isinstance(adapter, Mapping)
+                        else "no adapter")
+        lines.append(Entry(f"torque wrench {r['wrench_id']}, calibration due "
+                           f"{r['calibration_due']}", who(r.get("person_id")),
+                           station_time(r["received_at"]), numbers.get(r["step"]),
+                           adapter_text))
+    return lines
+
+
+def recorded_parts(state: JobState, numbers: Mapping[str, int], who: People) -> list[Entry]:
+    lines = []
+    for r in state.readings:
+        step = step_of(state, r["step"])
+        if isinstance(step, Reading) and step.value == "text" and _PART_READING.search(step.id):
+            lines.append(Entry(step.text.strip(), who(r.get("person_id")),
+                               station_time(r.get("received_at")), numbers.get(step.id),
+                               str(r.get("text", ""))))
+    return lines
+
+
+def wear_charts(db: Database, row: Mapping[str, Any], state: JobState) -> list[WearChart]:
+    """A wear chart for each plug gauged on this job: its history up to and with this job."""
+    charts = []
+    seen: set[int] = set()
+    for r in state.readings:
+        plug = r.get("plug")
+        if not isinstance(plug, Mapping) or plug.get("id") in seen:
+            continue
+        step = step_of(state, r["step"])
+        if not isinstance(step, Reading) or step.limits is None or step.limits.max is None:
+            continue
+        seen.add(plug["id"])
+        history = wear_store.plug_history(db, plug["id"])
+        rows = [p for p in (history or {}).get("points", [])
+                if p["job_id"] is None or p["job_id"] <= row["id"]]
+        if not rows:  # the plug is no longer installed: chart this job's gauging alone
+            rows = [{"engine_hours": x["usage"]["engine_hours"], "erosion_mm": x["converted"],
+                     "passed": None, "continuous_ignition_estimated": False}
+                    for x in state.readings if isinstance(x.get("plug"), Mapping)
+                    and x["plug"].get("id") == plug["id"] and isinstance(x.get("usage"), Mapping)]
+        points = [wear.WearPoint(usage=float(p["engine_hours"]), erosion_mm=p["erosion_mm"],
+                                 passed=p["passed"], estimated=p["continuous_ignition_estimated"])
+                  for p in rows if p["engine_hours"] is not None]
+        fit = wear.wear_rate(points)
+        title = f"Igniter plug wear · {plug.get('part_number')} S/N {plug.get('serial')}"
+        where = (f"{row['registration']} engine {row['position']} channel {plug.get('channel')}")
+        limit = step.limits.max
+        charts.append(WearChart(title, where, wear_chart_svg(points, limit,
+                                                      fit=None if fit.too_few else fit,
+                                                      title=title, usage_label=USAGE_LABEL),
+                                f"{limit:.2f} mm", len(points), fit.reason))
+    return charts

@@ -1,0 +1,189 @@
+"""The work record's steps, readings and findings (sections 3, 4 and 6), line by line."""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, replace
+from typing import Any
+
+from ..domain.execution import JobState, StepProgress
+from ..domain.procedures import Check, Lockout, Reading, SparkCount, Step, Torque
+from ..domain.readings import VERDICT_SYMBOL
+from ..shown import limits_text, unit_label
+from .record_entries import People, Who, station_time, step_of
+
+DISPOSITION_WORDS = {"replaced": "replaced and re-tested", "re-tested": "re-tested",
+                     "deferred": "deferred"}
+
+
+@dataclass(frozen=True)
+class StepLine:
+    number: int
+    kind: str
+    text: str
+    status: str                 # done, next, waiting
+    done_by: Who | None
+    done_at: str                # the full station time, "2026-12-01 08:02:00 UTC"
+    outcome: str = ""           # what the completing entry recorded, in a few words
+    new_date: bool = True       # the first step done on its date: the table prints the date
+
+    @property
+    def done_on(self) -> str:
+        return self.done_at[:10] if self.done_by else ""
+
+    @property
+    def done_time(self) -> str:
+        return self.done_at[11:] if self.done_by else self.done_at
+
+
+@dataclass(frozen=True)
+class ReadingLine:
+    """One reading attempt as recorded, with the finding on it when it was out of limits."""
+
+    step_number: int
+    what: str
+    attempt: int
+    entered: str                # value and unit as the mechanic's tool showed them
+    converted: str              # in the procedure's unit (torque: as applied)
+    limits: str
+    verdict: str
+    symbol: str
+    conditions: str
+    by: Who | None
+    at: str
+    disposition: str = "—"
+    finding: str = ""
+    reference: str = "—"
+    finding_by: Who | None = None
+    finding_at: str = "—"
+
+    @property
+    def summary(self) -> str:
+        value = f"{self.entered} → {self.converted}" if self.converted else self.entered
+        return " ".join(x for x in (value, self.symbol, self.verdict) if x)
+
+
+def tags_by_step(events: Sequence[Mapping[str, Any]]) -> dict[str, str]:
+    """What each lockout step of this job did, in a few words: "T-1 on IGN-A; T-2 on IGN-B"."""
+    said: dict[str, list[str]] = {}
+    for e in events:
+        if e["kind"] in ("breaker_tagged", "tag_removed") and e["step_id"]:
+            number = str(e["data"].get("tag", "")).strip()
+            said.setdefault(e["step_id"], []).append(
+                f"{number} on {e['data']['breaker']}" if e["kind"] == "breaker_tagged"
+                else f"{number} removed")
+    return {step: "; ".join(words) for step, words in said.items()}
+
+
+def date_marked(lines: list[StepLine]) -> list[StepLine]:
+    """Mark the steps where a new date starts, so each row need only print its time."""
+    marked, last = [], None
+    for line in lines:
+        marked.append(replace(line, new_date=bool(line.done_on) and line.done_on != last))
+        last = line.done_on or last
+    return marked
+
+
+def step_line(progress: StepProgress, tagged: str, who: People) -> StepLine:
+    event = progress.event
+    return StepLine(progress.number, progress.step.kind, progress.step.text.strip(),
+                    progress.status, who(event["person_id"]) if event else None,
+                    station_time(event["received_at"]) if event else "—",
+                    _outcome(progress.step, event, tagged) if event else "")
+
+
+def _outcome(step: Step, event: Mapping[str, Any], tagged: str) -> str:
+    kind, data = event["kind"], event["data"]
+    if kind == "acknowledged":
+        return "acknowledged"
+    if kind == "finding":
+        return f"finding: {DISPOSITION_WORDS.get(data.get('disposition'), '')}"
+    if isinstance(step, Lockout):
+        return tagged or ("all tags off" if step.action == "release" else "")
+    if kind in ("reading_recorded", "sparks_counted"):
+        entered, converted = _entered(data)
+        verdict = data.get("verdict", "")
+        return " ".join(x for x in (entered, converted and f"= {converted}",
+                                    VERDICT_SYMBOL.get(verdict, ""), verdict) if x)
+    if kind == "energised":
+        return "energised"
+    if isinstance(step, Check) and step.items:
+        return f"{len(step.items)} items confirmed"
+    if isinstance(step, Check) and step.power:
+        return f"exciter input {step.power}"
+    return ""
+
+
+def _entered(data: Mapping[str, Any]) -> tuple[str, str]:
+    """(as entered, in the procedure's unit) for a reading's stored data."""
+    if "rate" in data:
+        how = (f"{data['count']} sparks in {data['window_s']:g} s" if data.get("method") == "timed"
+               else f"{data.get('counted_sparks', len(data.get('taps', [])))} taps")
+        return how, f"{data['rate']:.0f} per minute"
+    if "value" in data and "unit" in data:
+        entered = f"{data['value']:g} {unit_label(data['unit'])}"
+        applied = data.get("applied", data["converted"])
+        converted = f"{applied:.4g} {unit_label(data['procedure_unit'])}"
+        return entered, converted
+    if "result" in data:
+        return str(data["result"]), ""
+    return str(data.get("text", "")), ""
+
+
+def _limits(step: Step | None) -> str:
+    if isinstance(step, (Reading, Torque)) and step.limits is not None:
+        return limits_text(step)
+    if isinstance(step, SparkCount):
+        low, high = step.limits.min, step.limits.max
+        if low is not None and high is not None:
+            return f"{low:g} to {high:g} per minute"
+        return f"at least {low:g} per minute" if low is not None else f"at most {high:g} per minute"
+    if isinstance(step, Reading) and step.value == "pass_fail":
+        return "pass"
+    return "—"
+
+
+def _short_name(step_id: str) -> str:
+    """A step's id in words ("plug-torque" -> "plug torque"): the steps table has its text."""
+    return step_id.replace("-", " ")
+
+
+def reading_line(r: Mapping[str, Any], state: JobState, numbers: Mapping[str, int],
+                 who: People) -> ReadingLine:
+    entered, converted = _entered(r)
+    verdict = r.get("verdict", "")
+    line = ReadingLine(numbers.get(r["step"], 0), _short_name(r["step"]), r["attempt"],
+                       entered, converted, _limits(step_of(state, r["step"])), verdict,
+                       VERDICT_SYMBOL.get(verdict, ""), "; ".join(_conditions(r)),
+                       who(r.get("person_id")), station_time(r.get("received_at")))
+    finding = r.get("finding")
+    if finding:
+        disposition = DISPOSITION_WORDS.get(finding.get("disposition"), "—")
+        return replace(line, disposition=disposition, finding=finding.get("text", ""),
+                       reference=finding.get("reference") or "—",
+                       finding_by=who(finding.get("person_id")),
+                       finding_at=station_time(finding.get("received_at")))
+    if verdict == "out of limits":
+        return replace(line, disposition="awaiting a finding")
+    return line
+
+
+def _conditions(r: Mapping[str, Any]) -> list[str]:
+    """What was recorded with a reading besides its value: test conditions, usage, plug."""
+    said = []
+    for name in ("test_voltage", "ambient_temperature", "humidity"):
+        c = r.get(name)
+        if isinstance(c, Mapping):
+            said.append(f"{name.replace('_', ' ')} {c['value']:g} {unit_label(c.get('unit'))}")
+    usage = r.get("usage")
+    if isinstance(usage, Mapping):
+        said.append(f"at {usage.get('engine_hours', 0):g} FH, {usage.get('starts')} starts, "
+                    f"{usage.get('continuous_ignition_hours', 0):g} h continuous ignition"
+                    + (" (estimated)" if usage.get("continuous_ignition_estimated") else ""))
+    if isinstance(r.get("plug"), Mapping):
+        said.append(f"plug {r['plug'].get('part_number')} S/N {r['plug'].get('serial')}")
+    if r.get("wrench_id"):
+        said.append(f"wrench {r['wrench_id']}, calibration due {r['calibration_due']}")
+    if isinstance(r.get("both_check"), Mapping):
+        said.append(f"A + B check: {r['both_check'].get('result')}")
+    return said
