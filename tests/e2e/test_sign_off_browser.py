@@ -25,7 +25,7 @@ from webapp.store import signers
 from .conftest import log_in, tap
 
 # Kept after the run (ignored by git): the downloaded record and its first page as a picture.
-RESULTS = Path(__file__).resolve().parents[2] / "test-results"
+RESULTS = Path(__file__).resolve().parents[1] / "artifacts"  # with the other screenshots
 
 # The one procedure whose sign steps end with a certifying signature (tasks/*.yaml): two
 # performer signatures (selector, engine), then the supervisor's release to service.
