@@ -72,9 +72,9 @@ def register_extensions(app: Flask) -> None:
 
 
 def register_blueprints(app: Flask) -> None:
-    from .web import admin, api, auth, fleet, mechanic, procedures, supervisor
+    from .web import admin, api, auth, fleet, mechanic, procedures, pwa, supervisor
 
-    for room in (auth, mechanic, fleet, api, procedures, supervisor, admin):
+    for room in (auth, mechanic, fleet, api, procedures, supervisor, admin, pwa):
         app.register_blueprint(room.bp)
 
 

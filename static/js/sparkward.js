@@ -138,6 +138,21 @@
   document.addEventListener("htmx:afterSwap", function () { pageStart = Date.now(); tick(); });
   setInterval(tick, 1000);
 
+  // The service worker keeps the app shell and the pages opened here, for the Wi-Fi's
+  // drop-outs (static/js/sw.js, served as /sw.js so it covers the whole station). Browsers
+  // allow one only on a secure origin: localhost, or HTTPS on the hangar LAN.
+  if ("serviceWorker" in navigator && window.isSecureContext) {
+    window.addEventListener("load", function () {
+      try {
+        navigator.serviceWorker.register("/sw.js", { scope: "/" }).catch(function (error) {
+          console.warn("Sparkward: no service worker on this tablet:", error);
+        });
+      } catch (error) {
+        console.warn("Sparkward: no service worker on this tablet:", error);
+      }
+    });
+  }
+
   document.addEventListener("DOMContentLoaded", function () {
     tick();
     if (!window.htmx) return;
