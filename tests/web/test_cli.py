@@ -80,20 +80,23 @@ def test_people_add_reads_the_password_then_the_pin_from_stdin(tmp_path):
     assert "246813" not in enrolled["sealed_key"]     # the PIN itself is never kept
 
 
+def _people_add(path, stdin, *options, username="kim", role="mechanic"):
+    """`sparkward people add` for one person, standard input given."""
+    return CliRunner().invoke(cli, [
+        "people", "add", "--db", str(path), "--username", username, "--name", "Kim Demo",
+        "--role", role, "--password-stdin", *options], input=stdin)
+
+
 def test_people_add_refuses_a_short_pin_and_stores_nobody(tmp_path):
     path = tmp_path / "p.db"
-    result = CliRunner().invoke(cli, [
-        "people", "add", "--db", str(path), "--username", "kim", "--name", "Kim Demo",
-        "--role", "mechanic", "--password-stdin"], input="a-long-password\n12345\n")
+    result = _people_add(path, "a-long-password\n12345\n")
     assert result.exit_code != 0 and "6" in result.output
     assert store.connect(path)["people"].count == 0
 
 
 def test_people_add_without_a_pin_line_is_refused_and_stores_nobody(tmp_path):
     path = tmp_path / "p.db"
-    result = CliRunner().invoke(cli, [
-        "people", "add", "--db", str(path), "--username", "kim", "--name", "Kim Demo",
-        "--role", "mechanic", "--password-stdin"], input="a-long-password\n")
+    result = _people_add(path, "a-long-password\n")
     assert result.exit_code != 0 and "signing PIN is missing" in result.output
     assert not path.exists()   # refused before the station was even opened
 
@@ -102,9 +105,8 @@ def test_people_add_with_no_signing_key_enrols_a_person_who_cannot_sign(tmp_path
     from webapp.store import signers
 
     path = tmp_path / "p.db"
-    result = CliRunner().invoke(cli, [
-        "people", "add", "--db", str(path), "--username", "ada", "--name", "Ada Admin",
-        "--role", "admin", "--password-stdin", "--no-signing-key"], input="a-long-password\n")
+    result = _people_add(path, "a-long-password\n", "--no-signing-key", username="ada",
+                         role="admin")
     assert result.exit_code == 0, result.output
     assert "without a signing key" in result.output
     db = store.connect(path)
@@ -113,9 +115,7 @@ def test_people_add_with_no_signing_key_enrols_a_person_who_cannot_sign(tmp_path
 
 def test_people_add_refuses_a_short_password_and_stores_nobody(tmp_path):
     path = tmp_path / "p.db"
-    result = CliRunner().invoke(cli, [
-        "people", "add", "--db", str(path), "--username", "kim", "--name", "Kim Demo",
-        "--role", "mechanic", "--password-stdin"], input="short\n135791\n")
+    result = _people_add(path, "short\n135791\n")
     assert result.exit_code != 0 and "at least 8" in result.output
     assert store.connect(path)["people"].count == 0
 
