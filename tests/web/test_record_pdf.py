@@ -45,7 +45,7 @@ def plug_job(app, db, clock, mechanic, login):
 
 def _render(app, db, job_id, now, signatures=None):
     with app.app_context():
-        data = pdf.render_work_record(db, job_id, now, signatures)
+        data, _ = pdf.render_for_signing(db, job_id, now, signatures or [])
     assert data.startswith(b"%PDF-")
     reader = PdfReader(io.BytesIO(data))
     pages = [page.extract_text() for page in reader.pages]

@@ -62,14 +62,6 @@ def html_of(record: WorkRecord, *, embedded: bool = False) -> str:
     return environment.get_template(TEMPLATE).render(r=record, embedded=embedded, NONE=NONE)
 
 
-def render_work_record(db: Database, job_id: int, now: datetime,
-                       signatures: Sequence[Mapping[str, Any]] | None = None, *,
-                       record_id: str | None = None) -> bytes:
-    """The work record of a job as PDF bytes (A4), as of `now`, with any signatures given
-    ({name, authorisation, meaning, signed_at}, optionally kind, role or step)."""
-    return pdf_of_html(record_html(db, job_id, now, signatures, record_id=record_id))
-
-
 def render_for_signing(db: Database, job_id: int, now: datetime,
                        signatures: Sequence[Mapping[str, Any]], *,
                        record_revision: int = 1) -> tuple[bytes, dict[str, StampBox]]:
