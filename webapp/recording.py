@@ -294,7 +294,7 @@ class _PrintedRecord:
     supersedes: int | None
 
 
-def _record_revision(state: JobState) -> int:
+def record_revision(state: JobState) -> int:
     """A returned job's next signature, and each amendment, start a new record revision."""
     return len(state.returns) + len(state.amendments) + 1
 
@@ -303,7 +303,7 @@ def _print_for_signing(db: store.Database, job_id: int, state: JobState, head_ha
                        now: datetime) -> _PrintedRecord:
     from .records.pdf import render_for_signing
 
-    revision = _record_revision(state)
+    revision = record_revision(state)
     latest = signers.latest_record(db, job_id)
     if latest is not None and latest["revision"] == revision:
         return _PrintedRecord(head_hash, latest["pdf"], {}, revision, latest["signatures"],

@@ -146,6 +146,9 @@ def test_a_return_can_ask_for_the_work_again_from_a_step(signed_check, login, db
     state = signed_check.state()
     assert state["next_step"] == "count-b"           # the work reopens from the step named
     assert "count-a" in state["done"] and "count-both" not in state["done"]
+    # The review page shows the record as its next revision will print.
+    review = supervisor.get(f"/review/{signed_check.id}").get_data(as_text=True)
+    assert "This is revision 2 of the record" in review
     # The mechanic is told, on the job's screen, what to do again.
     page = mechanic.client.get(f"/jobs/{signed_check.id}").get_data(as_text=True)
     assert "Channel B count taken with the GPU off" in page

@@ -60,7 +60,7 @@ def _review_page(job_id: int, error: str | None = None, status: int = 200) -> An
 
     job = recording.load_job(db(), job_id)
     record = record_html(db(), job_id, now(), signatures=recording.signatures_of(job.state),
-                         embedded=True)
+                         embedded=True, record_revision=recording.record_revision(job.state))
     certifying = job.state.next_step if awaiting_review(job.state) else None
     return render_template("supervisor/review.html", job=job.row, state=job.state,
                            record=record, certifying=certifying, error=error,
