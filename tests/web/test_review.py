@@ -53,6 +53,12 @@ def test_certifying_closes_the_job_and_adds_the_third_signature(signed_check, lo
     assert signed_check.state()["status"] == "complete"
     # Closed: no further events.
     signed_check.refused(_event(None, "de_energised"), "job_not_open")
+    # The mechanic's screen of the closed job leads to the certified record.
+    page = signed_check.client.get(f"/jobs/{signed_check.id}").get_data(as_text=True)
+    assert 'data-testid="job-record"' in page
+    pdf = signed_check.client.get(f"/jobs/{signed_check.id}/record.pdf")
+    assert pdf.status_code == 200
+    assert pdf.data == signers.latest_record(db, signed_check.id)["pdf"]
     record = signers.latest_record(db, signed_check.id)
     reports = verify_record(record["pdf"], station_authority(app.config["DB_PATH"], "x",
                                                              clock()).cert)
