@@ -72,9 +72,9 @@ def register_extensions(app: Flask) -> None:
 
 
 def register_blueprints(app: Flask) -> None:
-    from .web import admin, api, auth, fleet, mechanic, procedures, pwa, supervisor
+    from .web import admin, api, auth, fleet, mechanic, procedures, pwa, station, supervisor
 
-    for room in (auth, mechanic, fleet, api, procedures, supervisor, admin, pwa):
+    for room in (auth, mechanic, fleet, api, procedures, supervisor, admin, pwa, station):
         app.register_blueprint(room.bp)
 
 

@@ -6,12 +6,32 @@ copied database alone holds no usable key; people's keys are sealed under their 
 
 from __future__ import annotations
 
+import ipaddress
 import secrets
+import socket
 import threading
+from collections.abc import Iterable
+from dataclasses import dataclass
 from datetime import datetime
 from pathlib import Path
 
-from .records.identity import StationAuthority, create_authority, load_authority, save_authority
+from cryptography import x509
+
+from .records.identity import (
+    CERT_FILE,
+    SERVER_CERT_FILE,
+    SERVER_KEY_FILE,
+    ServerNameProblem,
+    StationAuthority,
+    create_authority,
+    issue_server_certificate,
+    load_authority,
+    load_server_certificate,
+    parse_server_name,
+    save_authority,
+    save_server_identity,
+    server_certificate_serves,
+)
 
 _CACHE: dict[str, StationAuthority] = {}
 _LOCK = threading.Lock()
@@ -47,3 +67,100 @@ def station_authority(db_path: str | Path, station_name: str, now: datetime) -> 
             save_authority(authority, folder, passphrase)
         _CACHE[key] = authority
         return authority
+
+
+@dataclass(frozen=True)
+class StationTls:
+    """What the HTTPS server loads: the station's server certificate and key, kept beside the CA."""
+
+    cert_file: Path
+    key_file: Path
+    key_password: bytes
+    certificate: x509.Certificate
+    authority_cert: x509.Certificate
+    authority_file: Path
+    issued: bool  # a new certificate was issued just now (else the kept one serves)
+
+
+def station_tls(db_path: str | Path, station_name: str, names: Iterable[str],
+                now: datetime) -> StationTls:
+    """The station's TLS server certificate for these DNS names and IP addresses: the kept one
+    while it is valid 30 more days and names them all, else a new one from the station's CA.
+    A name that is neither raises ServerNameProblem before anything is written."""
+    dns_names: list[str] = []
+    addresses: list[ipaddress.IPv4Address | ipaddress.IPv6Address] = []
+    for text in names:
+        name = parse_server_name(text)
+        if isinstance(name, str):
+            dns_names += [] if name in dns_names else [name]
+        elif name not in addresses:
+            addresses.append(name)
+    if not dns_names and not addresses:
+        raise ServerNameProblem("The station's certificate needs at least one name or address.")
+    authority = station_authority(db_path, station_name, now)
+    folder = authority_folder(db_path)
+    passphrase = _passphrase(folder)
+    with _LOCK:
+        kept = load_server_certificate(folder, passphrase)
+        if kept is not None and server_certificate_serves(
+                kept, authority.cert, dns_names=dns_names, ip_addresses=addresses, now=now):
+            issued = False
+        else:
+            key, kept = issue_server_certificate(authority, dns_names=dns_names,
+                                                 ip_addresses=addresses, now=now)
+            save_server_identity(key, kept, folder, passphrase)
+            issued = True
+    return StationTls(cert_file=folder / SERVER_CERT_FILE, key_file=folder / SERVER_KEY_FILE,
+                      key_password=passphrase, certificate=kept, authority_cert=authority.cert,
+                      authority_file=folder / CERT_FILE, issued=issued)
+
+
+def lan_names(listen_host: str, extra: Iterable[str] = ()) -> list[str]:
+    """The names and addresses tablets may use to reach this machine, found without sending
+    anything: localhost, the loopback addresses, the host name (and its .local form for
+    mDNS), the addresses the machine would send from, the address listened on, and `extra`."""
+    names = ["localhost", "127.0.0.1", "::1"]
+    host_name = socket.gethostname()
+    if _valid_name(host_name) and "." not in host_name:
+        names += [host_name.lower(), f"{host_name.lower()}.local"]
+    elif _valid_name(host_name):
+        names.append(host_name.lower())
+    names += _own_addresses(host_name)
+    if listen_host not in ("", "0.0.0.0", "::") and _valid_name(listen_host):
+        names.append(listen_host)
+    names += list(extra)
+    return list(dict.fromkeys(names))
+
+
+def _valid_name(text: str) -> bool:
+    try:
+        parse_server_name(text)
+    except ServerNameProblem:
+        return False
+    return True
+
+
+def _own_addresses(host_name: str) -> list[str]:
+    found: list[str] = []
+    # A UDP socket's connect sends no packet; it only asks the routing table which address
+    # would be used (TEST-NET and documentation addresses, RFC 5737 and RFC 3849).
+    for family, probe in ((socket.AF_INET, "192.0.2.1"), (socket.AF_INET6, "2001:db8::1")):
+        try:
+            with socket.socket(family, socket.SOCK_DGRAM) as udp:
+                udp.connect((probe, 9))
+                found.append(udp.getsockname()[0])
+        except OSError:
+            pass  # no route of that family: not on a LAN that way
+    try:
+        found += [str(info[4][0]) for info in socket.getaddrinfo(host_name, None)]
+    except OSError:
+        pass
+    usable = []
+    for text in found:
+        try:
+            address = ipaddress.ip_address(text)
+        except ValueError:
+            continue
+        if not (address.is_loopback or address.is_link_local or address.is_unspecified):
+            usable.append(str(address))
+    return usable

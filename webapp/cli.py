@@ -22,6 +22,34 @@ HOST_OPTION = click.option("--host", default="127.0.0.1", show_default=True,
 PORT_OPTION = click.option("--port", default=8000, show_default=True, type=int)
 
 
+def _check_names(_ctx: click.Context, _param: click.Parameter,
+                 names: tuple[str, ...]) -> tuple[str, ...]:
+    """Refuse a bad --name while the command line is read, before anything is changed."""
+    from .records.identity import ServerNameProblem, parse_server_name
+
+    for name in names:
+        try:
+            parse_server_name(name)
+        except ServerNameProblem as problem:
+            raise click.BadParameter(str(problem)) from None
+    return names
+
+
+HTTPS_OPTION = click.option(
+    "--https", is_flag=True,
+    help="Serve HTTPS with a certificate from the station's own certificate authority; "
+         "tablets that trust it can install the app and open pages offline")
+NAME_OPTION = click.option(
+    "--name", "extra_names", multiple=True, metavar="NAME", callback=_check_names,
+    help="With --https: another DNS name or IP address the tablets use to reach the "
+         "station (repeat for more)")
+
+
+def _need_https_for(https: bool, extra_names: tuple[str, ...]) -> None:
+    if extra_names and not https:
+        raise click.UsageError("--name sets a name in the HTTPS certificate: add --https.")
+
+
 def _app(db_path: Path | None) -> Flask:
     from . import create_app
 
@@ -61,10 +89,14 @@ def init(db_path: Path | None) -> None:
 @DB_OPTION
 @HOST_OPTION
 @PORT_OPTION
+@HTTPS_OPTION
+@NAME_OPTION
 @click.option("--scenario", default="bramblecoast", show_default=True)
-def demo(db_path: Path | None, host: str, port: int, scenario: str) -> None:
+def demo(db_path: Path | None, host: str, port: int, https: bool, extra_names: tuple[str, ...],
+         scenario: str) -> None:
     from .scenario import demo_logins, load_demo_jobs, load_scenario, read_scenario, scenario_path
 
+    _need_https_for(https, extra_names)
     app = _app(db_path)
     path = Path(app.config["DB_PATH"])
     for stale in (path, path.with_name(path.name + "-wal"), path.with_name(path.name + "-shm")):
@@ -86,15 +118,20 @@ def demo(db_path: Path | None, host: str, port: int, scenario: str) -> None:
     click.echo("Demo log-ins (username / password / signing PIN / role):")
     for username, password, pin, roles in demo_logins(chosen):
         click.echo(f"  {username:8} {password:14} {pin:8} {roles}")
-    _serve(app, host, port)
+    _serve(app, host, port, https, extra_names)
 
 
-@cli.command(help="Serve the station with a production WSGI server (waitress).")
+@cli.command(help="Serve the station with a production WSGI server (waitress; cheroot for "
+                  "--https).")
 @DB_OPTION
 @HOST_OPTION
 @PORT_OPTION
-def serve(db_path: Path | None, host: str, port: int) -> None:
-    _serve(_app(db_path), host, port)
+@HTTPS_OPTION
+@NAME_OPTION
+def serve(db_path: Path | None, host: str, port: int, https: bool,
+          extra_names: tuple[str, ...]) -> None:
+    _need_https_for(https, extra_names)
+    _serve(_app(db_path), host, port, https, extra_names)
 
 
 def _warm_up() -> None:
@@ -106,7 +143,11 @@ def _warm_up() -> None:
     signing.stamp_font()
 
 
-def _serve(app: Flask, host: str, port: int) -> None:
+def _serve(app: Flask, host: str, port: int, https: bool = False,
+           extra_names: tuple[str, ...] = ()) -> None:
+    if https:
+        _serve_https(app, host, port, extra_names)
+        return
     from waitress import serve as waitress_serve
 
     threading.Thread(target=_warm_up, name="sparkward-warm-up", daemon=True).start()
@@ -115,6 +156,68 @@ def _serve(app: Flask, host: str, port: int) -> None:
     click.echo(f"Open http://{shown}:{port}/ (press Ctrl+C to stop)", err=False)
     sys.stdout.flush()
     waitress_serve(app, host=host, port=port, threads=8, ident="Sparkward")
+
+
+def _url(name: str, port: int) -> str:
+    return f"https://[{name}]:{port}/" if ":" in name else f"https://{name}:{port}/"
+
+
+def _serve_https(app: Flask, host: str, port: int, extra_names: tuple[str, ...]) -> None:
+    """cheroot with TLS 1.2 or newer and the station's own server certificate (waitress has
+    no TLS); the certificate is issued or renewed here, before the first request."""
+    import ssl
+
+    from cheroot import wsgi
+    from cheroot.ssl.builtin import BuiltinSSLAdapter
+    from cryptography import x509
+
+    from .authority import lan_names, station_tls
+    from .records.identity import ServerNameProblem, certificate_fingerprint
+
+    try:
+        tls = station_tls(app.config["DB_PATH"], app.config["STATION_NAME"],
+                          lan_names(host, extra_names), system_clock())
+    except ServerNameProblem as problem:
+        raise click.ClickException(str(problem)) from None
+    app.config["SESSION_COOKIE_SECURE"] = True  # the log-in cookie never goes out in clear
+    adapter = BuiltinSSLAdapter(str(tls.cert_file), str(tls.key_file),
+                                private_key_password=tls.key_password)
+    adapter.context.minimum_version = ssl.TLSVersion.TLSv1_2
+    server = wsgi.Server((host, port), app, numthreads=8, server_name="Sparkward")
+    server.ssl_adapter = adapter
+    try:
+        server.prepare()  # binds the port: a port in use is said here, not as a traceback
+    except OSError as err:
+        raise click.ClickException(f"cannot listen on {host}:{port}: {err}") from None
+    threading.Thread(target=_warm_up, name="sparkward-warm-up", daemon=True).start()
+
+    alternative = tls.certificate.extensions.get_extension_for_class(
+        x509.SubjectAlternativeName).value
+    addresses = alternative.get_values_for_type(x509.IPAddress)
+    names = alternative.get_values_for_type(x509.DNSName) + [str(a) for a in addresses]
+    # On the LAN, the machine's own addresses first: a tablet reaches those without DNS.
+    shown = ([str(a) for a in addresses
+              if not a.is_loopback and (host == "::" or a.version == 4)]
+             + [n for n in names if n != "localhost" and n not in map(str, addresses)]
+             if host in ("0.0.0.0", "::") else [host]) or ["127.0.0.1"]
+    click.echo(f"Sparkward station serving {app.config['DB_PATH']} over HTTPS")
+    state = "issued now" if tls.issued else "kept"
+    click.echo(f"Server certificate ({state}, valid until "
+               f"{tls.certificate.not_valid_after_utc:%Y-%m-%d}) for: {', '.join(names)}")
+    click.echo("Open " + " or ".join(_url(n, port) for n in shown) + " (press Ctrl+C to stop)")
+    if host in ("127.0.0.1", "localhost", "::1"):
+        click.echo("Listening on this machine only: add --host 0.0.0.0 for tablets on the LAN.")
+    click.echo("Tablets must trust the station's certificate authority first: on each, open "
+               f"{_url(shown[0], port)}station-ca, or copy the file {tls.authority_file}")
+    click.echo(f"  its SHA-256 fingerprint (compare it on the tablet): "
+               f"{certificate_fingerprint(tls.authority_cert)}")
+    sys.stdout.flush()
+    try:
+        server.serve()
+    except KeyboardInterrupt:
+        pass
+    finally:
+        server.stop()
 
 
 @cli.command(help="Check a work record PDF: its signatures, and its event chain against the "

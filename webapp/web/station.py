@@ -1,0 +1,37 @@
+"""The station's certificate authority, for the shop's IT person: what a tablet must trust."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from cryptography.hazmat.primitives import serialization
+from cryptography.x509.oid import NameOID
+from flask import Blueprint, Response, render_template, request
+
+from ..records.identity import certificate_fingerprint
+from .common import authority, public
+
+bp = Blueprint("station", __name__)
+
+CA_FILENAME = "sparkward-station-ca.pem"
+
+
+@bp.get("/station-ca")
+@public
+def authority_page() -> Any:
+    """How to make a tablet trust the station, with the fingerprint to compare on it."""
+    cert = authority().cert
+    names = cert.subject.get_attributes_for_oid(NameOID.COMMON_NAME)
+    return render_template("station/ca.html", authority_name=names[0].value if names else "",
+                           fingerprint=certificate_fingerprint(cert),
+                           valid_until=cert.not_valid_after_utc, secure=request.is_secure)
+
+
+@bp.get("/station-ca.pem")
+@public
+def authority_certificate() -> Any:
+    """The authority's certificate only (public by nature); its key never leaves the station."""
+    pem = authority().cert.public_bytes(serialization.Encoding.PEM)
+    return Response(pem, mimetype="application/x-pem-file", headers={
+        "Content-Disposition": f'attachment; filename="{CA_FILENAME}"',
+        "Cache-Control": "no-cache"})
