@@ -41,6 +41,11 @@ def test_the_pem_is_exactly_the_station_ca_certificate_and_never_its_key(client,
     assert answer.data.count(b"-----BEGIN") == 1 and b"PRIVATE KEY" not in answer.data
     cert = x509.load_pem_x509_certificate(answer.data)
     assert cert.extensions.get_extension_for_class(x509.BasicConstraints).value.ca
+    # The same certificate in DER, for installers that want a .crt.
+    der = client.get("/station-ca.crt")
+    assert der.status_code == 200 and der.mimetype == "application/x-x509-ca-cert"
+    assert der.headers["Content-Disposition"].endswith('.crt"')
+    assert x509.load_der_x509_certificate(der.data) == cert
 
 
 def test_the_page_explains_and_shows_the_fingerprint_without_a_log_in(client, db_path):

@@ -13,7 +13,7 @@ from .common import authority, public
 
 bp = Blueprint("station", __name__)
 
-CA_FILENAME = "sparkward-station-ca.pem"
+CA_FILENAME = "sparkward-station-ca"
 
 
 @bp.get("/station-ca")
@@ -32,6 +32,18 @@ def authority_page() -> Any:
 def authority_certificate() -> Any:
     """The authority's certificate only (public by nature); its key never leaves the station."""
     pem = authority().cert.public_bytes(serialization.Encoding.PEM)
-    return Response(pem, mimetype="application/x-pem-file", headers={
-        "Content-Disposition": f'attachment; filename="{CA_FILENAME}"',
+    return _certificate_file(pem, "application/x-pem-file", "pem")
+
+
+@bp.get("/station-ca.crt")
+@public
+def authority_certificate_der() -> Any:
+    """The same certificate in DER, the form some tablets' certificate installers expect."""
+    der = authority().cert.public_bytes(serialization.Encoding.DER)
+    return _certificate_file(der, "application/x-x509-ca-cert", "crt")
+
+
+def _certificate_file(data: bytes, mimetype: str, extension: str) -> Response:
+    return Response(data, mimetype=mimetype, headers={
+        "Content-Disposition": f'attachment; filename="{CA_FILENAME}.{extension}"',
         "Cache-Control": "no-cache"})
