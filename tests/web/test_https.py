@@ -4,12 +4,8 @@ from __future__ import annotations
 
 import hashlib
 import http.client
-import os
 import socket
 import ssl
-import subprocess
-import sys
-import time
 from pathlib import Path
 
 import pytest
@@ -17,6 +13,7 @@ from click.testing import CliRunner
 from cryptography import x509
 from cryptography.hazmat.primitives import hashes, serialization
 
+from tests.https_station import serving_https
 from webapp.authority import authority_folder
 from webapp.cli import cli
 from webapp.records.identity import CERT_FILE, SERVER_CERT_FILE
@@ -93,39 +90,11 @@ def test_a_bad_name_is_refused_and_the_database_kept(db_path, command, args, say
 
 # The real server process, over real TLS.
 
-def _free_port() -> int:
-    with socket.socket() as probe:
-        probe.bind(("127.0.0.1", 0))
-        return probe.getsockname()[1]
-
-
 @pytest.fixture
 def https_station(db_path, tmp_path):
     """`sparkward serve --https` on a free port over a copy of the demo database."""
-    port = _free_port()
-    log = tmp_path / "serve.log"
-    env = {**os.environ, "SPARKWARD_INSTANCE": str(tmp_path / "instance"),
-           "PYTHONUNBUFFERED": "1"}
-    env.pop("SPARKWARD_DB", None)
-    command = [str(Path(sys.executable).with_name("sparkward")), "serve", "--https",
-               "--port", str(port), "--db", str(db_path), "--name", "station.hangar.test"]
-    with log.open("w") as output:
-        server = subprocess.Popen(command, stdout=output, stderr=subprocess.STDOUT, env=env,
-                                  cwd=tmp_path)
-    try:
-        deadline = time.monotonic() + 15
-        while True:
-            assert server.poll() is None, log.read_text()
-            try:
-                socket.create_connection(("127.0.0.1", port), timeout=0.5).close()
-                break
-            except OSError:
-                assert time.monotonic() < deadline, "no answer in 15 s:\n" + log.read_text()
-                time.sleep(0.1)
-        yield port, log
-    finally:
-        server.terminate()
-        server.wait(timeout=10)
+    with serving_https(db_path, tmp_path, ["station.hangar.test"]) as running:
+        yield running
 
 
 def _tls_socket(context: ssl.SSLContext, port: int, server_hostname: str) -> ssl.SSLSocket:
