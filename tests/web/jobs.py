@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import uuid
 
+from webapp import demo_jobs, recording
 from webapp.store import jobs as job_store
 
 DEMO_101_ENGINE_1 = 1  # DC exciters, surface-discharge plugs (demo data)
@@ -47,6 +48,11 @@ class Job:
         assert after == (before[0], before[1] + 1)  # only the refusal is kept
         return answer.get_json()
 
+    def _demo_reading(self, step_id):
+        """The demo's in-limits reading for a step (the one the demo jobs record)."""
+        return demo_jobs.reading_data(recording.load_job(self.db, self.id).state
+                                      .step(step_id).step)
+
     def walk_to(self, step_id, tags=("T-1", "T-2")):
         """Complete the simple steps in order up to (not including) `step_id`."""
         for step in self.state()["steps"]:
@@ -64,7 +70,7 @@ class Job:
                 self.clock.advance(120)
                 self.ok(_event(step["id"]))
             elif step["kind"] in ("reading", "torque"):
-                self.ok(_event(step["id"], "reading_recorded", **good_reading(step)))
+                self.ok(_event(step["id"], "reading_recorded", **self._demo_reading(step["id"])))
             elif step["kind"] == "ignition_run":
                 self.clock.advance(1500)  # past any duty-cycle off period (23 min at most)
                 self.ok(_event(step["id"], "energised"))
@@ -75,24 +81,3 @@ class Job:
             else:
                 self.ok(_event(step["id"], items=list(range(len(step.get("items", []))))))
         raise AssertionError(f"{step_id} is not a step of this job")
-
-
-def good_reading(step: dict) -> dict:
-    """A reading inside the step's limits, in the step's own unit (demo values)."""
-    if step["kind"] == "reading" and step["value"] == "text":
-        return {"text": "XEX-1001-03 / XE-9001 (demo)"}
-    if step["kind"] == "reading" and step["value"] == "pass_fail":
-        return {"result": "pass"}
-    low, high = step["limits"]["min"], step["limits"]["max"]
-    value = (low + high) / 2 if low is not None and high is not None else (
-        low * 1.5 if low is not None else high / 2)
-    data: dict = {"value": str(value), "unit": step["unit"]}
-    if step["kind"] == "torque":
-        data.update(wrench_id="TW-017", calibration_due="2027-06-30")
-    for condition in step.get("conditions", []):
-        data[condition] = ({"value": "45"} if condition == "humidity" else
-                           {"value": "1000", "unit": "V"} if condition == "test_voltage" else
-                           {"value": "18", "unit": "degC"})
-    if step.get("wear"):
-        data["usage"] = {"engine_hours": 812, "starts": 760, "continuous_ignition_hours": 150}
-    return data
