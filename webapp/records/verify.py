@@ -11,7 +11,7 @@ from __future__ import annotations
 import io
 import re
 from collections.abc import Iterable, Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from datetime import UTC, datetime
 from typing import Any
 
@@ -94,8 +94,7 @@ def check_record(pdf: bytes, trust_root: x509.Certificate, events_of_job: Any,
         return RecordCheck([], None, None, None, "", [str(err)])
     check = _check_chain(pdf, reports, events_of_job)
     late, notes = _revocation_notes(reports, revoked or {})
-    return RecordCheck(check.signatures, check.record_id, check.job_id, check.chain_ok,
-                       check.chain_message, check.problems + late, unsigned, notes)
+    return replace(check, problems=check.problems + late, unsigned=unsigned, notes=notes)
 
 
 def _check_chain(pdf: bytes, reports: list[SignatureReport],
