@@ -46,12 +46,13 @@ from typing import Any
 from measuring import percentile, timed  # bench/ is on sys.path when a bench runs
 from pypdf import PdfReader
 
-from webapp import create_app, demo_jobs, recording, store
-from webapp.authority import station_authority
-from webapp.library import load_shop_library
+from webapp import create_app, store
 from webapp.records import identity, signing
 from webapp.records.pdf import font_configuration, pdf_of_html, record_html, render_for_signing
-from webapp.scenario import load_scenario, read_scenario, scenario_path
+from webapp.station import demo_jobs, recording
+from webapp.station.authority import station_authority
+from webapp.station.library import load_shop_library
+from webapp.station.scenario import load_scenario, read_scenario, scenario_path
 from webapp.store import fleet, people
 from webapp.store import signers as signer_store
 

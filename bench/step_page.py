@@ -37,9 +37,10 @@ from typing import Any
 from flask import Flask, jsonify, render_template, request
 from measuring import percentile, timed  # bench/ is on sys.path when a bench runs
 
-from webapp import create_app, recording, store
-from webapp.library import load_shop_library
-from webapp.scenario import load_scenario, read_scenario, scenario_path
+from webapp import create_app, store
+from webapp.station import recording
+from webapp.station.library import load_shop_library
+from webapp.station.scenario import load_scenario, read_scenario, scenario_path
 from webapp.store import fleet, people
 
 TARGET = 2.0

@@ -11,8 +11,8 @@ import pytest
 
 from webapp import create_app, store
 from webapp.clock import ManualClock
-from webapp.library import load_shop_library
-from webapp.scenario import read_scenario, scenario_path
+from webapp.station.library import load_shop_library
+from webapp.station.scenario import read_scenario, scenario_path
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -40,8 +40,8 @@ def browser_type_launch_args(browser_type_launch_args):
 @pytest.fixture(scope="session")
 def demo_template(tmp_path_factory) -> Path:
     """The demo station's database, built once with the same loader the demo uses."""
-    from webapp.authority import station_authority
-    from webapp.scenario import load_scenario
+    from webapp.station.authority import station_authority
+    from webapp.station.scenario import load_scenario
 
     path = tmp_path_factory.mktemp("template") / "demo.db"
     db = store.create(path)
@@ -61,7 +61,7 @@ def clock() -> ManualClock:
 
 @pytest.fixture
 def db_path(demo_template, tmp_path) -> Path:
-    from webapp.authority import authority_folder
+    from webapp.station.authority import authority_folder
 
     path = tmp_path / "station.db"
     shutil.copyfile(demo_template, path)

@@ -12,7 +12,7 @@ from flask import Flask
 from . import store
 from .clock import system_clock
 from .domain.procedures import ProcedureInvalid
-from .library import check_files, load_shop_library
+from .station.library import check_files, load_shop_library
 from .store.people import ROLES
 
 DB_OPTION = click.option("--db", "db_path", type=click.Path(dir_okay=False, path_type=Path),
@@ -57,7 +57,7 @@ def _app(db_path: Path | None) -> Flask:
 
 
 def _init(app: Flask) -> list[str]:
-    from .authority import station_authority
+    from .station.authority import station_authority
 
     station_authority(app.config["DB_PATH"], app.config["STATION_NAME"], system_clock())
     db = store.create(app.config["DB_PATH"])
@@ -94,7 +94,13 @@ def init(db_path: Path | None) -> None:
 @click.option("--scenario", default="bramblecoast", show_default=True)
 def demo(db_path: Path | None, host: str, port: int, https: bool, extra_names: tuple[str, ...],
          scenario: str) -> None:
-    from .scenario import demo_logins, load_demo_jobs, load_scenario, read_scenario, scenario_path
+    from .station.scenario import (
+        demo_logins,
+        load_demo_jobs,
+        load_scenario,
+        read_scenario,
+        scenario_path,
+    )
 
     _need_https_for(https, extra_names)
     app = _app(db_path)
@@ -102,7 +108,7 @@ def demo(db_path: Path | None, host: str, port: int, https: bool, extra_names: t
     for stale in (path, path.with_name(path.name + "-wal"), path.with_name(path.name + "-shm")):
         stale.unlink(missing_ok=True)
     _init(app)
-    from .authority import station_authority
+    from .station.authority import station_authority
 
     chosen = read_scenario(scenario_path(scenario))
     authority = station_authority(path, app.config["STATION_NAME"], system_clock())
@@ -171,8 +177,8 @@ def _serve_https(app: Flask, host: str, port: int, extra_names: tuple[str, ...])
     from cheroot.ssl.builtin import BuiltinSSLAdapter
     from cryptography import x509
 
-    from .authority import lan_names, station_tls
     from .records.identity import ServerNameProblem, certificate_fingerprint
+    from .station.authority import lan_names, station_tls
 
     try:
         tls = station_tls(app.config["DB_PATH"], app.config["STATION_NAME"],
@@ -225,8 +231,8 @@ def _serve_https(app: Flask, host: str, port: int, extra_names: tuple[str, ...])
 @click.argument("pdf_file", type=click.Path(exists=True, dir_okay=False, path_type=Path))
 @DB_OPTION
 def verify(pdf_file: Path, db_path: Path | None) -> None:
-    from .authority import station_authority
     from .records.verify import check_record, revocations
+    from .station.authority import station_authority
     from .store import jobs, signers
 
     app = _app(db_path)
@@ -299,8 +305,8 @@ def people() -> None:
               help="Enrol a person who never signs (no PIN line is read; no key is issued)")
 def people_add(db_path: Path | None, username: str, full_name: str, roles: tuple[str, ...],
                authorisation: str | None, password_stdin: bool, no_signing_key: bool) -> None:
-    from .accounts import enrol
-    from .authority import station_authority
+    from .station.accounts import enrol
+    from .station.authority import station_authority
 
     password = sys.stdin.readline().rstrip("\r\n")
     pin = None if no_signing_key else sys.stdin.readline().rstrip("\r\n")

@@ -33,3 +33,45 @@ def test_only_the_store_imports_sqlite_utils():
     offenders = [p for p in WEBAPP.rglob("*.py")
                  if "sqlite_utils" in _imports(p) and "store" not in p.relative_to(WEBAPP).parts]
     assert offenders == []
+
+
+def _webapp_imports(path: Path) -> set[str]:
+    """The webapp rooms a module imports (domain, store, records, station, web, ...)."""
+    rooms = set()
+    package = path.relative_to(WEBAPP).parts[:-1]
+    for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+        if isinstance(node, ast.ImportFrom) and node.level:
+            base = list(package)[:len(package) - (node.level - 1)]
+            target = base + (node.module.split(".") if node.module else [])
+            if target:
+                rooms.add(target[0])
+            else:  # `from .. import store, recording`
+                rooms.update(alias.name for alias in node.names)
+        elif isinstance(node, ast.ImportFrom) and (node.module or "").startswith("webapp."):
+            rooms.add(node.module.split(".")[1])
+    return rooms
+
+
+# One direction: web -> station (services) -> domain <- store; records print from the store
+# and the domain. A room may import itself and the rooms listed for it, nothing else.
+ALLOWED = {
+    "domain": {"domain"},
+    "store": {"store", "domain"},
+    "records": {"records", "store", "domain", "charts", "shown", "resources"},
+    "station": {"station", "store", "domain", "records", "resources"},
+}
+
+
+def test_rooms_import_only_downwards():
+    offenders = []
+    for room, allowed in ALLOWED.items():
+        for path in (WEBAPP / room).glob("*.py"):
+            wrong = _webapp_imports(path) - allowed
+            if wrong:
+                offenders.append(f"{path.relative_to(WEBAPP)} imports {sorted(wrong)}")
+    assert offenders == []
+
+
+def test_no_service_module_is_left_at_the_top_of_webapp():
+    top = sorted(p.name for p in WEBAPP.glob("*.py"))
+    assert top == ["__init__.py", "charts.py", "cli.py", "clock.py", "resources.py", "shown.py"]

@@ -6,7 +6,7 @@ from pathlib import Path
 
 import pytest
 
-from webapp.scenario import read_scenario
+from webapp.station.scenario import read_scenario
 
 SCENARIOS = sorted((Path(__file__).resolve().parents[2] / "demo_scenarios").glob("*.yaml"))
 
@@ -35,8 +35,8 @@ def test_demo_has_one_fast_wearing_plug():
 def test_demo_loader_is_repeatable(demo_template, tmp_path):
     from webapp import store
     from webapp.clock import ManualClock
-    from webapp.library import load_shop_library
-    from webapp.scenario import load_scenario
+    from webapp.station.library import load_shop_library
+    from webapp.station.scenario import load_scenario
 
     again = store.create(tmp_path / "again.db")
     load_shop_library(again, ManualClock()())

@@ -11,7 +11,6 @@ from cryptography import x509
 from cryptography.hazmat.primitives import serialization
 from cryptography.x509.oid import ExtendedKeyUsageOID
 
-from webapp.authority import authority_folder, lan_names, station_authority, station_tls
 from webapp.records.identity import (
     SERVER_KEY_FILE,
     SERVER_VALIDITY,
@@ -21,6 +20,7 @@ from webapp.records.identity import (
     parse_server_name,
     server_certificate_serves,
 )
+from webapp.station.authority import authority_folder, lan_names, station_authority, station_tls
 
 NOW = datetime(2026, 12, 1, 8, 0, tzinfo=UTC)
 DNS = ["localhost", "station.hangar.lan"]

@@ -20,8 +20,8 @@ from playwright.sync_api import expect
 
 from tests.conftest import DEMO_PASSWORDS
 from tests.https_station import serving_https
-from webapp.authority import authority_folder
 from webapp.records.identity import SERVER_CERT_FILE
+from webapp.station.authority import authority_folder
 
 LAN_NAME = "station.hangar.test"  # .test is reserved for testing (RFC 2606)
 WORKER_IN_CHARGE = ("() => navigator.serviceWorker.controller !== null && "

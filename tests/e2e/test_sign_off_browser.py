@@ -17,8 +17,8 @@ from tests.conftest import DEMO_PASSWORDS, DEMO_PINS, LoggedIn
 from tests.pdf_text import pdf_text
 from tests.web.jobs import Job
 from webapp import create_app, store
-from webapp.authority import station_authority
 from webapp.records.signing import verify_record
+from webapp.station.authority import station_authority
 from webapp.store import jobs as job_store
 from webapp.store import signers
 

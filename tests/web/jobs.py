@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import uuid
 
-from webapp import demo_jobs, recording
+from webapp.station import demo_jobs, recording
 from webapp.store import jobs as job_store
 
 DEMO_101_ENGINE_1 = 1  # DC exciters, surface-discharge plugs (demo data)

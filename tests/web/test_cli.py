@@ -59,7 +59,7 @@ def test_tasks_check_names_a_file_whose_name_is_not_its_id(tmp_path):
 def test_people_add_reads_the_password_then_the_pin_from_stdin(tmp_path):
     from cryptography import x509
 
-    from webapp.authority import station_authority
+    from webapp.station.authority import station_authority
     from webapp.store import signers
 
     path = tmp_path / "p.db"

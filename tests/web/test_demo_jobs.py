@@ -9,11 +9,11 @@ from __future__ import annotations
 import pytest
 
 from tests.conftest import DEMO_PINS
-from webapp.authority import station_authority
 from webapp.domain.execution import awaiting_review
-from webapp.recording import engine_tags, load_job
 from webapp.records.signing import empty_signature_fields, verify_record
-from webapp.scenario import DemoJob, load_demo_jobs, read_scenario, scenario_path
+from webapp.station.authority import station_authority
+from webapp.station.recording import engine_tags, load_job
+from webapp.station.scenario import DemoJob, load_demo_jobs, read_scenario, scenario_path
 from webapp.store import jobs as job_store
 from webapp.store import signers
 

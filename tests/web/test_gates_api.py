@@ -200,7 +200,7 @@ after_completion: none
 
 @pytest.fixture
 def two_runs(mechanic, db, clock, tmp_path):
-    from webapp.library import load_shop_library
+    from webapp.station.library import load_shop_library
 
     path = tmp_path / "bench-run-twice.yaml"
     path.write_text(RUN_TWICE, encoding="utf-8")

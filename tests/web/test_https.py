@@ -14,9 +14,9 @@ from cryptography import x509
 from cryptography.hazmat.primitives import hashes, serialization
 
 from tests.https_station import serving_https
-from webapp.authority import authority_folder
 from webapp.cli import cli
 from webapp.records.identity import CERT_FILE, SERVER_CERT_FILE
+from webapp.station.authority import authority_folder
 
 
 def _ca_file(db_path: Path) -> Path:

@@ -7,8 +7,8 @@ import pytest
 from tests.conftest import DEMO_PINS, csrf_token_of
 from tests.pdf_text import pdf_text
 from tests.web.jobs import Job, _event
-from webapp.authority import station_authority
 from webapp.records.signing import empty_signature_fields, verify_record
+from webapp.station.authority import station_authority
 from webapp.store import signers
 
 

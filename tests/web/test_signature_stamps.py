@@ -19,9 +19,9 @@ from pypdf import PdfReader
 from tests.conftest import DEMO_PINS
 from tests.pdf_text import pdf_pages_text
 from tests.web.jobs import Job, _event
-from webapp.authority import station_authority
 from webapp.records.signing import empty_signature_fields, verify_record
 from webapp.records.verify import check_record
+from webapp.station.authority import station_authority
 from webapp.store import jobs as job_store
 from webapp.store import signers
 

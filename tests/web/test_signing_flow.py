@@ -8,10 +8,10 @@ import pytest
 
 from tests.conftest import DEMO_PINS
 from tests.web.jobs import Job, _event
-from webapp.authority import station_authority
 from webapp.records import identity
 from webapp.records.signing import sign_record, verify_record
 from webapp.records.verify import check_record, revocations
+from webapp.station.authority import station_authority
 from webapp.store import jobs as job_store
 from webapp.store import signers
 
@@ -80,7 +80,7 @@ def test_inspector_cannot_be_the_performer(login, db, clock):
 
 
 def test_a_person_without_a_signing_key_cannot_sign(mechanic, login, db, clock, app):
-    from webapp.accounts import enrol
+    from webapp.station.accounts import enrol
 
     enrol(db, username="nokey", full_name="Kim Demo", roles=["mechanic"],
           password="long-enough-pw", authorisation=None, now=clock())

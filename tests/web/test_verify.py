@@ -71,7 +71,7 @@ def test_content_added_after_signing_is_reported(signed, db_path):
 def test_a_signature_from_another_ca_is_untrusted(signed, db_path, tmp_path):
     import shutil
 
-    from webapp.authority import authority_folder
+    from webapp.station.authority import authority_folder
 
     path, _ = signed
     # Another station: the same database, but its own certificate authority.

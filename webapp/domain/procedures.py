@@ -12,6 +12,7 @@ import hashlib
 import re
 from collections.abc import Iterable, Iterator
 from dataclasses import dataclass
+from functools import lru_cache
 from typing import Annotated, Any, Literal
 
 import yaml
@@ -546,3 +547,9 @@ def advisories_for(steps: list[Step], step_id: str) -> list[Advisory]:
             if target is not None and target.id == step_id:
                 found.append(step)
     return found
+
+
+@lru_cache(maxsize=64)
+def procedure_of_revision(revision_hash: str, content: str) -> Procedure:
+    """The parsed procedure of a stored revision (parsed once per process: it never changes)."""
+    return parse_procedure(content, f"revision {revision_hash[:12]}")

@@ -16,7 +16,6 @@ from dataclasses import dataclass, field
 from datetime import datetime
 from typing import Any
 
-from .. import recording
 from ..domain import gates
 from ..domain.chain import first_broken_link
 from ..domain.execution import JobState
@@ -24,6 +23,7 @@ from ..domain.procedures import Sign
 from ..store import Database, fleet
 from ..store import jobs as job_store
 from ..store import procedures as procedure_store
+from ..store.job_states import Job, load_job
 from .record_entries import Entry, People, Who, station_time
 from .record_gates import (
     DischargeLine,
@@ -115,11 +115,11 @@ class WorkRecord:
 
 # --- gathering -------------------------------------------------------------------------
 
-def _consistent_read(db: Database, job_id: int) -> tuple[recording.Job, list[dict[str, Any]]]:
+def _consistent_read(db: Database, job_id: int) -> tuple[Job, list[dict[str, Any]]]:
     """The job's state and its events as of one chain head (an entry arriving between the
     two reads would make the record print a log its state and hash do not cover)."""
     for _ in range(5):
-        job = recording.load_job(db, job_id)
+        job = load_job(db, job_id)
         events = job_store.events(db, job_id)
         if events and events[-1]["hash"] == job.head["hash"]:
             return job, events

@@ -6,7 +6,7 @@ from typing import Any
 
 from flask import Blueprint, render_template, request
 
-from ..accounts import enrol
+from ..station.accounts import enrol
 from ..store import people
 from .common import authority, db, now, requires
 

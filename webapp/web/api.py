@@ -13,10 +13,10 @@ from uuid import UUID
 from flask import Blueprint, jsonify, request, url_for
 from pydantic import AwareDatetime, BaseModel, ConfigDict, Field, ValidationError
 
-from .. import recording
 from ..domain.execution import CLIENT_EVENT_KINDS, JobState, StepProgress
 from ..domain.gates import ChannelClock
 from ..domain.procedures import Check, Lockout, Reading, Torque
+from ..station import recording
 from ..store import fleet as fleet_store
 from .common import SUPERVISOR_EVENTS, authority, db, now, person, public, requires
 from .openapi import openapi_document

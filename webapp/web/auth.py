@@ -6,7 +6,7 @@ from typing import Any
 
 from flask import Blueprint, current_app, redirect, render_template, request, session, url_for
 
-from ..accounts import LoginRefused, log_in
+from ..station.accounts import LoginRefused, log_in
 from .common import db, now, public, requires
 
 bp = Blueprint("auth", __name__)

@@ -93,7 +93,7 @@ def now() -> datetime:
 
 def authority() -> Any:
     """The station's certificate authority (made on first use, kept in the instance folder)."""
-    from ..authority import station_authority
+    from ..station.authority import station_authority
 
     return station_authority(current_app.config["DB_PATH"], current_app.config["STATION_NAME"],
                              now())

@@ -9,7 +9,7 @@ from flask_wtf.csrf import CSRFError
 from werkzeug.exceptions import HTTPException
 
 from ..domain.errors import RuleRefusal
-from ..recording import NotFound
+from ..station.recording import NotFound
 from .common import wants_json
 
 _TITLES = {

@@ -12,8 +12,7 @@ from flask.blueprints import BlueprintSetupState
 from ..charts import wear_chart_svg
 from ..domain import wear
 from ..domain.errors import RuleRefusal
-from ..domain.procedures import Reading
-from ..library import procedure_of_revision
+from ..domain.procedures import Reading, procedure_of_revision
 from ..store import fleet as fleet_store
 from ..store import procedures
 from ..store import wear as wear_store

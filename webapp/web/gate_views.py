@@ -10,11 +10,12 @@ from dataclasses import dataclass
 from datetime import datetime
 from typing import Any
 
-from .. import recording, store
+from .. import store
 from ..domain import gates
 from ..domain.execution import JobState
 from ..domain.gates import ChannelClock, DischargeRequirement, Tag
 from ..domain.procedures import DischargeWait, DutyCycle, IgnitionRun, Lockout
+from ..station import recording
 from ..store import people
 
 

@@ -9,9 +9,9 @@ from typing import Any
 
 from flask import Blueprint, abort, redirect, render_template, request, url_for
 
-from .. import recording
 from ..domain.gates import ON_LIMIT_WARNING_S
 from ..domain.readings import InputProblem
+from ..station import recording
 from ..store import fleet as fleet_store
 from ..store import jobs as job_store
 from ..store import people

@@ -7,8 +7,8 @@ from typing import Any
 
 from flask import Blueprint, Response, abort, redirect, render_template, request, url_for
 
-from .. import recording
 from ..domain.execution import awaiting_review
+from ..station import recording
 from ..store import jobs as job_store
 from ..store import people, signers
 from .common import authority, db, now, person, requires

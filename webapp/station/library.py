@@ -4,11 +4,10 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from datetime import datetime
-from functools import lru_cache
 from pathlib import Path
 
-from . import store
-from .domain.procedures import (
+from .. import store
+from ..domain.procedures import (
     Procedure,
     ProcedureInvalid,
     ProcedureProblem,
@@ -16,8 +15,8 @@ from .domain.procedures import (
     normalise_text,
     parse_procedure,
 )
-from .resources import shipped_dir
-from .store import procedures as stored
+from ..resources import shipped_dir
+from ..store import procedures as stored
 
 
 @dataclass(frozen=True)
@@ -82,9 +81,3 @@ def load_shop_library(db: store.Database, now: datetime,
                                      status="approved", source_file=f.path.name, now=now):
                 loaded.append(f.procedure.id)
     return loaded
-
-
-@lru_cache(maxsize=64)
-def procedure_of_revision(revision_hash: str, content: str) -> Procedure:
-    """The parsed procedure of a stored revision (parsed once per process: it never changes)."""
-    return parse_procedure(content, f"revision {revision_hash[:12]}")

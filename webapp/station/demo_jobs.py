@@ -15,8 +15,8 @@ from dataclasses import dataclass
 from datetime import datetime, timedelta
 from typing import Any
 
-from . import recording, store
-from .domain.procedures import (
+from .. import store
+from ..domain.procedures import (
     Advisory,
     Check,
     DischargeWait,
@@ -27,8 +27,9 @@ from .domain.procedures import (
     SparkCount,
     Torque,
 )
-from .records.identity import StationAuthority
-from .store.people import Person
+from ..records.identity import StationAuthority
+from ..store.people import Person
+from . import recording
 
 STEP_GAP = timedelta(seconds=20)         # between two entries of the walk
 DISCHARGE_PAST = timedelta(seconds=120)  # past the 2 min minimum of the demo exciters

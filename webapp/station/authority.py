@@ -17,7 +17,7 @@ from pathlib import Path
 
 from cryptography import x509
 
-from .records.identity import (
+from ..records.identity import (
     CERT_FILE,
     SERVER_CERT_FILE,
     SERVER_KEY_FILE,

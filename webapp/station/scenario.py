@@ -10,11 +10,11 @@ from typing import Literal
 import yaml
 from pydantic import BaseModel, ConfigDict, Field
 
-from . import store
+from .. import store
+from ..records.identity import StationAuthority
+from ..resources import shipped_dir
+from ..store import fleet, people
 from .accounts import enrol
-from .records.identity import StationAuthority
-from .resources import shipped_dir
-from .store import fleet, people
 
 
 class _Strict(BaseModel):

@@ -7,81 +7,36 @@ one BEGIN IMMEDIATE transaction, the domain decides, the store appends.
 from __future__ import annotations
 
 import textwrap
-import threading
 import uuid
-from collections import OrderedDict
 from dataclasses import dataclass
 from datetime import datetime, timedelta
 from typing import Any, Literal
 
 from cryptography.hazmat.primitives import hashes
 
-from . import store
-from .domain import gates
-from .domain.chain import GENESIS, event_digest
-from .domain.errors import RuleRefusal
-from .domain.execution import (
+from .. import store
+from ..domain import gates
+from ..domain.chain import GENESIS, event_digest
+from ..domain.errors import RuleRefusal
+from ..domain.execution import (
     Circumstances,
     JobState,
     apply_event,
     check_event,
     configuration_for,
-    job_state,
     needs_engine_tags,
 )
-from .domain.gates import Tag
-from .domain.readings import InputProblem
-from .library import procedure_of_revision
-from .records import identity
-from .records.identity import StationAuthority
-from .records.record_entries import station_time
-from .records.record_signatures import AUTHORISATION_KIND
-from .records.signing import StampBox
-from .store import fleet, jobs, people, procedures, signers
-from .store.people import Person
-
-
-class NotFound(LookupError):
-    """A job, engine or procedure that does not exist (answered 404)."""
-
-
-@dataclass(frozen=True)
-class Job:
-    row: dict[str, Any]
-    state: JobState
-    head: dict[str, Any]  # the job's latest event: seq and hash
-
-
-class _StateCache:
-    """Job states by the hash of their latest event.
-
-    The hash chain makes the head hash name the whole log, so a state found
-    here is exactly what rebuilding from the log would give; an event appended
-    by anyone changes the head and misses the cache. Saves re-reading a long log
-    on every step.
-    """
-
-    def __init__(self, size: int = 256) -> None:
-        self._size = size
-        self._states: OrderedDict[str, JobState] = OrderedDict()
-        self._lock = threading.Lock()
-
-    def get(self, head_hash: str) -> JobState | None:
-        with self._lock:
-            state = self._states.get(head_hash)
-            if state is not None:
-                self._states.move_to_end(head_hash)
-            return state
-
-    def put(self, head_hash: str, state: JobState) -> None:
-        with self._lock:
-            self._states[head_hash] = state
-            self._states.move_to_end(head_hash)
-            while len(self._states) > self._size:
-                self._states.popitem(last=False)
-
-
-_STATES = _StateCache()
+from ..domain.gates import Tag
+from ..domain.procedures import procedure_of_revision
+from ..domain.readings import InputProblem
+from ..records import identity
+from ..records.identity import StationAuthority
+from ..records.record_entries import station_time
+from ..records.record_signatures import AUTHORISATION_KIND
+from ..records.signing import StampBox
+from ..store import fleet, jobs, people, procedures, signers
+from ..store.job_states import Job, NotFound, load_job, remember
+from ..store.people import Person
 
 
 @dataclass(frozen=True)
@@ -127,23 +82,6 @@ def open_job(db: store.Database, *, procedure_id: str, engine_id: int, channel: 
                      **configuration.as_data()},
                person_id=person.id, device_time=None, now=now, last=None)
     return job_id
-
-
-def load_job(db: store.Database, job_id: int) -> Job:
-    """A job's row and state (rebuilt from its log unless the same log was seen before)."""
-    row = jobs.job(db, job_id)
-    if row is None:
-        raise NotFound(f"job {job_id} does not exist")
-    head = jobs.chain_head(db, job_id)
-    assert head is not None  # every job starts with job_opened
-    state = _STATES.get(head["hash"])
-    if state is None:
-        revision = procedures.revision(db, row["revision_hash"])
-        assert revision is not None  # a foreign key keeps it
-        procedure = procedure_of_revision(revision["hash"], revision["content"])
-        state = job_state(procedure, jobs.events(db, job_id))
-        _STATES.put(head["hash"], state)
-    return Job(row, state, head)
 
 
 def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
@@ -212,7 +150,7 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
             _sign_record(db, job_id, after, record, signer, printed, now)
         if after.status != job.row["status"]:
             jobs.set_job_status(db, job_id, after.status)
-    _STATES.put(record["hash"], after)  # only once committed
+    remember(record["hash"], after)  # only once committed
     return Outcome("stored", event=record)
 
 
@@ -301,7 +239,7 @@ def record_revision(state: JobState) -> int:
 
 def _print_for_signing(db: store.Database, job_id: int, state: JobState, head_hash: str,
                        now: datetime) -> _PrintedRecord:
-    from .records.pdf import render_for_signing
+    from ..records.pdf import render_for_signing
 
     revision = record_revision(state)
     latest = signers.latest_record(db, job_id)
@@ -346,7 +284,7 @@ def _sign_record(db: store.Database, job_id: int, state: JobState, event: dict[s
     """Sign the job's PDF record: the first signature of a revision on a fresh print (which
     reserves the boxes of the signatures to come), later ones as incremental signatures in
     their boxes on the same file (earlier ones stay valid)."""
-    from .records.signing import sign_record
+    from ..records.signing import sign_record
 
     if event["kind"] == "amendment":
         field_name = f"amendment-{len(state.amendments)}"

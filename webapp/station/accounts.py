@@ -6,10 +6,10 @@ from datetime import datetime, timedelta
 
 from werkzeug.security import check_password_hash, generate_password_hash
 
-from . import store
-from .records.identity import PinProblem, StationAuthority, check_pin, enrol_signer
-from .store import people, signers
-from .store.people import Person
+from .. import store
+from ..records.identity import PinProblem, StationAuthority, check_pin, enrol_signer
+from ..store import people, signers
+from ..store.people import Person
 
 __all__ = ["LoginRefused", "PinProblem", "enrol", "log_in"]
 
