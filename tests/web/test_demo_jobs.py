@@ -9,7 +9,7 @@ from __future__ import annotations
 import pytest
 
 from tests.conftest import DEMO_PINS
-from webapp.domain.execution import awaiting_review
+from webapp.domain.signoff import awaiting_review
 from webapp.records.signing import empty_signature_fields, verify_record
 from webapp.station.authority import station_authority
 from webapp.station.recording import engine_tags, load_job

@@ -14,7 +14,7 @@ from datetime import datetime
 from functools import cached_property
 from typing import Any, Literal
 
-from . import gates, readings
+from . import gates, readings, signoff
 from .errors import RuleRefusal
 from .gates import ChannelClock, PowerOff, Tag
 from .procedures import (
@@ -56,10 +56,6 @@ COMPLETING_EVENT = {
     "spark_count": "sparks_counted",
     "sign": "signed",
 }
-# What each signature means (21 CFR 11.50(a)(3)); its scope is always this job's work only.
-SIGNATURE_MEANINGS = {"performer": "Performed", "inspector": "Inspected",
-                      "certifying": "Certified for release to service"}
-SIGNATURE_SCOPE = "this job's work only"
 # Events that happen within the current step without completing it.
 IN_STEP_EVENTS = {"breaker_tagged": "lockout", "tag_removed": "lockout",
                   "finding": ("reading", "torque", "spark_count")}
@@ -369,7 +365,7 @@ def check_event(state: JobState, kind: str, step_id: str | None, data: Mapping[s
         raise RuleRefusal("unknown_event_kind", f"'{kind}' is not something this station "
                           "records; known: " + ", ".join(CLIENT_EVENT_KINDS) + ".")
     if kind == "amendment":
-        return _check_amendment(state, step_id, data)
+        return signoff.check_amendment(state, step_id, data)
     if state.status != "open":
         raise RuleRefusal("job_not_open", "This job is certified and closed: a correction is "
                           "made as an amendment.")
@@ -384,7 +380,7 @@ def check_event(state: JobState, kind: str, step_id: str | None, data: Mapping[s
         gates.check_de_energise(state.clocks, data.get("channel"))
         return data
     if kind == "returned":
-        return _check_return(state, data, at)
+        return signoff.check_return(state, data, at)
     target = state.step(step_id) if step_id else None
     if target is None:
         raise RuleRefusal("unknown_step", f"Step '{step_id}' is not part of this job's "
@@ -465,78 +461,8 @@ def _check_completion(state: JobState, target: StepProgress, data: Mapping[str, 
     elif isinstance(step, IgnitionRun):
         gates.check_energise(state.clocks, _channels(step), at.now, at.device_now)
     elif isinstance(step, Sign):
-        return _check_signature(state, target, at)
+        return signoff.check_signature(state, target, at)
     return data
-
-
-def _check_amendment(state: JobState, step_id: str | None, data: Mapping[str, Any]
-                     ) -> dict[str, Any]:
-    """A correction after certification: who (the event's person), why and what; it makes a
-    new record revision and never overwrites the earlier one."""
-    if state.status != "complete":
-        raise RuleRefusal("not_certified", "Amendments are for certified jobs; while a job is "
-                          "open its steps are corrected by recording them again.")
-    if step_id is not None and step_id not in state.positions:
-        raise RuleRefusal("unknown_step", f"Step '{step_id}' is not part of this job.")
-    stored: dict[str, Any] = {}
-    for name, asked in (("what", "Say what is corrected."), ("why", "Say why.")):
-        value = data.get(name)
-        if not isinstance(value, str) or not value.strip():
-            raise readings.InputProblem(name, asked)
-        stored[name] = value.strip()
-    return {**stored, "meaning": "Amended"}
-
-
-def _check_return(state: JobState, data: Mapping[str, Any], at: Circumstances
-                  ) -> dict[str, Any]:
-    if "supervisor" not in at.roles:
-        raise RuleRefusal("return_role", "Only a supervisor returns a job to the mechanic.")
-    if not any(isinstance(_step_of(state, k), Sign) for k in state.completed):
-        raise RuleRefusal("nothing_to_return", "Nothing has been signed on this job yet.")
-    reason = data.get("reason")
-    if not isinstance(reason, str) or not reason.strip():
-        raise readings.InputProblem("reason", "Say why the job goes back, so the mechanic "
-                                    "knows what to put right.")
-    repeat_from = data.get("repeat_from") or None
-    if repeat_from is None:
-        return {"reason": reason.strip()}
-    target = state.step(str(repeat_from))
-    if target is None or isinstance(target.step, Sign) or target.status != "done":
-        raise readings.InputProblem("repeat_from", "Choose a work step of this job that is "
-                                    "done, or none to ask only for the signatures again.")
-    return {"reason": reason.strip(), "repeat_from": target.id}
-
-
-def awaiting_review(state: JobState) -> bool:
-    """All the work and its performer/inspector signatures are in; certification is next."""
-    upcoming = state.next_step
-    return (upcoming is not None and isinstance(upcoming.step, Sign)
-            and upcoming.step.role == "certifying")
-
-
-def _check_signature(state: JobState, target: StepProgress, at: Circumstances
-                     ) -> dict[str, Any]:
-    """A signature needs the work it covers complete, and the right person for its meaning."""
-    step = target.step
-    assert isinstance(step, Sign)
-    missing = [f"step {s.number} ({s.id})" for s in state.steps[:target.number - 1]
-               if s.status != "done" and not isinstance(s.step, Sign)]
-    missing += [f"the finding for step {state.positions[k] + 1} ({k})"
-                for k in state.awaiting_finding]
-    if missing:
-        raise RuleRefusal("sign_prerequisites", "Not ready to sign; still to do: "
-                          + ", ".join(missing) + ".", missing=missing)
-    performers = [e["person_id"] for k, e in state.completed.items()
-                  if isinstance(_step_of(state, k), Sign)
-                  and _step_of(state, k).role == "performer"]  # type: ignore[union-attr]
-    if step.role in ("inspector", "certifying") and at.person_id in performers:
-        raise RuleRefusal("inspector_is_performer", "The person who performed the work cannot "
-                          f"also sign as {step.role}: another person signs here.")
-    if step.role == "certifying" and "supervisor" not in at.roles:
-        raise RuleRefusal("certifier_role", "Only a certifying supervisor signs the release "
-                          "to service.")
-    return {"role": step.role, "meaning": SIGNATURE_MEANINGS[step.role],
-            "scope": SIGNATURE_SCOPE}
 
 
 def _short(step: Step) -> str:

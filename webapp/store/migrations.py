@@ -100,3 +100,58 @@ def signers_and_records(db: Database) -> None:
     }, pk="id", foreign_keys=[("job_id", "jobs")],
         not_null={"job_id", "revision", "pdf", "chain_hash", "signatures", "created_at"})
     db.table("records").create_index(["job_id", "revision", "signatures"], unique=True)
+
+
+@MIGRATIONS(name="0004_engine_state_and_parts")
+def engine_state_and_parts(db: Database) -> None:
+    # The fleet's starting configuration: what was fitted where before the station's first
+    # job. The engine's state folds every later event over it; `components.engine_id` and
+    # `components.channel` are then the derived current position, written only by that fold.
+    db.table("installed_at_start").create({
+        "engine_id": int, "kind": str, "channel": str, "component_id": int,
+    }, pk=("engine_id", "kind", "channel"),
+        foreign_keys=[("engine_id", "engines"), ("component_id", "components")])
+    db.execute("insert into installed_at_start (engine_id, kind, channel, component_id) "
+               "select engine_id, kind, channel, id from components where engine_id is not null")
+    # The part numbers each position of an engine may take: approved ones and the
+    # interchangeable alternates the fleet configuration lists (channel null: either channel).
+    db.table("allowed_parts").create({
+        "id": int, "engine_id": int, "kind": str, "channel": str, "part_number": str,
+        "type": str, "interchangeability": str,
+    }, pk="id", foreign_keys=[("engine_id", "engines")],
+        not_null={"engine_id", "kind", "part_number", "type", "interchangeability"})
+    db.table("allowed_parts").create_index(["engine_id", "kind"])
+    db.execute("insert into allowed_parts (engine_id, kind, channel, part_number, type, "
+               "interchangeability) select distinct engine_id, kind, channel, part_number, "
+               "type, 'approved' from components where engine_id is not null")
+    # The engine's state as of its latest event (a cache of the fold, kept in the same
+    # transaction as each event; a test checks it equals a full replay).
+    db.table("engine_state").create({"engine_id": int, "state": str, "event_rowid": int},
+                                    pk="engine_id", foreign_keys=[("engine_id", "engines")],
+                                    not_null={"state", "event_rowid"})
+    # Each time a serial was fitted to and removed from a position (derived, like the above).
+    db.table("part_moves").create({
+        "id": int, "component_id": int, "engine_id": int, "kind": str, "channel": str,
+        "fitted_job": int, "fitted_at": str, "fitted_usage": str,
+        "removed_job": int, "removed_at": str, "removed_usage": str, "status": str,
+        "reason": str, "tag": str,
+    }, pk="id", foreign_keys=[("component_id", "components"), ("engine_id", "engines")],
+        not_null={"component_id", "engine_id", "kind"})
+    db.table("part_moves").create_index(["component_id"])
+    db.table("events").create_index(["job_id", "kind"])
+
+
+@MIGRATIONS(name="0005_authorisations")
+def authorisations(db: Database) -> None:
+    # What each person may sign: the kinds of signature (perform, inspect, certify), the
+    # scope (ATA sections such as 74-10, the chapter 74, or procedure kinds), the licence or
+    # certificate it rests on, and until when. Rows are never deleted: revoking sets
+    # revoked_at, so a record signed under an authorisation can always name it.
+    db.table("authorisations").create({
+        "id": int, "person_id": int, "signatures": str, "scope": str, "licence_kind": str,
+        "licence_number": str, "expires_on": str, "granted_by": int, "granted_at": str,
+        "revoked_at": str,
+    }, pk="id", foreign_keys=[("person_id", "people")],
+        not_null={"person_id", "signatures", "scope", "licence_kind", "licence_number",
+                  "expires_on", "granted_at"})
+    db.table("authorisations").create_index(["person_id"])

@@ -7,7 +7,7 @@ from typing import Any
 
 from flask import Blueprint, Response, abort, redirect, render_template, request, url_for
 
-from ..domain.execution import awaiting_review
+from ..domain.signoff import awaiting_review
 from ..station import recording
 from ..store import jobs as job_store
 from ..store import people, signers
