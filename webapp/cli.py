@@ -1,4 +1,5 @@
-"""Station commands: init, demo, serve, tasks check, people add (also under `flask`)."""
+"""Station commands: init, demo, serve, tasks check, people add and authorise (also under
+`flask`)."""
 
 from __future__ import annotations
 
@@ -11,7 +12,7 @@ from flask import Flask
 
 from . import store
 from .clock import system_clock
-from .domain.procedures import ProcedureInvalid
+from .domain.procedure_files import ProcedureInvalid
 from .station.library import check_files, load_shop_library
 from .store.people import ROLES
 
@@ -329,6 +330,48 @@ def people_add(db_path: Path | None, username: str, full_name: str, roles: tuple
     signing = "with a signing key" if pin else "without a signing key (--no-signing-key)"
     click.echo(f"Enrolled {person.full_name} ({person.username}) as "
                f"{', '.join(person.roles)}, {signing}")
+
+
+@people.command("authorise", help="Grant an enrolled person an authorisation to sign: the "
+                                  "kinds of signature, the scope, the licence it rests on and "
+                                  "the last day it is valid.")
+@DB_OPTION
+@click.option("--username", required=True)
+@click.option("--signatures", required=True, metavar="KINDS",
+              help="Comma-separated: perform, inspect, certify")
+@click.option("--scope", required=True, metavar="SCOPE",
+              help="Comma-separated ATA chapters (74), sections (74-10) or kinds of procedure "
+                   "(removal, installation, inspection, functional check)")
+@click.option("--licence-kind", required=True, help="Kind of licence or authorisation, "
+                                                    "printed with each signature")
+@click.option("--licence-number", required=True, help="Licence or authorisation number")
+@click.option("--expires", "expires_on", required=True, metavar="YYYY-MM-DD",
+              help="The last day it is valid")
+def people_authorise(db_path: Path | None, username: str, signatures: str, scope: str,
+                     licence_kind: str, licence_number: str, expires_on: str) -> None:
+    from .domain.readings import InputProblem
+    from .station.authorising import authorise
+    from .store import people as people_store
+
+    app = _app(db_path)
+    db = store.create(app.config["DB_PATH"])
+    try:
+        person = people_store.person_by_username(db, username)
+        if person is None:
+            raise click.ClickException(f"no person '{username}' is enrolled on this station")
+        granted = authorise(db, person_id=person.id, signatures=signatures, scope=scope,
+                            licence_kind=licence_kind, licence_number=licence_number,
+                            expires_on=expires_on, granted_by=None, now=system_clock())
+    except InputProblem as problem:
+        option = "--expires" if problem.field == "expires_on" else (
+            "--" + problem.field.replace("_", "-"))
+        raise click.ClickException(f"{option}: {problem.message}") from None
+    finally:
+        db.close()
+    click.echo(f"Authorised {person.full_name} ({person.username}) to "
+               f"{', '.join(granted.signatures)} within {granted.scope_text}, under "
+               f"{granted.licence_kind} no. {granted.licence_number}, valid through "
+               f"{granted.expires_on.isoformat()}")
 
 
 def register(app: Flask) -> None:

@@ -15,7 +15,7 @@ from webapp.domain.execution import (
     configuration_for,
     job_state,
 )
-from webapp.domain.procedures import parse_procedure
+from webapp.domain.procedure_files import parse_procedure
 
 TASKS = Path(__file__).resolve().parents[2] / "tasks"
 REMOVAL = parse_procedure((TASKS / "exciter-removal.yaml").read_text(encoding="utf-8"))
@@ -142,13 +142,14 @@ def test_a_signature_is_not_a_tick():
     procedure = REMOVAL
     configuration = configuration_for(procedure, "QT-610", DC_ENGINE, "A")
     steps = procedure.steps_for(("dc",), ("surface-discharge",))
-    kinds = {"warning": "acknowledged", "caution": "acknowledged", "reading": "reading_recorded"}
+    kinds = {"warning": "acknowledged", "caution": "acknowledged", "reading": "reading_recorded",
+             "part": "part_recorded"}
     done = []
     for step in steps[:-1]:
         event = _done(step.id, kinds.get(step.kind, "step_done"))
         event["id"] = step.id
         event["person_id"] = 1
-        if step.kind == "reading":
+        if step.kind in ("reading", "part"):
             event["data"] = {"text": "demo", "verdict": "recorded"}
         done.append(event)
     state = job_state(procedure, [_opened(configuration), *done])
@@ -167,4 +168,4 @@ def test_the_engine_s_tags_are_read_only_for_the_events_that_need_them():
     assert needs_engine_tags(state, "step_done", "breakers")        # completing the lockout
     assert not needs_engine_tags(state, "step_done", "identify")
     assert not needs_engine_tags(state, "acknowledged", "lethal-energy-breakers")
-    assert not needs_engine_tags(state, "reading_recorded", "removed-serial")
+    assert not needs_engine_tags(state, "part_recorded", "removed-exciter")

@@ -6,14 +6,8 @@ from pathlib import Path
 
 import pytest
 
-from webapp.domain.procedures import (
-    EXCITER_TYPES,
-    PLUG_TYPES,
-    STEP_KINDS,
-    Procedure,
-    SparkCount,
-    parse_procedure,
-)
+from webapp.domain.procedure_files import parse_procedure
+from webapp.domain.procedures import EXCITER_TYPES, PLUG_TYPES, STEP_KINDS, Procedure, SparkCount
 
 TASKS = Path(__file__).parents[2] / "tasks"
 FILES = sorted(TASKS.glob("*.yaml"))

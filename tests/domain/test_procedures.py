@@ -6,7 +6,7 @@ import textwrap
 
 import pytest
 
-from webapp.domain.procedures import (
+from webapp.domain.procedure_files import (
     ProcedureInvalid,
     ProcedureProblem,
     content_hash,

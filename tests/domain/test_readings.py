@@ -546,11 +546,21 @@ def test_a_finding_replaced_or_re_tested_needs_no_reference(disposition):
     assert stored == {"text": "plug shell eroded", "disposition": disposition}
 
 
-def test_a_deferred_finding_keeps_its_reference():
+def test_a_deferred_finding_keeps_its_reference_and_limit_and_opens_an_engine_item():
     stored = readings.evaluate_finding({"text": "lead braid frayed", "disposition": "deferred",
-                                        "reference": " DD-0042 "})
+                                        "reference": " DD-0042 ", "limit": " 10 FH "})
     assert stored == {"text": "lead braid frayed", "disposition": "deferred",
-                      "reference": "DD-0042"}
+                      "reference": "DD-0042", "limit": "10 FH",
+                      "engine": [{"effect": "defer", "text": "lead braid frayed",
+                                  "reference": "DD-0042", "limit": "10 FH"}]}
+
+
+@pytest.mark.parametrize("limit", [None, "", "   ", "x" * 61])
+def test_a_deferred_finding_without_a_limit_is_refused(limit):
+    with pytest.raises(InputProblem) as excinfo:
+        readings.evaluate_finding({"text": "lead braid frayed", "disposition": "deferred",
+                                   "reference": "DD-0042", "limit": limit})
+    assert excinfo.value.field == "limit"
 
 
 @pytest.mark.parametrize("reference", [None, "", "   "])

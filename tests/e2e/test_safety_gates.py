@@ -80,18 +80,17 @@ def test_discharge_wait_counts_down_and_cannot_be_cut_short(browser, live_server
 
 
 def test_functional_check_handover_release_and_duty_cycle(browser, live_server, station_clock):
-    # mech1 locks the engine out in a removal job and goes home.
+    # mech1 locks the engine out in a removal job (left open).
     first = browser.new_context(viewport={"width": 1024, "height": 768})
-    page = first.new_page()
-    open_removal_to_warning(page, live_server)
-    tap(page, "[data-testid=acknowledge]")
+    owner = first.new_page()
+    open_removal_to_warning(owner, live_server)
+    tap(owner, "[data-testid=acknowledge]")
     for breaker, tag in (("IGN-A", "T-4471"), ("IGN-B", "T-4472")):
-        page.fill(f"[data-testid=tag-number-{breaker}]", tag)
-        tap(page, f"[data-testid=tag-{breaker}]")
-    tap(page, "[data-testid=done]")
-    first.close()
+        owner.fill(f"[data-testid=tag-number-{breaker}]", tag)
+        tap(owner, f"[data-testid=tag-{breaker}]")
+    tap(owner, "[data-testid=done]")
 
-    # mech2 does the functional check: takes the tags over, removes them, energises A.
+    # mech2 does the functional check: up to the release of the tags.
     context = browser.new_context(viewport={"width": 1024, "height": 768})
     page = context.new_page()
     start = datetime.now(UTC)
@@ -109,11 +108,51 @@ def test_functional_check_handover_release_and_duty_cycle(browser, live_server, 
     tap(page, "[data-testid=acknowledge]")
     expect(step).to_have_attribute("data-step-id", "release-tags")
     expect(page.get_by_test_id("owned-T-4471")).to_contain_text("Aino Varga")
-    for tag in ("T-4471", "T-4472"):
-        page.locator(f"[data-testid=engine-tag-{tag}] summary").click()
-        page.check(f"[data-testid=confirm-open-{tag}]")
-        tap(page, f"[data-testid=take-over-{tag}]")
-        tap(page, f"[data-testid=remove-{tag}]")
+    # Nothing to take over until the owner consents.
+    expect(page.get_by_test_id("no-consent-T-4471")).to_be_visible()
+    expect(page.get_by_test_id("take-over-T-4471")).to_have_count(0)
+    job_url = page.url
+
+    # mech1, on their own log-in, hands T-4471 to mech2 with their PIN, then goes home.
+    owner.goto(job_url)
+    owner.get_by_test_id("hand-over-open-T-4471").click()
+    owner.select_option("[data-testid=hand-to-T-4471]", label="Tomas Reyes")
+    owner.fill("[data-testid=hand-pin-T-4471]", "135790")   # demo PIN, invented
+    ARTIFACTS.mkdir(exist_ok=True)
+    owner.screenshot(path=str(ARTIFACTS / "tag-hand-over.png"), full_page=True)
+    tap(owner, "[data-testid=hand-over-T-4471]")
+    expect(owner.get_by_test_id("consent-T-4471")).to_contain_text("Handed to Tomas Reyes")
+    first.close()
+
+    # Ten minutes later mech2 checks the breaker, takes T-4471 over and removes it.
+    station_clock.advance(600)
+    page.reload()
+    page.check("[data-testid=confirm-open-T-4471]")
+    tap(page, "[data-testid=take-over-T-4471]")
+    expect(page.get_by_test_id("tag-owner-T-4471")).to_contain_text("Tomas Reyes, owner since")
+    tap(page, "[data-testid=remove-T-4471]")
+
+    # T-4472's owner has left: the supervisor authorises its removal on their own log-in.
+    desk = browser.new_context(viewport={"width": 1024, "height": 768})
+    supervisor = desk.new_page()
+    supervisor.goto(job_url)
+    supervisor.fill("#username", "super")
+    supervisor.fill("#password", "demo-super")
+    supervisor.click("[data-testid=login]")
+    supervisor.wait_for_url(job_url)
+    supervisor.get_by_test_id("authorise-removal-open-T-4472").click()
+    supervisor.fill("[data-testid=removal-reason-T-4472]",
+                    "Aino Varga left site at 17:30; phoned twice; breaker checked in person")
+    supervisor.fill("[data-testid=removal-pin-T-4472]", "802468")   # demo PIN, invented
+    supervisor.screenshot(path=str(ARTIFACTS / "tag-absent-owner.png"), full_page=True)
+    tap(supervisor, "[data-testid=authorise-removal-T-4472]")
+    expect(supervisor.get_by_test_id("removal-authorised-T-4472")).to_contain_text(
+        "Priya Halvorsen")
+    desk.close()
+
+    page.reload()
+    expect(page.get_by_test_id("removal-authorised-T-4472")).to_contain_text("phoned twice")
+    tap(page, "[data-testid=absent-T-4472]")
     tap(page, "[data-testid=done]")
     for _ in range(3):
         tap(page, "[data-testid=acknowledge]")

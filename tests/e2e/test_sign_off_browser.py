@@ -15,7 +15,7 @@ from playwright.sync_api import expect
 
 from tests.conftest import DEMO_PASSWORDS, DEMO_PINS, LoggedIn
 from tests.pdf_text import pdf_text
-from tests.web.jobs import Job
+from tests.web.jobs import Job, _event
 from webapp import create_app, store
 from webapp.records.signing import verify_record
 from webapp.station.authority import station_authority
@@ -45,11 +45,16 @@ PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
 def check_job(live_server, db_path, station_clock):
     """A functional check on DEMO-101 engine 1, both channels, walked by mech1 through the
     station's real web app (its JSON API, the same database file and clock as the live
-    server) up to its last two steps before the performer signs: ignition off, fuel check."""
+    server) up to its last two steps before the performer signs: ignition off, fuel check.
+    mech2, at the engine, counts the snaps with both channels on (a performer signs only
+    work they recorded)."""
     app = create_app({"DB_PATH": str(db_path), "SECRET_KEY": "pre-walk-secret",
                       "CLOCK": station_clock, "TESTING": True})
     db = store.connect(db_path)
     job = Job(LoggedIn(app.test_client(), "mech1"), db, station_clock, PROCEDURE, channel=None)
+    job.walk_to("count-both")
+    job.ok(_event("count-both", "sparks_counted", method="timed", count=70, window_s=30),
+           client=LoggedIn(app.test_client(), "mech2"))  # demo check count, as the walk's
     job.walk_to("ignition-off")
     yield job
     db.close()

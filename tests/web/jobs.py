@@ -15,6 +15,15 @@ def _event(step, kind="step_done", **data):
     return {"id": str(uuid.uuid4()), "kind": kind, "step": step, "data": data}
 
 
+def exciter_removed(client, db, clock, channel="A", engine=DEMO_101_ENGINE_1):
+    """An exciter removal worked up to its signatures (the unit is off, its position empty,
+    the channel's input and lead disconnected, tags T-1 and T-2 hanging): an installation
+    can follow on that channel."""
+    removal = Job(client, db, clock, "exciter-removal", channel=channel, engine=engine)
+    removal.walk_to("performer")
+    return removal
+
+
 class Job:
     """One job driven through the API, with the station's clock at hand."""
 
@@ -69,6 +78,10 @@ class Job:
             elif step["kind"] == "discharge_wait":
                 self.clock.advance(120)
                 self.ok(_event(step["id"]))
+            elif step["kind"] == "part":
+                job = recording.load_job(self.db, self.id)
+                self.ok(_event(step["id"], "part_recorded", **demo_jobs.part_data(
+                    self.db, self.id, job.state.step(step["id"]).step)))
             elif step["kind"] in ("reading", "torque"):
                 self.ok(_event(step["id"], "reading_recorded", **self._demo_reading(step["id"])))
             elif step["kind"] == "ignition_run":

@@ -14,8 +14,8 @@ from webapp.records.signing import empty_signature_fields, verify_record
 from webapp.station.authority import station_authority
 from webapp.station.recording import engine_tags, load_job
 from webapp.station.scenario import DemoJob, load_demo_jobs, read_scenario, scenario_path
+from webapp.store import engines, signers
 from webapp.store import jobs as job_store
-from webapp.store import signers
 
 
 @pytest.fixture
@@ -27,7 +27,7 @@ def demo_jobs(app, db, clock):
 
 
 def test_the_demo_starts_with_a_job_waiting_for_certification(demo_jobs, db, login):
-    (check, removal), authority = demo_jobs
+    (check, *_), authority = demo_jobs
     state = load_job(db, check).state
     assert awaiting_review(state) and state.next_step.id == "certify"
     record = signers.latest_record(db, check)
@@ -47,10 +47,13 @@ def test_the_demo_starts_with_a_job_waiting_for_certification(demo_jobs, db, log
         "data": {"pin": DEMO_PINS["super"]}})
     assert answer.status_code == 201, answer.get_json()
     assert load_job(db, check).state.status == "complete"
+    # Nothing on that engine is off or due: the certification releases it to service.
+    assert answer.get_json()["data"]["release"]["released"] is True
+    assert job_store.job(db, check)["progress"] == "released"
 
 
 def test_the_demo_starts_with_a_removal_under_way_behind_its_tags(demo_jobs, db):
-    (_, removal), _ = demo_jobs
+    (_, removal, *_), _ = demo_jobs
     job = load_job(db, removal)
     assert job.state.next_step.id == "discharge"
     assert job.state.power_off is not None                 # the input is disconnected
@@ -65,3 +68,27 @@ def test_a_demo_job_naming_an_unknown_engine_is_refused(app, db, clock):
     authority = station_authority(app.config["DB_PATH"], "x", clock())
     with app.app_context(), pytest.raises(ValueError, match="no engine 'QT6-00000'"):
         load_demo_jobs(db, wrong, clock(), authority)
+
+
+def test_the_demo_shows_a_unit_off_for_repair_and_a_deferred_item(demo_jobs, db, login):
+    (_, _, repair, lead), _ = demo_jobs
+    # The certified removal: closed, not released, and the engine says why.
+    assert job_store.job(db, repair)["progress"] == "closed, not released"
+    certified = load_job(db, repair).state.completed["certify"]["data"]
+    assert certified["release"]["released"] is False
+    assert any("removed in job" in r for r in certified["release"]["reasons"])
+    engine = engines.current(db, job_store.job(db, repair)["engine_id"])
+    assert engine.fitted("exciter", "A") is None
+    assert engine.removed[0].status == "unserviceable"
+    # The lead inspection deferred a defect: an open item of its engine, a named limitation
+    # of the release, shown on the engine page.
+    lead_engine = job_store.job(db, lead)["engine_id"]
+    items = engines.current(db, lead_engine).open_items
+    assert [i.reference for i in items] == ["DD-2026-031"]
+    release = load_job(db, lead).state.completed["certify"]["data"]["release"]
+    assert release["limitations"] == [
+        f"open item DD-2026-031 (job {lead}): Clamp 4 cushion perished; lead secure in the "
+        "clamp, no chafing (demo); limit 50 FH or 2027-01-31"]
+    page = login("mech1").get(f"/fleet/engines/{lead_engine}").get_data(as_text=True)
+    assert 'data-testid="open-item-DD-2026-031"' in page
+    assert job_store.refusals(db, repair) == [] and job_store.refusals(db, lead) == []

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import pytest
 
+from tests.conftest import DEMO_PINS
 from tests.web.jobs import DEMO_101_ENGINE_1, Job, _event
 from webapp.store import jobs as job_store
 
@@ -118,9 +119,15 @@ def test_only_the_owner_removes_a_tag(tagged_then_check):
     check.refused(_event("release-tags"), "tags_still_on")
 
 
-def test_handover_transfers_the_tag_explicitly(tagged_then_check):
+def test_handover_transfers_the_tag_only_after_the_owner_hands_it_over(tagged_then_check,
+                                                                          mechanic):
     check, _ = tagged_then_check
     check.walk_to("release-tags")
+    check.refused(_event(None, "tag_taken_over", tag="T-1", breaker_confirmed_open=True),
+                  "no_consent")
+    # mech1, the owner, hands T-1 over on their own session, with their PIN.
+    check.ok(_event(None, "tag_handed_over", tag="T-1", to="mech2", pin=DEMO_PINS["mech1"]),
+             mechanic)
     check.refused(_event(None, "tag_taken_over", tag="T-1"), "breaker_not_confirmed")
     check.refused(_event(None, "tag_taken_over", tag="T-404", breaker_confirmed_open=True),
                   "tag_not_active")
@@ -131,16 +138,22 @@ def test_handover_transfers_the_tag_explicitly(tagged_then_check):
     check.refused(_event("release-tags", "tag_removed", tag="T-1"), "tag_not_active")
 
 
-def test_absent_owner_removal_needs_a_supervisor_and_a_reason(tagged_then_check):
+def test_absent_owner_removal_is_authorised_by_the_supervisor_s_own_entry(tagged_then_check,
+                                                                           login):
     check, _ = tagged_then_check
     check.walk_to("release-tags")
-    absent = lambda **a: _event("release-tags", "tag_removed", tag="T-2",  # noqa: E731
-                                absent_owner=a)
-    check.refused(absent(reason="gone home", supervisor="mech1"), "absent_owner_authority")
-    check.refused(absent(reason=" ", supervisor="super"), "absent_owner_incomplete")
-    check.ok(absent(reason="left site at 18:00, phone unanswered twice", supervisor="super"))
-    stored = job_store.events(check.db, check.id)[-1]
-    assert stored["data"]["absent_owner"]["supervisor"] == "super"
+    check.refused(_event("release-tags", "tag_removed", tag="T-2", absent_owner={
+        "reason": "left site at 18:00", "supervisor": "super"}), "absent_owner_typed")
+    supervisor = login("super")
+    authorise = lambda reason: _event("release-tags", "tag_removal_authorised",  # noqa: E731
+                                      tag="T-2", reason=reason, pin=DEMO_PINS["super"])
+    check.refused(authorise(" "), "reason_missing", supervisor)
+    check.ok(authorise("left site at 18:00, phone unanswered twice"), supervisor)
+    check.ok(_event("release-tags", "tag_removed", tag="T-2"))
+    authorisation, removal = job_store.events(check.db, check.id)[-2:]
+    assert authorisation["data"]["reason"] == "left site at 18:00, phone unanswered twice"
+    assert "pin" not in authorisation["data"]
+    assert removal["data"] == {"tag": "T-2", "absent_owner_authorisation": authorisation["id"]}
 
 
 def test_a_tag_hung_after_the_release_blocks_energising_with_the_owner_named(

@@ -161,7 +161,7 @@ def test_admin_enrols_a_person_and_bad_input_keeps_what_was_typed(login, db):
 
 def test_progress_list_escapes_procedure_text(app):
     from webapp.domain.execution import Configuration, job_state
-    from webapp.domain.procedures import parse_procedure
+    from webapp.domain.procedure_files import parse_procedure
     from webapp.web.progress import progress_list
 
     text = (Path(__file__).resolve().parents[2] / "tasks" / "exciter-removal.yaml").read_text(

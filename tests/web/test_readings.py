@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import pytest
 
-from tests.web.jobs import Job, _event
+from tests.web.jobs import Job, _event, exciter_removed
 from webapp.store import jobs as job_store
 
 LBF_IN_IN_N_M = 0.1129848  # NIST SP 811 B.9: 1 lbf·in = 0.1129848 N·m
@@ -13,6 +13,7 @@ LBF_IN_IN_N_M = 0.1129848  # NIST SP 811 B.9: 1 lbf·in = 0.1129848 N·m
 
 @pytest.fixture
 def installation(mechanic, db, clock):
+    exciter_removed(mechanic, db, clock)
     job = Job(mechanic, db, clock, "exciter-installation")
     job.walk_to("mounting-torque")
     return job
@@ -95,7 +96,8 @@ def test_out_of_limits_blocks_until_dispositioned_and_keeps_every_attempt(instal
 def test_a_deferral_with_its_reference_lets_the_job_go_on(installation):
     installation.ok(torque("45"))
     installation.ok(_event("mounting-torque", "finding", text="bracket thread damaged",
-                           disposition="deferred", reference="DD-2026-117"))
+                           disposition="deferred", reference="DD-2026-117",
+                           limit="25 FH or 2027-01-15"))
     assert installation.state()["next_step"] == "bonding-resistance"
 
 

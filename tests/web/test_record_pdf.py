@@ -15,6 +15,7 @@ from datetime import timedelta
 import pytest
 from pypdf import PdfReader
 
+from tests.conftest import DEMO_PINS
 from tests.web.jobs import DEMO_101_ENGINE_1, Job, _event
 from webapp.records import pdf
 from webapp.store import jobs as job_store
@@ -28,6 +29,7 @@ def plug_job(app, db, clock, mechanic, login):
     job = Job(mechanic, db, clock, PROCEDURE, channel="B", engine=DEMO_101_ENGINE_1)
     job.walk_to("hot-case")  # both breakers tagged by mech1: T-1 on IGN-A, T-2 on IGN-B
     reyes = login("mech2")
+    job.ok(_event(None, "tag_handed_over", tag="T-2", to="mech2", pin=DEMO_PINS["mech1"]))
     job.ok(_event(None, "tag_taken_over", tag="T-2", breaker_confirmed_open=True), reyes)
     job.walk_to("erosion")
     job.ok(_event("erosion", "reading_recorded", value="0.044", unit="in",
@@ -39,7 +41,7 @@ def plug_job(app, db, clock, mechanic, login):
                   "the data allows and inspected again", disposition="re-tested"))
     job.ok(_event("carbon", "reading_recorded", result="pass"))
     job.walk_to("performer")
-    assert job.state()["steps"][37]["status"] == "next"
+    assert job.state()["next_step"] == "performer"
     return job.id
 
 
@@ -73,8 +75,9 @@ def test_14_cfr_43_9_a_four_elements_of_the_maintenance_record(app, db, clock, p
     # 14 CFR 43.9(a)(4): the signature with certificate number and kind of certificate.
     # Unsigned here: each signature has its box, which its stamp fills when signed (the
     # stamp's content is checked on a signed record in test_signature_stamps.py).
-    assert "Step 38: Performer" in text and "Step 39: Inspector" in text
-    assert text.count("Signature box:") == 2
+    assert "Step 36: Performer" in text and "Step 37: Inspector" in text
+    assert "Step 38: Certifying" in text
+    assert text.count("Signature box:") == 3
     assert "printed name, authorisation number and its kind" in text
     # The header: aircraft, engine serial and position, channel (DOMAIN.md section 4).
     for shown in ("DEMO-101", "QT6-10231", "Engine position 1", "Ignition channel B"):
@@ -90,8 +93,12 @@ def test_easa_145_a_50_release_to_service_content(app, db, clock, plug_job):
     assert "Certifying staff (printed name)" in text
     assert "Licence / authorisation no." in text
     assert "Limitations none" in text
-    assert ("Not released to service by this record: this procedure has no certifying "
-            "signature.") in text
+    # The plug came off and a new one went on: until a functional check passes on the
+    # channel, no certification of this job releases the aircraft, and the record says so.
+    assert "This record does not release the aircraft to service" in text
+    assert ("Not released to service — as the engine stands at printing; the certifying "
+            "signature's stamp states what was given") in text
+    assert "a functional check of channel B is due after the work of job" in text
     # The procedure's requirements after completion travel with the release block.
     assert "functional (audible) check of the ignition system must pass" in text
 
@@ -108,7 +115,7 @@ def test_21_cfr_11_50_signature_shows_printed_name_time_with_zone_and_meaning(
     assert (f"Signed electronically by Aino Varga (BCA-M-0147) on {when}; meaning: performed "
             "the work.") in text
     assert "mechanic authorisation" in text
-    assert text.count("Signature box:") == 1  # only the inspector's box is still open
+    assert text.count("Signature box:") == 2  # the inspector's and the certifier's still open
     # 21 CFR 11.50(b): the same manifestation on the screen as on paper.
     with app.app_context():
         html = pdf.record_html(db, plug_job, clock(), [signature], embedded=True)
@@ -140,7 +147,7 @@ def test_21_cfr_11_10_readings_gates_hashes_and_pages_in_readable_form(
     for shown in ("T-1", "T-2", "IGN-A", "IGN-B", "taken over"):
         assert shown in text
     assert re.search(r"Tag T-2 on IGN-B .* handed over from Aino Varga, BCA-M-0147 to "
-                     r"Tomas Reyes, BCA-M-0152", text)
+                     r"Tomas Reyes, BCA-M-0152 .*; consented by the owner, Aino Varga", text)
     assert "exciter input disconnected (power off)" in text
     assert "Wait served 2:00" in text
     # Parts at work and as recorded (DOMAIN.md section 4: P/N and S/N removed and fitted).

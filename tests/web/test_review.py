@@ -14,9 +14,14 @@ from webapp.store import signers
 
 @pytest.fixture
 def signed_check(login, db, clock):
-    """A functional check walked and signed by two mechanics: waiting for certification."""
+    """A functional check walked and signed by two mechanics: waiting for certification.
+    mech2, at the engine, counts the snaps with both channels on (a performer signs only
+    work they recorded)."""
     mech1, mech2 = login("mech1"), login("mech2")
     job = Job(mech1, db, clock, "ignition-functional-check", channel=None)
+    job.walk_to("count-both")
+    job.ok(_event("count-both", "sparks_counted", method="timed", count=70, window_s=30),
+           client=mech2)  # demo check count, as the job walk's
     job.walk_to("sign-selector")
     job.ok(_event("sign-selector", "signed", pin=DEMO_PINS["mech1"]))
     job.ok(_event("sign-engine", "signed", pin=DEMO_PINS["mech2"]), client=mech2)

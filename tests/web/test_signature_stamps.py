@@ -18,7 +18,7 @@ from pypdf import PdfReader
 
 from tests.conftest import DEMO_PINS
 from tests.pdf_text import pdf_pages_text
-from tests.web.jobs import Job, _event
+from tests.web.jobs import Job, _event, exciter_removed
 from webapp.records.signing import empty_signature_fields, verify_record
 from webapp.records.verify import check_record
 from webapp.station.authority import station_authority
@@ -28,6 +28,7 @@ from webapp.store import signers
 
 @pytest.fixture
 def installation(login, db, clock):
+    exciter_removed(login("mech1"), db, clock)
     job = Job(login("mech1"), db, clock, "exciter-installation")
     job.walk_to("performer")
     return job
@@ -51,8 +52,8 @@ def test_each_signature_is_stamped_in_its_box_with_name_number_meaning_and_time(
     performer_at = clock()
     installation.ok(_event("performer", "signed", pin=DEMO_PINS["mech1"]))
     first = signers.latest_record(db, installation.id)["pdf"]
-    # The inspector's box is reserved, empty, when the performer signs.
-    assert empty_signature_fields(first) == ["inspector"]
+    # The inspector's and the certifier's boxes are reserved, empty, when the performer signs.
+    assert empty_signature_fields(first) == ["inspector", "certify"]
     clock.advance(7 * 60)
     inspector_at = clock()
     installation.ok(_event("inspector", "signed", pin=DEMO_PINS["mech2"]),
@@ -60,26 +61,29 @@ def test_each_signature_is_stamped_in_its_box_with_name_number_meaning_and_time(
     record = signers.latest_record(db, installation.id)
     signed = record["pdf"]
     assert signed.startswith(first)           # incremental: the first file is kept byte for byte
-    assert empty_signature_fields(signed) == []
+    assert empty_signature_fields(signed) == ["certify"]
 
     pages = pdf_pages_text(signed, tmp_path)
     text = " ".join(pages)
     # 21 CFR 11.50(a): printed name, date and time, and meaning, for each signature; 14 CFR
-    # 43.9(a)(4): with the certificate (authorisation) number and its kind.
+    # 43.9(a)(4): with the certificate (authorisation) number and its kind, those of the
+    # authorisation the signature rests on (the demo's, invented).
     for name, number, meaning, at in (
-            ("Aino Varga", "BCA-M-0147", "Performed", performer_at),
-            ("Tomas Reyes", "BCA-M-0152", "Inspected", inspector_at)):
+            ("Aino Varga", "BCA-CA-0147", "Performed", performer_at),
+            ("Tomas Reyes", "BCA-CA-0152", "Inspected", inspector_at)):
         assert f"Signed electronically by {name}" in text
-        assert f"Authorisation no. {number} (organisation authorisation)" in text
+        assert (f"Authorisation no. {number} (Company authorisation (demo) — mechanic)"
+                in text)
         assert f"Meaning: {meaning} (this job's work only)" in text
         assert f"Date and time: {at:%Y-%m-%d %H:%M:%S} UTC" in text
 
     # Each stamp sits in the box the record drew for it: on the page of its sign step,
     # above that box's caption, and the two do not overlap.
     widgets = _widgets(signed, tmp_path)
-    assert set(widgets) == {"performer", "inspector"}
-    for field, heading in (("performer", "Step 21: Performer"),
-                           ("inspector", "Step 22: Inspector")):
+    assert set(widgets) == {"performer", "inspector", "certify"}
+    numbers = {s["id"]: s["number"] for s in installation.state()["steps"]}
+    for field, heading in (("performer", f"Step {numbers['performer']}: Performer"),
+                           ("inspector", f"Step {numbers['inspector']}: Inspector")):
         page, (x1, y1, x2, y2) = widgets[field]
         assert heading in pages[page]
         # The box is 110 mm by 17 mm inside a 0.75 pt border in record.css (1 mm = 72/25.4
@@ -102,7 +106,7 @@ def test_verify_names_the_boxes_still_empty(installation, db, clock, app):
     authority = station_authority(app.config["DB_PATH"], "x", clock())
     result = check_record(pdf, authority.cert, lambda job_id: job_store.events(db, job_id))
     assert result.ok                       # a record signed so far is intact
-    assert result.unsigned == ["inspector"]
+    assert result.unsigned == ["inspector", "certify"]
 
 
 def test_a_name_outside_latin_1_is_stamped_as_written(installation, db, clock, app, tmp_path):

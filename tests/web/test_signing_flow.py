@@ -7,7 +7,7 @@ from datetime import datetime
 import pytest
 
 from tests.conftest import DEMO_PINS
-from tests.web.jobs import Job, _event
+from tests.web.jobs import Job, _event, exciter_removed
 from webapp.records import identity
 from webapp.records.signing import sign_record, verify_record
 from webapp.records.verify import check_record, revocations
@@ -60,12 +60,13 @@ def test_performer_signs_and_the_pdf_carries_a_valid_trusted_signature(removal, 
 
 def test_the_station_refuses_to_sign_before_the_work_is_done(mechanic, db, clock):
     job = Job(mechanic, db, clock, "exciter-removal")
-    job.walk_to("removal-reason")
+    job.walk_to("removed-exciter")
     job.refused(sign("performer", DEMO_PINS["mech1"]), "out_of_order")
 
 
 def test_inspector_cannot_be_the_performer(login, db, clock):
     mech1, mech2 = login("mech1"), login("mech2")
+    exciter_removed(mech1, db, clock)
     job = Job(mech1, db, clock, "exciter-installation")
     job.walk_to("performer")
     job.ok(sign("performer", DEMO_PINS["mech1"]))

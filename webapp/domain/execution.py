@@ -14,15 +14,19 @@ from datetime import datetime
 from functools import cached_property
 from typing import Any, Literal
 
-from . import gates, readings, signoff
+from . import gates, readings, release, signoff, tag_handover
+from .authorisations import Authorisation
+from .engine import EngineState, check_channels_whole
 from .errors import RuleRefusal
 from .gates import ChannelClock, PowerOff, Tag
+from .parts import AllowedPart, Whereabouts, evaluate_part
 from .procedures import (
     Advisory,
     Check,
     DischargeWait,
     IgnitionRun,
     Lockout,
+    PartChange,
     Procedure,
     Reading,
     Sign,
@@ -34,9 +38,10 @@ from .procedures import (
 
 # Events a client may send, and the one the station writes itself when a job opens.
 CLIENT_EVENT_KINDS = ("acknowledged", "step_done", "breaker_tagged", "tag_taken_over",
-                      "tag_removed", "input_reconnected", "energised", "de_energised",
-                      "reading_recorded", "finding", "sparks_counted", "signed", "returned",
-                      "amendment")
+                      "tag_removed", "tag_handed_over", "tag_transfer_authorised",
+                      "tag_removal_authorised", "input_reconnected", "energised", "de_energised",
+                      "reading_recorded", "finding", "sparks_counted", "part_recorded", "signed",
+                      "returned", "amendment", "item_closed")
 STATION_EVENT_KINDS = ("job_opened",)
 EVENT_KINDS = STATION_EVENT_KINDS + CLIENT_EVENT_KINDS
 
@@ -54,13 +59,20 @@ COMPLETING_EVENT = {
     "reading": "reading_recorded",   # unless out of limits: then a finding completes it
     "torque": "reading_recorded",
     "spark_count": "sparks_counted",
+    "part": "part_recorded",              # unless it does not match the engine: then a finding
     "sign": "signed",
 }
 # Events that happen within the current step without completing it.
 IN_STEP_EVENTS = {"breaker_tagged": "lockout", "tag_removed": "lockout",
-                  "finding": ("reading", "torque", "spark_count")}
+                  "tag_removal_authorised": "lockout",
+                  "finding": ("reading", "torque", "spark_count", "part")}
+# Verdicts a finding must answer before the job goes on.
+NEEDS_FINDING = ("out of limits", "mismatch")
 # Events allowed whatever step the job is at. De-energising is never held back.
-ANYTIME_EVENTS = ("tag_taken_over", "input_reconnected", "de_energised", "returned")
+ANYTIME_EVENTS = ("tag_taken_over", "tag_handed_over", "tag_transfer_authorised",
+                  "input_reconnected", "de_energised", "returned", "item_closed")
+# Events that are no work on the job: who sends only these did not perform it.
+NOT_WORK = ("job_opened", "signed", "returned", "amendment", *gates.CONSENT_KINDS)
 
 StepStatus = Literal["done", "next", "waiting"]
 
@@ -113,6 +125,8 @@ class JobState:
     awaiting_finding: Mapping[str, Mapping[str, Any]] = field(default_factory=dict)
     returns: tuple[Mapping[str, Any], ...] = ()   # supervisors' returns, with their reasons
     amendments: tuple[Mapping[str, Any], ...] = ()  # corrections after certification
+    revision: str = ""   # the SHA-256 of the procedure revision the job pinned
+    workers: frozenset[int] = frozenset()  # everyone who recorded work (not only a signature)
 
     @cached_property
     def positions(self) -> dict[str, int]:
@@ -213,7 +227,8 @@ def opened_state(procedure: Procedure, opened: Mapping[str, Any]) -> JobState:
         raise ValueError("a job's event log starts with job_opened")
     configuration = Configuration.from_data(opened["data"])
     steps = procedure.steps_for(configuration.exciter_types, configuration.plug_types)
-    return JobState(procedure, configuration, tuple(steps))
+    return JobState(procedure, configuration, tuple(steps),
+                    revision=str(opened["data"].get("revision", "")))
 
 
 def job_state(procedure: Procedure, events: Sequence[Mapping[str, Any]]) -> JobState:
@@ -229,6 +244,9 @@ def job_state(procedure: Procedure, events: Sequence[Mapping[str, Any]]) -> JobS
 def apply_event(state: JobState, event: Mapping[str, Any]) -> JobState:
     """The state after one more stored event (the same as rebuilding from the whole log)."""
     kind, step_id = event["kind"], event["step_id"]
+    worker = None if kind in NOT_WORK else event.get("person_id")
+    if worker is not None and worker not in state.workers:
+        state = replace(state, workers=state.workers | {worker})
     position = state.positions.get(step_id) if step_id else None
     step = state.applicable[position] if position is not None else None
     if kind == "input_reconnected":
@@ -249,7 +267,7 @@ def apply_event(state: JobState, event: Mapping[str, Any]) -> JobState:
         completed = {k: v for k, v in state.completed.items()
                      if not isinstance(_step_of(state, k), Sign) and state.positions[k] < again}
         return replace(state, completed=completed, returns=(*state.returns, event))
-    if kind in ("reading_recorded", "sparks_counted") and step is not None:
+    if kind in ("reading_recorded", "sparks_counted", "part_recorded") and step is not None:
         return _with_reading(state, step, event)
     if kind == "finding" and step is not None:
         return _with_finding(state, step, event)
@@ -274,6 +292,99 @@ def apply_event(state: JobState, event: Mapping[str, Any]) -> JobState:
     return replace(state, completed=completed, power_off=power_off, clocks=clocks)
 
 
+def _job_channels(state: JobState) -> list[str]:
+    channel = state.configuration.channel
+    return [channel] if channel else ["A", "B"]
+
+
+def _connection_effects(state: JobState, step: Check) -> list[dict[str, Any]]:
+    """What ticking a check does to the engine's channels (stored with the event)."""
+    effects: list[dict[str, Any]] = []
+    for channel in _job_channels(state):
+        effects += [{"effect": "disturb", "what": w, "channel": channel} for w in step.disturbs]
+        effects += [{"effect": "restore", "what": w, "channel": channel} for w in step.restores]
+    if step.ignition_off:
+        effects += [{"effect": "de_energise", "channel": c} for c in ("A", "B")]
+    return effects
+
+
+def _check_energise(state: JobState, step: IgnitionRun, data: Mapping[str, Any],
+                    at: Circumstances) -> dict[str, Any]:
+    """Energising: every channel whole on the engine (whatever job opened it), and each
+    fitted exciter's own duty-cycle clock (carried across jobs and tablets) allows it."""
+    channels = _channels(step)
+    if at.engine is None:
+        raise RuleRefusal("engine_unknown", "The engine's state could not be read: nothing is "
+                          "energised without it.")
+    check_channels_whole(at.engine, channels)
+    gates.check_energise({c: at.engine.clock_for(c) for c in channels}, channels, at.now,
+                         at.device_now)
+    duty = [[p.on_max_s, p.off_min_s] for p in gates.duty_periods(step.duty_cycle)]
+    return {**data, "engine": [{"effect": "energise", "channel": c, "duty": duty}
+                               for c in channels]}
+
+
+def _release(state: JobState, at: Circumstances) -> dict[str, Any]:
+    """A certification's release statement, and the due checks a functional check meets."""
+    if at.engine is None:
+        raise RuleRefusal("engine_unknown", "The engine's state could not be read: no release "
+                          "to service is given without it.")
+    procedure = state.procedure
+    effects = release.passed_channel_checks(procedure.kind, state.readings)
+    work = (f"job {at.job_id}: {procedure.title}, shop procedure revision "
+            f"{state.revision[:12] or 'unknown'} (from {procedure.source.document}, "
+            f"{procedure.source.section}, {procedure.source.revision})")
+    statement = release.release_statement(at.engine, work, at.job_id, effects)
+    said = {"release": statement.as_data(), "engine": effects}
+    if not statement.released:
+        said["meaning"] = "Certified: work complete, not released to service"
+    return said
+
+
+def _check_item_closed(data: Mapping[str, Any], at: Circumstances) -> dict[str, Any]:
+    """An open item of the engine put right in this job: which one, and what was done."""
+    items = {i.id: i for i in (at.engine.open_items if at.engine else ())}
+    item = items.get(str(data.get("item", "")))
+    if item is None:
+        raise RuleRefusal("no_such_item", "That is not an open item of this engine.")
+    how = data.get("how")
+    if not isinstance(how, str) or not how.strip() or len(how.strip()) > 300:
+        raise readings.InputProblem("how", "Say what was done to put it right (at most 300 "
+                                    "characters), with the reference of the work.")
+    return {"item": item.id, "reference": item.reference, "text": item.text,
+            "how": how.strip(), "engine": [{"effect": "close_item", "item": item.id}]}
+
+
+def job_progress(state: JobState) -> str:
+    """Where a job stands, in the words of the job list: in work, returned, waiting for
+    inspection, waiting for certification, released, closed (not released)."""
+    if state.status == "complete":
+        certified = [e for e in state.completed.values()
+                     if e.get("kind") == "signed" and "release" in e.get("data", {})]
+        if certified and certified[-1]["data"]["release"].get("released"):
+            return "released"
+        return "closed, not released"
+    upcoming = state.next_step
+    if upcoming is not None and isinstance(upcoming.step, Sign) and not state.awaiting_finding:
+        if upcoming.step.role == "inspector":
+            return "waiting for inspection"
+        if upcoming.step.role == "certifying":
+            return "waiting for certification"
+    signed_since_return = any(e.get("kind") == "signed" for e in state.completed.values())
+    if state.returns and not signed_since_return:
+        return "returned"
+    return "in work"
+
+
+def _check_part(state: JobState, step: PartChange, data: Mapping[str, Any],
+                at: Circumstances) -> dict[str, Any]:
+    channel = state.configuration.channel
+    if at.engine is None or channel is None:
+        raise RuleRefusal("engine_unknown", "A part is recorded against the engine's state "
+                          "for one channel; it could not be read.")
+    return evaluate_part(step, data, channel, at.engine, at.allowed_parts, at.whereabouts)
+
+
 def _plug_at_work(state: JobState) -> dict[str, Any]:
     """The plug a wear reading belongs to: the job's channel's installed plug."""
     plugs = [c for c in state.configuration.components if c.get("kind") == "plug"]
@@ -281,6 +392,9 @@ def _plug_at_work(state: JobState) -> dict[str, Any]:
         raise RuleRefusal("plug_unknown", "A wear reading belongs to one plug, but this job "
                           f"has {len(plugs)} recorded: open the job for one channel.")
     plug = plugs[0]
+    if plug.get("id") is None:
+        raise RuleRefusal("plug_unknown", "No plug was recorded as fitted on this channel when "
+                          "the job opened, so the wear reading has no serial to follow.")
     return {"id": plug.get("id"), "part_number": plug.get("part_number"),
             "serial": plug.get("serial"), "channel": plug.get("channel")}
 
@@ -294,7 +408,7 @@ def _reading_entry(step: Step, event: Mapping[str, Any], attempt: int) -> dict[s
 def _with_reading(state: JobState, step: Step, event: Mapping[str, Any]) -> JobState:
     attempt = 1 + sum(1 for r in state.readings if r["step"] == step.id)
     readings = (*state.readings, _reading_entry(step, event, attempt))
-    if event["data"].get("verdict") == "out of limits":
+    if event["data"].get("verdict") in NEEDS_FINDING:
         return replace(state, readings=readings,
                        awaiting_finding={**state.awaiting_finding, step.id: event})
     return replace(state, readings=readings, completed={**state.completed, step.id: event})
@@ -310,8 +424,10 @@ def _with_finding(state: JobState, step: Step, event: Mapping[str, Any]) -> JobS
             break
     waiting = {k: v for k, v in state.awaiting_finding.items() if k != step.id}
     completed = dict(state.completed)
-    if event["data"].get("disposition") in ("replaced", "deferred"):
-        completed[step.id] = event  # re-tested: the step waits for the new reading
+    if event["data"].get("disposition") in ("replaced", "deferred") or step.kind == "part":
+        # A part that did not match is on the record with its finding; a reading re-tested
+        # waits for the new reading.
+        completed[step.id] = event
     return replace(state, readings=tuple(readings), awaiting_finding=waiting,
                    completed=completed)
 
@@ -343,6 +459,11 @@ class Circumstances:
     tags: Mapping[str, Tag] = field(default_factory=dict)
     names: Mapping[int, str] = field(default_factory=dict)
     roles: tuple[str, ...] = ()
+    authorisations: tuple[Authorisation, ...] = ()  # the signer's (not revoked), for `signed`
+    engine: EngineState | None = None      # the engine's state (parts, connections, clocks)
+    allowed_parts: tuple[AllowedPart, ...] = ()   # for a part step
+    whereabouts: Whereabouts = Whereabouts()      # of the serial an install step names
+    roles_of: Mapping[int, tuple[str, ...]] = field(default_factory=dict)  # people it names
 
 
 def needs_engine_tags(state: JobState, kind: str, step_id: str | None) -> bool:
@@ -365,22 +486,38 @@ def check_event(state: JobState, kind: str, step_id: str | None, data: Mapping[s
         raise RuleRefusal("unknown_event_kind", f"'{kind}' is not something this station "
                           "records; known: " + ", ".join(CLIENT_EVENT_KINDS) + ".")
     if kind == "amendment":
-        return signoff.check_amendment(state, step_id, data)
+        return signoff.check_amendment(state, step_id, data, at)
     if state.status != "open":
-        raise RuleRefusal("job_not_open", "This job is certified and closed: a correction is "
-                          "made as an amendment.")
+        raise RuleRefusal("job_not_open", f"This job is {job_progress(state)}: nothing more "
+                          "is recorded on it; a correction is made as an amendment by a "
+                          "supervisor, new work in a new job.")
     if kind == "tag_taken_over":
-        gates.check_tag_taken_over(data, at.tags, at.person_id)
-        return data
+        return tag_handover.check_tag_taken_over(data, at.tags, at.person_id)
+    if kind == "tag_handed_over":
+        return tag_handover.check_tag_handed_over(data, at.tags, at.person_id, at.roles_of)
+    if kind == "tag_transfer_authorised":
+        return tag_handover.check_tag_transfer_authorised(data, at.tags, at.person_id,
+                                                          at.roles, at.roles_of)
     if kind == "input_reconnected":
         if state.power_off is None:
             raise RuleRefusal("power_not_removed", "The input is not recorded as disconnected.")
-        return data
+        return {**data, "engine": [{"effect": "restore", "what": "input", "channel": c}
+                                   for c in _job_channels(state)]}
     if kind == "de_energised":
-        gates.check_de_energise(state.clocks, data.get("channel"))
-        return data
+        # Switching off is never held back: on by this job's log or by the engine's clocks.
+        engine_clocks = at.engine.channel_clocks() if at.engine is not None else {}
+        clocks = {c: (engine_clocks[c] if c in engine_clocks and engine_clocks[c].is_on
+                      else state.clocks.get(c, engine_clocks.get(c)))
+                  for c in {*state.clocks, *engine_clocks}}
+        gates.check_de_energise({c: k for c, k in clocks.items() if k is not None},
+                                data.get("channel"))
+        channel = data.get("channel")
+        return {**data, "engine": [{"effect": "de_energise", "channel": c}
+                                   for c in ([channel] if channel else ["A", "B"])]}
     if kind == "returned":
         return signoff.check_return(state, data, at)
+    if kind == "item_closed":
+        return _check_item_closed(data, at)
     target = state.step(step_id) if step_id else None
     if target is None:
         raise RuleRefusal("unknown_step", f"Step '{step_id}' is not part of this job's "
@@ -416,10 +553,11 @@ def _check_in_step(state: JobState, step: Step, kind: str, data: Mapping[str, An
                    at: Circumstances) -> Mapping[str, Any]:
     if isinstance(step, Lockout):
         if kind == "breaker_tagged":
-            gates.check_breaker_tagged(step, data, at.tags, at.job_id)
-        else:
-            gates.check_tag_removed(step, data, at.tags, at.person_id)
-        return data
+            return gates.check_breaker_tagged(step, data, at.tags, at.job_id)
+        if kind == "tag_removal_authorised":
+            return tag_handover.check_tag_removal_authorised(step, data, at.tags, at.person_id,
+                                                             at.roles, at.job_id)
+        return tag_handover.check_tag_removed(step, data, at.tags, at.person_id, at.job_id)
     if step.id not in state.awaiting_finding:
         raise RuleRefusal("no_reading_to_disposition", "A finding goes with an out-of-limits "
                           "reading; this step has none waiting.")
@@ -449,8 +587,9 @@ def _check_completion(state: JobState, target: StepProgress, data: Mapping[str, 
     elif isinstance(step, Lockout):
         missing = gates.lockout_complete(step, at.tags, at.job_id)
         if missing and step.action == "apply":
-            raise RuleRefusal("lockout_incomplete", "Tag every breaker of this step first: "
-                              + ", ".join(missing) + " not tagged for this job.",
+            raise RuleRefusal("lockout_incomplete", ("Write the number of the tag you find on "
+                              if step.confirm_existing else "Tag ") + "every breaker of this "
+                              "step first: " + ", ".join(missing) + " not tagged for this job.",
                               breakers=missing)
         if missing:
             raise RuleRefusal("tags_still_on", "Tags still hang on " + ", ".join(missing)
@@ -459,9 +598,15 @@ def _check_completion(state: JobState, target: StepProgress, data: Mapping[str, 
         gates.check_discharge_served(gates.discharge_requirement(step), state.power_off,
                                      at.now, at.device_now)
     elif isinstance(step, IgnitionRun):
-        gates.check_energise(state.clocks, _channels(step), at.now, at.device_now)
+        return _check_energise(state, step, data, at)
+    elif isinstance(step, PartChange):
+        return _check_part(state, step, data, at)
+
     elif isinstance(step, Sign):
-        return signoff.check_signature(state, target, at)
+        signed = dict(signoff.check_signature(state, target, at))
+        return {**signed, **_release(state, at)} if step.role == "certifying" else signed
+    if isinstance(step, Check) and (step.disturbs or step.restores or step.ignition_off):
+        return {**data, "engine": _connection_effects(state, step)}
     return data
 
 

@@ -18,11 +18,28 @@ from .errors import RuleRefusal
 from .procedures import DischargeWait, DutyCycle, Lockout
 from .units import parse_quantity, seconds
 
-TAG_EVENT_KINDS = ("breaker_tagged", "tag_taken_over", "tag_removed")
+# Consents a tag's move needs: its owner's hand-over, or a supervisor's authorisation when the
+# owner is gone (to another mechanic, or for the removal itself at a release step).
+CONSENT_KINDS = ("tag_handed_over", "tag_transfer_authorised", "tag_removal_authorised")
+TAG_EVENT_KINDS = ("breaker_tagged", "tag_taken_over", "tag_removed", *CONSENT_KINDS)
 MAX_TAG_LENGTH = 24
 
 
 # --- lockout / tagout ---------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class Consent:
+    """A standing permission to move a tag: given by its owner (`tag_handed_over`) or by a
+    supervisor for an absent owner; it lapses when the tag changes owner or comes off."""
+
+    kind: str               # one of CONSENT_KINDS
+    event_id: str
+    by: int                 # the owner who handed it over, or the authorising supervisor
+    to: int | None          # the incoming mechanic; None for a removal
+    job_id: int             # the job it was recorded on
+    at: str
+    reason: str = ""
+
 
 @dataclass(frozen=True)
 class Tag:
@@ -34,25 +51,54 @@ class Tag:
     job_id: int
     applied_by: int
     applied_at: str
+    owner_since: str                              # hung, or last changed owner
+    confirmed_in: frozenset[int] = frozenset()    # jobs that found it hanging and said so
+    consents: tuple[Consent, ...] = ()
+    handovers: int = 0                            # times it changed owner
+
+    def consent_for(self, person_id: int) -> Consent | None:
+        """The hand-over or authorisation that lets this person take the tag over, if any."""
+        return next((c for c in self.consents
+                     if c.kind != "tag_removal_authorised" and c.to == person_id), None)
+
+    def removal_authorised_in(self, job_id: int) -> Consent | None:
+        """A supervisor's absent-owner authorisation to take the tag off in this job."""
+        return next((c for c in self.consents
+                     if c.kind == "tag_removal_authorised" and c.job_id == job_id), None)
 
 
 def engine_tags(events: Iterable[Mapping[str, Any]]) -> dict[str, Tag]:
     """The tags active on an engine: a fold over its jobs' tag events in station order."""
     tags: dict[str, Tag] = {}
     for e in events:
-        data = e["data"]
+        data, kind = e["data"], e["kind"]
         number = str(data["tag"]).strip()  # as the checks read it: " T-1 " is tag T-1
-        if e["kind"] == "breaker_tagged":
+        tag, at = tags.get(number), e["received_at"]
+        if kind == "breaker_tagged" and data.get("confirmed_existing"):
+            if tag is not None:
+                tags[number] = replace(tag, confirmed_in=tag.confirmed_in | {e["job_id"]})
+        elif kind == "breaker_tagged":
             tags[number] = Tag(number, data["breaker"], e["person_id"], e["job_id"],
-                               e["person_id"], e["received_at"])
-        elif e["kind"] == "tag_taken_over" and number in tags:
-            tags[number] = replace(tags[number], owner_id=e["person_id"], job_id=e["job_id"])
-        elif e["kind"] == "tag_removed":
-            tags.pop(number, None)
+                               e["person_id"], at, at)
+        elif tag is None:
+            continue
+        elif kind == "tag_taken_over":
+            tags[number] = replace(tag, owner_id=e["person_id"], job_id=e["job_id"],
+                                   owner_since=at, consents=(), handovers=tag.handovers + 1)
+        elif kind == "tag_removed":
+            del tags[number]
+        elif kind in CONSENT_KINDS:
+            # An owner's later hand-over replaces their earlier one (they changed their mind).
+            kept = tuple(c for c in tag.consents
+                         if not (kind == "tag_handed_over" and c.kind == kind))
+            consent = Consent(kind, str(e.get("id", "")), e["person_id"], data.get("to"),
+                              e["job_id"], at, str(data.get("reason", "")))
+            tags[number] = replace(tag, consents=(*kept, consent))
     return tags
 
 
-def _tag_number(data: Mapping[str, Any]) -> str:
+def tag_number(data: Mapping[str, Any]) -> str:
+    """The tag number an event names, as written on the tag (surrounding spaces dropped)."""
     number = data.get("tag")
     if not isinstance(number, str) or not number.strip():
         raise RuleRefusal("tag_number_missing", "Write the number printed on the tag.")
@@ -64,8 +110,10 @@ def _tag_number(data: Mapping[str, Any]) -> str:
 
 
 def check_breaker_tagged(step: Lockout, data: Mapping[str, Any], tags: Mapping[str, Tag],
-                         job_id: int) -> None:
-    """A breaker of this lockout step opened, collared and tagged with a new tag."""
+                         job_id: int) -> dict[str, Any]:
+    """A breaker of this lockout step opened, collared and tagged with a new tag; or, at a
+    step that confirms existing tags, the number of a tag found hanging on it. Returns the
+    data to store (a confirmation names the tag's owner then)."""
     if step.action != "apply":
         raise RuleRefusal("wrong_event_for_step", "This step removes tags; it does not hang "
                           "new ones.")
@@ -74,62 +122,35 @@ def check_breaker_tagged(step: Lockout, data: Mapping[str, Any], tags: Mapping[s
     if breaker not in breakers:
         raise RuleRefusal("unknown_breaker", f"Breaker '{breaker}' is not one this step "
                           f"locks out ({', '.join(sorted(breakers))}).")
-    number = _tag_number(data)
-    if number in tags:
+    number = tag_number(data)
+    found = tags.get(number)
+    if found is not None and step.confirm_existing:
+        if found.breaker != breaker:
+            raise RuleRefusal("tag_elsewhere", f"Tag {number} hangs on {found.breaker}, not on "
+                              f"{breaker}: check the breaker and the number on the tag.")
+        if found.job_id == job_id or job_id in found.confirmed_in:
+            raise RuleRefusal("already_confirmed", f"Tag {number} already counts for this job.")
+        return {"breaker": breaker, "tag": number, "confirmed_existing": True,
+                "owner": found.owner_id}
+    if found is not None:
         raise RuleRefusal("tag_in_use", f"Tag {number} already hangs on breaker "
-                          f"{tags[number].breaker}; each tag has its own number.")
+                          f"{found.breaker}; each tag has its own number.")
+    on_breaker = sorted(t.number for t in tags.values() if t.breaker == breaker)
+    if step.confirm_existing and on_breaker:
+        # A number that does not match what hangs there is a misread, not a second tag.
+        raise RuleRefusal("tag_not_found", f"No tag {number} hangs on {breaker}; the station "
+                          f"has {', '.join(on_breaker)} there. Check the number on the tag.")
     if any(t.breaker == breaker and t.job_id == job_id for t in tags.values()):
         raise RuleRefusal("already_tagged", f"This job already has a tag on {breaker}.")
-
-
-def check_tag_taken_over(data: Mapping[str, Any], tags: Mapping[str, Tag],
-                         person_id: int) -> None:
-    """A handover: the incoming mechanic re-confirms the breaker open and takes the tag."""
-    number = _tag_number(data)
-    tag = tags.get(number)
-    if tag is None:
-        raise RuleRefusal("tag_not_active", f"No tag {number} hangs on this engine's breakers.")
-    if tag.owner_id == person_id:
-        raise RuleRefusal("already_owner", f"Tag {number} is already yours.")
-    if data.get("breaker_confirmed_open") is not True:
-        raise RuleRefusal("breaker_not_confirmed", f"Check that breaker {tag.breaker} is open "
-                          "and collared yourself before you take over its tag.")
-
-
-def check_tag_removed(step: Lockout, data: Mapping[str, Any], tags: Mapping[str, Tag],
-                      person_id: int) -> None:
-    """A tag removed at a release step: by its owner, or by the documented absent-owner path."""
-    if step.action != "release":
-        raise RuleRefusal("wrong_event_for_step", "Tags come off only at a release step.")
-    number = _tag_number(data)
-    tag = tags.get(number)
-    if tag is None:
-        raise RuleRefusal("tag_not_active", f"No tag {number} hangs on this engine's breakers.")
-    if tag.breaker not in {b.id for b in step.breakers}:
-        raise RuleRefusal("unknown_breaker", f"Tag {number} is on {tag.breaker}, which this "
-                          "step does not release.")
-    if tag.owner_id == person_id:
-        return
-    absent = data.get("absent_owner")
-    if absent is None:
-        raise RuleRefusal("tag_owner", f"Only the person who hung tag {number} removes it. "
-                          "If they have handed over, take the tag over first; if they are "
-                          "gone, follow the absent-owner procedure.")
-    if step.absent_owner is None:
-        raise RuleRefusal("absent_owner_not_allowed", "This procedure gives no absent-owner "
-                          "path: the tag's owner must come back and remove it.")
-    if not isinstance(absent, Mapping) or not all(
-            isinstance(absent.get(k), str) and absent[k].strip()
-            for k in ("reason", "supervisor")):
-        raise RuleRefusal("absent_owner_incomplete", "The absent-owner removal needs the reason "
-                          "(how the owner was sought) and the authorising supervisor.")
+    return {"breaker": breaker, "tag": number}
 
 
 def lockout_complete(step: Lockout, tags: Mapping[str, Tag], job_id: int) -> list[str]:
     """The breakers still to tag (apply) or to untag (release); empty when the step is met."""
-    if step.action == "apply":
+    if step.action == "apply":  # this job's own tags, or tags it found hanging and confirmed
         return [b.id for b in step.breakers
-                if not any(t.breaker == b.id and t.job_id == job_id for t in tags.values())]
+                if not any(t.breaker == b.id and (t.job_id == job_id or job_id in t.confirmed_in)
+                           for t in tags.values())]
     return sorted({t.breaker for t in tags.values()} & {b.id for b in step.breakers})
 
 

@@ -277,7 +277,14 @@ def evaluate_finding(data: Mapping[str, Any]) -> dict[str, Any]:
         if not isinstance(reference, str) or not reference.strip():
             raise InputProblem("reference", "A deferral needs its reference (the deferred "
                                "defect or work order number).")
-        stored["reference"] = reference.strip()
+        limit = data.get("limit")
+        if not isinstance(limit, str) or not limit.strip() or len(limit.strip()) > 60:
+            raise InputProblem("limit", "A deferral needs its limit: the hours, cycles or "
+                               "date by which it must be put right (at most 60 characters).")
+        stored.update(reference=reference.strip(), limit=limit.strip())
+        # A deferred defect is an open item of the engine until a later job closes it.
+        stored["engine"] = [{"effect": "defer", "text": stored["text"],
+                             "reference": stored["reference"], "limit": stored["limit"]}]
     return stored
 
 

@@ -3,14 +3,21 @@
 The rules a signature, a supervisor's return and an amendment after certification must
 pass, on top of the job's order of work (checked in `execution`). Pure: plain values in,
 a RuleRefusal or InputProblem out.
+
+Who signs what: a performer line only by someone who recorded work on the job, each line
+by a different person; the inspection by someone who did none of the work; the release to
+service by a supervisor who neither did the work nor inspected it. Every signature rests
+on an authorisation that covers its kind and the procedure, valid on the day.
 """
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Iterable, Mapping
+from datetime import date
 from typing import TYPE_CHECKING, Any
 
 from . import readings
+from .authorisations import Authorisation, authorisation_for
 from .errors import RuleRefusal
 from .procedures import Sign
 
@@ -28,13 +35,16 @@ def _is_sign(state: JobState, step_id: str) -> bool:
     return found is not None and isinstance(found.step, Sign)
 
 
-def check_amendment(state: JobState, step_id: str | None, data: Mapping[str, Any]
-                     ) -> dict[str, Any]:
-    """A correction after certification: who (the event's person), why and what; it makes a
-    new record revision and never overwrites the earlier one."""
+def check_amendment(state: JobState, step_id: str | None, data: Mapping[str, Any],
+                    at: Circumstances) -> dict[str, Any]:
+    """A correction after certification, by a supervisor: who (the event's person), why and
+    what; it makes a new record revision and never overwrites the earlier one."""
     if state.status != "complete":
         raise RuleRefusal("not_certified", "Amendments are for certified jobs; while a job is "
                           "open its steps are corrected by recording them again.")
+    if "supervisor" not in at.roles:
+        raise RuleRefusal("amendment_role", "Only a supervisor amends a certified record: "
+                          "tell a supervisor what needs correcting and why.")
     if step_id is not None and step_id not in state.positions:
         raise RuleRefusal("unknown_step", f"Step '{step_id}' is not part of this job.")
     stored: dict[str, Any] = {}
@@ -73,11 +83,13 @@ def awaiting_review(state: JobState) -> bool:
             and upcoming.step.role == "certifying")
 
 
-def check_signature(state: JobState, target: StepProgress, at: Circumstances
-                     ) -> dict[str, Any]:
-    """A signature needs the work it covers complete, and the right person for its meaning."""
-    step = target.step
-    assert isinstance(step, Sign)
+def _signed_by(state: JobState, role: str) -> dict[int, int]:
+    """Who signed a line of `role` in this revision of the job: person id -> step number."""
+    return {e["person_id"]: state.positions[k] + 1 for k, e in state.completed.items()
+            if e["kind"] == "signed" and e["data"].get("role") == role}
+
+
+def _check_prerequisites(state: JobState, target: StepProgress) -> None:
     missing = [f"step {s.number} ({s.id})" for s in state.steps[:target.number - 1]
                if s.status != "done" and not isinstance(s.step, Sign)]
     missing += [f"the finding for step {state.positions[k] + 1} ({k})"
@@ -85,13 +97,61 @@ def check_signature(state: JobState, target: StepProgress, at: Circumstances
     if missing:
         raise RuleRefusal("sign_prerequisites", "Not ready to sign; still to do: "
                           + ", ".join(missing) + ".", missing=missing)
-    performers = [e["person_id"] for k, e in state.completed.items()
-                  if e["kind"] == "signed" and e["data"].get("role") == "performer"]
-    if step.role in ("inspector", "certifying") and at.person_id in performers:
-        raise RuleRefusal("inspector_is_performer", "The person who performed the work cannot "
-                          f"also sign as {step.role}: another person signs here.")
-    if step.role == "certifying" and "supervisor" not in at.roles:
-        raise RuleRefusal("certifier_role", "Only a certifying supervisor signs the release "
-                          "to service.")
+
+
+def _check_signer(state: JobState, role: str, person_id: int, roles: Iterable[str],
+                  held: Iterable[Authorisation], today: date) -> Authorisation:
+    """The person may give this signature: the right relation to the work, and an
+    authorisation for it (returned: the record names it)."""
+    performers = _signed_by(state, "performer")
+    if role == "performer":
+        if person_id not in state.workers:
+            raise RuleRefusal("performer_did_no_work", "You recorded no work on this job: a "
+                              "performer signature comes from a person who did the work.")
+        if person_id in performers:
+            raise RuleRefusal("performer_signs_once", f"You already signed step "
+                              f"{performers[person_id]} as performer: the other performer "
+                              "line is signed by a second person who did the work.")
+    elif person_id in state.workers or person_id in performers:
+        verb = "inspects" if role == "inspector" else "certifies"
+        raise RuleRefusal("inspector_is_performer", f"You performed this work: another "
+                          f"person {verb} it.")
+    if role == "certifying":
+        if person_id in _signed_by(state, "inspector"):
+            raise RuleRefusal("certifier_is_inspector", "You inspected this work: another "
+                              "person certifies it for release to service.")
+        if "supervisor" not in roles:
+            raise RuleRefusal("certifier_role", "Only a certifying supervisor signs the "
+                              "release to service.")
+    return authorisation_for(held, role, state.procedure.ata, state.procedure.kind, today)
+
+
+def check_signature(state: JobState, target: StepProgress, at: Circumstances
+                    ) -> dict[str, Any]:
+    """A signature needs the work it covers complete, and the right person for its meaning;
+    the data stored with it names the authorisation it rests on (14 CFR 43.9(a)(4): the
+    certificate number and kind)."""
+    step = target.step
+    assert isinstance(step, Sign)
+    _check_prerequisites(state, target)
+    used = _check_signer(state, step.role, at.person_id, at.roles, at.authorisations,
+                         at.now.date())
     return {"role": step.role, "meaning": SIGNATURE_MEANINGS[step.role],
-            "scope": SIGNATURE_SCOPE}
+            "scope": SIGNATURE_SCOPE, "authorisation": used.licence_number,
+            "licence_kind": used.licence_kind, "authorisation_id": used.id}
+
+
+def signature_refusal(state: JobState, target: StepProgress, person_id: int,
+                      roles: Iterable[str], authorisations: Iterable[Authorisation],
+                      today: date) -> str | None:
+    """Why this person cannot give the signature of a sign step now (None: they can); the
+    same rule as `check_signature`, for screens that offer only what a person can sign."""
+    step = target.step
+    if not isinstance(step, Sign):
+        return None
+    try:
+        _check_prerequisites(state, target)
+        _check_signer(state, step.role, person_id, tuple(roles), tuple(authorisations), today)
+    except RuleRefusal as refusal:
+        return refusal.reason
+    return None

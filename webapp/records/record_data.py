@@ -42,6 +42,7 @@ from .record_parts import (
     tool_entries,
     wear_charts,
 )
+from .record_release import ReleaseLines, release_lines
 from .record_signatures import PersonLine, SignBlock, performers, sign_blocks_and_release
 from .record_steps import (
     DISPOSITION_WORDS,
@@ -99,6 +100,7 @@ class WorkRecord:
     sign_blocks: list[SignBlock]
     release: SignBlock | None
     limitations: list[str]
+    release_lines: ReleaseLines | None
     after_completion: list[str]
     chain_sha256: str
     chain_events: int
@@ -191,6 +193,9 @@ def gather(db: Database, job_id: int, now: datetime,
         wear_charts=wear_charts(db, row, state),
         performers=performers(events, row, state, who),
         sign_blocks=sign_blocks, release=release,
+        release_lines=release_lines(db, row["engine_id"], job_id, state, (
+            f"job {job_id}: {procedure.title} ({row['procedure_id']}), shop revision "
+            f"{row['revision_number']}")),
         limitations=[f"Deferred at step {r.step_number}: {r.finding} (reference {r.reference})"
                      for r in readings if r.disposition.startswith(DISPOSITION_WORDS["deferred"])],
         after_completion=([] if procedure.after_completion == NONE

@@ -19,7 +19,7 @@ from .record_entries import Entry, People, Who, station_time, step_of
 class TagLine:
     tag: str
     breaker: str
-    action: str                 # hung, taken over, removed, removed (absent owner)
+    action: str                 # hung, found hanging, handed over, taken over, removed, ...
     by: Who | None
     at: str
     job_id: int
@@ -35,6 +35,7 @@ class Handover:
     to_who: Who | None
     at: str
     job_id: int
+    consent: str = ""           # who consented, or which supervisor authorised it and why
 
 
 @dataclass(frozen=True)
@@ -56,7 +57,7 @@ def _tag_instances(events: Iterable[Mapping[str, Any]]) -> list[list[Mapping[str
     done: list[list[Mapping[str, Any]]] = []
     for e in events:
         number = str(e["data"].get("tag", "")).strip()
-        if e["kind"] == "breaker_tagged":
+        if e["kind"] == "breaker_tagged" and not e["data"].get("confirmed_existing"):
             active[number] = [e]
             done.append(active[number])
         elif number in active:
@@ -66,11 +67,65 @@ def _tag_instances(events: Iterable[Mapping[str, Any]]) -> list[list[Mapping[str
     return done
 
 
+_ACTIONS = {"breaker_tagged": "hung", "tag_taken_over": "taken over", "tag_removed": "removed",
+            "tag_handed_over": "handed over by its owner",
+            "tag_transfer_authorised": "transfer authorised (absent owner)",
+            "tag_removal_authorised": "removal authorised (absent owner)"}
+
+
+def _name(who: Who | None) -> str:
+    return who.text if who else "?"
+
+
+def _consent_text(consent: Mapping[str, Any] | None, who: People) -> str:
+    """Who let a tag move: its owner on their own log-in, or a supervisor, and why."""
+    if consent is None:
+        return "no consent recorded"
+    when = station_time(consent["received_at"])
+    if consent["kind"] == "tag_handed_over":
+        return f"consented by the owner, {_name(who(consent['person_id']))}, with PIN, {when}"
+    return (f"authorised by {_name(who(consent['person_id']))} (supervisor, owner absent) "
+            f"with PIN, {when}; reason: {consent['data'].get('reason', '')}")
+
+
+def _detail(e: Mapping[str, Any], owner: int, by_id: Mapping[str, Mapping[str, Any]],
+            who: People) -> tuple[str, str]:
+    """The action word and the details column for one tag event."""
+    data, kind = e["data"], e["kind"]
+    action = _ACTIONS[kind]
+    if kind == "breaker_tagged" and data.get("confirmed_existing"):
+        return "found hanging, confirmed", f"owner then {_name(who(data.get('owner')))}"
+    if kind == "tag_taken_over":
+        return action, "; ".join(filter(None, (
+            "breaker re-confirmed open" if data.get("breaker_confirmed_open") else "",
+            _consent_text(by_id.get(str(data.get("consent"))), who) if "consent" in data
+            else "")))
+    if kind == "tag_handed_over":
+        return action, f"to {_name(who(data.get('to')))}, consented with the owner's PIN"
+    if kind == "tag_transfer_authorised":
+        return action, (f"to {_name(who(data.get('to')))}; owner {_name(who(owner))} absent; "
+                        f"reason: {data.get('reason', '')}")
+    if kind == "tag_removal_authorised":
+        return action, f"owner {_name(who(owner))} absent; reason: {data.get('reason', '')}"
+    if kind == "tag_removed" and "absent_owner_authorisation" in data:
+        return ("removed (absent owner)", f"owner {_name(who(owner))} absent; " + _consent_text(
+            by_id.get(str(data["absent_owner_authorisation"])), who))
+    absent = data.get("absent_owner")
+    if kind == "tag_removed" and isinstance(absent, Mapping):
+        # Entries made before authorisations were recorded by the supervisor: the name was
+        # typed by whoever removed the tag, and the record says so.
+        return ("removed (absent owner)", f"owner {_name(who(owner))} absent; reason: "
+                f"{absent.get('reason', '')}; supervisor named by the remover, not recorded "
+                f"by them: {who.by_username(str(absent.get('supervisor', ''))).text}")
+    return action, ""
+
+
 def tags_and_handovers(db: Database, row: Mapping[str, Any], state: JobState,
                        who: People) -> tuple[list[TagLine], list[Handover]]:
     labels = {b.id: b.label for s in state.applicable if isinstance(s, Lockout)
               for b in s.breakers}
     engine_events = job_store.engine_events(db, row["engine_id"], gates.TAG_EVENT_KINDS)
+    by_id = {str(e["id"]): e for e in engine_events}
     lines: list[TagLine] = []
     handovers: list[Handover] = []
     for life in _tag_instances(engine_events):
@@ -80,24 +135,16 @@ def tags_and_handovers(db: Database, row: Mapping[str, Any], state: JobState,
         shown = f"{breaker} ({labels[breaker]})" if breaker in labels else breaker
         owner = life[0]["person_id"]
         for e in life:
-            data, detail = e["data"], ""
-            action = {"breaker_tagged": "hung", "tag_taken_over": "taken over",
-                      "tag_removed": "removed"}[e["kind"]]
+            number = str(e["data"]["tag"]).strip()
+            action, detail = _detail(e, owner, by_id, who)
             if e["kind"] == "tag_taken_over":
-                detail = "breaker re-confirmed open" if data.get("breaker_confirmed_open") else ""
-                handovers.append(Handover(str(data["tag"]).strip(), shown, who(owner),
-                                          who(e["person_id"]), station_time(e["received_at"]),
-                                          e["job_id"]))
+                consent = by_id.get(str(e["data"].get("consent")))
+                handovers.append(Handover(
+                    number, shown, who(owner), who(e["person_id"]),
+                    station_time(e["received_at"]), e["job_id"],
+                    _consent_text(consent, who) if consent or "consent" in e["data"] else ""))
                 owner = e["person_id"]
-            absent = data.get("absent_owner")
-            if e["kind"] == "tag_removed" and isinstance(absent, Mapping):
-                action = "removed (absent owner)"
-                supervisor = who.by_username(str(absent.get("supervisor", "")))
-                owner_who = who(owner)
-                detail = (f"owner {owner_who.text if owner_who else '?'} absent; "
-                          f"reason: {absent.get('reason', '')}; authorised by "
-                          f"{supervisor.text}")
-            lines.append(TagLine(str(data["tag"]).strip(), shown, action, who(e["person_id"]),
+            lines.append(TagLine(number, shown, action, who(e["person_id"]),
                                  station_time(e["received_at"]), e["job_id"],
                                  e["job_id"] != row["id"], detail))
     return lines, handovers

@@ -10,7 +10,7 @@ from typing import Any
 from ..charts import wear_chart_svg
 from ..domain import wear
 from ..domain.execution import JobState
-from ..domain.procedures import Reading
+from ..domain.procedures import PartChange, Reading
 from ..shown import unit_label
 from ..store import Database
 from ..store import wear as wear_store
@@ -59,11 +59,39 @@ def tool_entries(state: JobState, numbers: Mapping[str, int], who: People) -> li
     return lines
 
 
+def _part_text(r: Mapping[str, Any]) -> str:
+    """A part step's fields as the record prints them (every field, none left out)."""
+    usage = r.get("usage") or {}
+    used = "engine usage not recorded"
+    if usage:
+        used = f"engine at {usage['engine_hours']:g} h, {usage['starts']} starts"
+        if "continuous_ignition_hours" in usage:
+            used += f", {usage['continuous_ignition_hours']:g} h continuous ignition"
+    if r.get("action") == "remove":
+        text = (f"REMOVED from channel {r['channel']}: P/N {r['part_number']}, S/N {r['serial']}"
+                f"; {'unserviceable' if r['status'] == 'unserviceable' else 'removed serviceable'}"
+                f", reason {r['reason']}, tag {r['tag']}; {used}")
+    else:
+        text = (f"FITTED on channel {r['channel']}: P/N {r['part_number']}"
+                f"{' (alternate)' if r.get('interchangeability') == 'alternate' else ''}, "
+                f"S/N {r['serial']}; release certificate {r['release']}, {r['condition']}; "
+                f"{used}")
+    expected = r.get("expected")
+    if r.get("verdict") == "mismatch" and isinstance(expected, Mapping):
+        text += (f". MISMATCH: the station had P/N {expected['part_number']} S/N "
+                 f"{expected['serial']} fitted here (see the finding)")
+    return text
+
+
 def recorded_parts(state: JobState, numbers: Mapping[str, int], who: People) -> list[Entry]:
     lines = []
     for r in state.readings:
         step = step_of(state, r["step"])
-        if isinstance(step, Reading) and step.value == "text" and _PART_READING.search(step.id):
+        if isinstance(step, PartChange):
+            lines.append(Entry(step.text.strip().split(".")[0], who(r.get("person_id")),
+                               station_time(r.get("received_at")), numbers.get(step.id),
+                               _part_text(r)))
+        elif isinstance(step, Reading) and step.value == "text" and _PART_READING.search(step.id):
             lines.append(Entry(step.text.strip(), who(r.get("person_id")),
                                station_time(r.get("received_at")), numbers.get(step.id),
                                str(r.get("text", ""))))

@@ -18,8 +18,9 @@ _MEANING_WORDS = {"perform": "performer", "inspect": "inspector", "certif": "cer
                   "releas": "certifying"}
 
 
-# The kind of certificate a signer's authorisation number is (14 CFR 43.9(a)(4)): the
-# station issues signing authority under the organisation's approval.
+# The kind of certificate a signer's authorisation number is (14 CFR 43.9(a)(4)). A
+# signature stores the licence kind of the authorisation it rests on; this is printed only
+# for one that has none stored (an amendment, a record signed before authorisations).
 AUTHORISATION_KIND = "organisation authorisation"
 
 

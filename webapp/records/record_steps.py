@@ -70,8 +70,9 @@ def tags_by_step(events: Sequence[Mapping[str, Any]]) -> dict[str, str]:
         if e["kind"] in ("breaker_tagged", "tag_removed") and e["step_id"]:
             number = str(e["data"].get("tag", "")).strip()
             said.setdefault(e["step_id"], []).append(
-                f"{number} on {e['data']['breaker']}" if e["kind"] == "breaker_tagged"
-                else f"{number} removed")
+                f"{number} on {e['data']['breaker']}"
+                + (" (found hanging)" if e["data"].get("confirmed_existing") else "")
+                if e["kind"] == "breaker_tagged" else f"{number} removed")
     return {step: "; ".join(words) for step, words in said.items()}
 
 

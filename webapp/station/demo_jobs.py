@@ -22,12 +22,14 @@ from ..domain.procedures import (
     DischargeWait,
     IgnitionRun,
     Lockout,
+    PartChange,
     Reading,
     Sign,
     SparkCount,
     Torque,
 )
 from ..records.identity import StationAuthority
+from ..store import engines
 from ..store.people import Person
 from . import recording
 
@@ -70,14 +72,41 @@ def reading_data(step: Reading | Torque) -> dict[str, Any]:
     return data
 
 
+DEMO_USAGE = {"engine_hours": 812, "starts": 760, "continuous_ignition_hours": 150}
+
+
+def part_data(db: store.Database, job_id: int, step: PartChange) -> dict[str, Any]:
+    """A demo part step: the part the engine has fitted comes off (failed, unserviceable); a
+    new one of the position's first allowed part number goes on, with a new serial."""
+    job = recording.load_job(db, job_id)
+    engine_id, channel = job.row["engine_id"], job.state.configuration.channel or "A"
+    if step.action == "remove":
+        fitted = engines.current(db, engine_id).fitted(step.part, channel)
+        assert fitted is not None, f"nothing fitted as the {step.part} on channel {channel}"
+        return {"part_number": fitted.part_number, "serial": fitted.serial,
+                "status": "unserviceable", "reason": "failed", "tag": f"U-{job_id:04d}",
+                "usage": DEMO_USAGE}
+    allowed = next(a for a in engines.allowed_parts(db, engine_id)
+                   if a.fits(step.part, channel))
+    return {"part_number": allowed.part_number, "serial": f"N{job_id:03d}-{step.part[:2].upper()}"
+            f"{channel}", "release": f"DEMO-REL-{job_id:04d}", "condition": "new",
+            "usage": DEMO_USAGE}
+
+
 def walk(db: store.Database, job_id: int, *, by: Person, now: datetime,
          until: str | None = None, signers: Mapping[str, Signer] | None = None,
-         authority: StationAuthority | None = None) -> datetime:
-    """Record the job's steps in order, as `by` (sign steps as the signer named for them),
-    up to the step `until` (not included) or the end. Returns the clock after the walk;
-    raises WalkRefused when the station refuses an entry."""
+         authority: StationAuthority | None = None,
+         workers: Mapping[str, Person] | None = None,
+         deferrals: Mapping[str, Mapping[str, Any]] | None = None) -> datetime:
+    """Record the job's steps in order, as `by` (a step named in `workers` as the person
+    named for it, sign steps as the signer named for them), up to the step `until` (not
+    included) or the end. A step named in `deferrals` records that reading (out of limits)
+    and a deferred finding (text, reference, limit). Returns the clock after the walk; raises
+    WalkRefused when the station refuses an entry."""
 
-    def record(kind: str, step_id: str, data: dict[str, Any], person: Person = by) -> None:
+    def record(kind: str, step_id: str, data: dict[str, Any],
+               person: Person | None = None) -> None:
+        person = person or (workers or {}).get(step_id, by)
         outcome = recording.record_event(db, job_id, event_id=str(uuid.uuid4()), kind=kind,
                                          step_id=step_id, data=data, device_time=None,
                                          person=person, now=now, authority=authority)
@@ -104,8 +133,14 @@ def walk(db: store.Database, job_id: int, *, by: Person, now: datetime,
         elif isinstance(step, DischargeWait):
             now += DISCHARGE_PAST
             record("step_done", step.id, {})
+        elif step.id in (deferrals or {}):
+            deferral = dict((deferrals or {})[step.id])
+            record("reading_recorded", step.id, deferral.pop("reading"))
+            record("finding", step.id, {**deferral, "disposition": "deferred"})
         elif isinstance(step, (Reading, Torque)):
             record("reading_recorded", step.id, reading_data(step))
+        elif isinstance(step, PartChange):
+            record("part_recorded", step.id, part_data(db, job_id, step))
         elif isinstance(step, IgnitionRun):
             now += DUTY_REST
             record("energised", step.id, {})

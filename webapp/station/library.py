@@ -7,14 +7,14 @@ from datetime import datetime
 from pathlib import Path
 
 from .. import store
-from ..domain.procedures import (
-    Procedure,
+from ..domain.procedure_files import (
     ProcedureInvalid,
     ProcedureProblem,
     content_hash,
     normalise_text,
     parse_procedure,
 )
+from ..domain.procedures import Procedure
 from ..resources import shipped_dir
 from ..store import procedures as stored
 

@@ -24,17 +24,19 @@ from ..domain.execution import (
     apply_event,
     check_event,
     configuration_for,
+    job_progress,
     needs_engine_tags,
 )
 from ..domain.gates import Tag
-from ..domain.procedures import procedure_of_revision
+from ..domain.procedure_files import procedure_of_revision
+from ..domain.procedures import PartChange
 from ..domain.readings import InputProblem
 from ..records import identity
 from ..records.identity import StationAuthority
 from ..records.record_entries import station_time
 from ..records.record_signatures import AUTHORISATION_KIND
 from ..records.signing import StampBox
-from ..store import fleet, jobs, people, procedures, signers
+from ..store import authorisations, engines, fleet, jobs, people, procedures, signers
 from ..store.job_states import Job, NotFound, load_job, remember
 from ..store.people import Person
 
@@ -71,8 +73,8 @@ def open_job(db: store.Database, *, procedure_id: str, engine_id: int, channel: 
         if revision is None:
             raise NotFound(f"no approved procedure '{procedure_id}'")
         procedure = procedure_of_revision(revision["hash"], revision["content"])
-        configuration = configuration_for(procedure, engine["model"], engine["components"],
-                                          channel)
+        configuration = configuration_for(procedure, engine["model"],
+                                          effectivity_parts(db, engine), channel)
         job_id = jobs.create_job(db, engine_id=engine_id, procedure_id=procedure_id,
                                  revision_hash=revision["hash"], channel=channel,
                                  opened_by=person.id, now=now)
@@ -91,13 +93,16 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
     """Check an event against the rules and append it; the same UUID twice stores once.
 
     A signature (`signed`) carries the person's PIN in `data`; it is used to unseal their
-    key and sign the PDF record, and is never stored."""
+    key and sign the PDF record, and is never stored. A tag's hand-over or a supervisor's
+    authorisation for an absent owner carries the PIN too: it proves who consents (wrong
+    PINs counted and throttled as for signatures); nothing is signed or printed for it."""
     signing = kind in ("signed", "amendment")
-    pin = str(data.pop("pin", "")) if signing else None
+    consenting = kind in gates.CONSENT_KINDS
+    pin = str(data.pop("pin", "")) if signing or consenting else None
     if kind == "signed":
         data = {}
-    signer, printed = None, None
-    if signing and jobs.event(db, event_id) is None:
+    signer, printed, pin_proved = None, None, False
+    if (signing or consenting) and jobs.event(db, event_id) is None:
         # The PIN's key derivation (a third of a second) and printing the record (most of a
         # second) run before the job's log is locked for writing, so other tablets' entries
         # do not wait for them.
@@ -113,6 +118,8 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
             return Outcome("refused", refusal=refusal)
         if kind == "signed":
             printed = _print_ahead(db, job_id, step_id, dict(data), device_time, person, now)
+        if consenting:
+            signer, pin_proved = None, True
     with store.writing(db):
         existing = jobs.event(db, event_id)
         if existing is not None:
@@ -133,23 +140,30 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
                                 kind=kind, step_id=step_id, data=data, rule=refusal.rule,
                                 reason=refusal.reason, now=now)
             return Outcome("refused", refusal=refusal)
+        if pin_proved:
+            signers.clear_pin_failures(db, person.id)
         if signer is not None:
             signers.clear_pin_failures(db, person.id)
-            data.update(signer.manifestation)
+            # The rule's authorisation (licence number and kind) wins over the person's
+            # staff number, which an amendment prints.
+            data = {**signer.manifestation, **data}
             if printed is None or printed.head_hash != job.head["hash"]:
                 printed = None  # someone wrote in between: print again, now under the lock
         record = _chain(db, job_id=job_id, event_id=event_id, kind=kind, step_id=step_id,
                         data=data, person_id=person.id, device_time=device_time, now=now,
                         last=job.head)
         after = apply_event(job.state, record)
+        if at.engine is not None:
+            engines.record_event_effects(db, job.row["engine_id"], at.engine, record)
         if signer is not None:
             if printed is None:
                 # An amendment's record prints the amendment itself, so it is printed here.
                 printed = _print_for_signing(db, job_id, job.state if kind == "signed"
                                              else after, job.head["hash"], now)
             _sign_record(db, job_id, after, record, signer, printed, now)
-        if after.status != job.row["status"]:
-            jobs.set_job_status(db, job_id, after.status)
+        progress = job_progress(after)
+        if (after.status, progress) != (job.row["status"], job.row.get("progress")):
+            jobs.set_job_status(db, job_id, after.status, progress)
     remember(record["hash"], after)  # only once committed
     return Outcome("stored", event=record)
 
@@ -160,12 +174,29 @@ def _circumstances(db: store.Database, job: Job, kind: str, step_id: str | None,
     """What the rules need to know beyond the job's own log (the engine's tags, who is who)."""
     tags = (engine_tags(db, job.row["engine_id"])
             if needs_engine_tags(job.state, kind, step_id) else {})
-    if kind == "tag_removed" and isinstance(data.get("absent_owner"), dict):
-        _check_authorising_supervisor(db, data["absent_owner"])
+    roles_of = _named_person(db, data) if kind in gates.CONSENT_KINDS else {}
     return Circumstances(now=now, device_now=_device_time(device_time), person_id=person.id,
                          job_id=job.row["id"], tags=tags,
                          names=people.names_by_id(db, {t.owner_id for t in tags.values()}),
-                         roles=person.roles)
+                         roles=person.roles, roles_of=roles_of,
+                         authorisations=(tuple(authorisations.held_by(db, person.id))
+                                         if kind == "signed" else ()),
+                         **_engine_circumstances(db, job, kind, step_id, data))
+
+
+def _engine_circumstances(db: store.Database, job: Job, kind: str, step_id: str | None,
+                          data: dict[str, Any]) -> dict[str, Any]:
+    """The engine's kept state (every event may change it), and for a part step what the
+    position may take and where the named serial is now."""
+    engine_id = job.row["engine_id"]
+    found: dict[str, Any] = {"engine": engines.current(db, engine_id)}
+    target = job.state.step(step_id) if step_id and kind == "part_recorded" else None
+    if target is not None and isinstance(target.step, PartChange):
+        found["allowed_parts"] = tuple(engines.allowed_parts(db, engine_id))
+        serial = data.get("serial")
+        if isinstance(serial, str) and serial.strip():
+            found["whereabouts"] = engines.whereabouts(db, target.step.part, serial.strip())
+    return found
 
 
 @dataclass(frozen=True)
@@ -193,7 +224,7 @@ def _unlock_signer(db: store.Database, person: Person, pin: str,
     since = now - timedelta(minutes=PIN_LOCK_MINUTES)
     if signers.pin_failures_since(db, person.id, since) >= PIN_MAX_FAILURES:
         raise RuleRefusal("pin_throttled", f"Too many wrong PINs: wait {PIN_LOCK_MINUTES} "
-                          "minutes before signing again.")
+                          "minutes before using your PIN again.")
     enrolment = identity.Enrolment(cert_pem=enrolled["cert_pem"],
                                    sealed=identity.SealedKey.from_json(enrolled["sealed_key"]))
     try:
@@ -214,6 +245,7 @@ def signatures_of(state: JobState) -> list[dict[str, Any]]:
         if event is not None and event["kind"] == "signed":
             found.append({"step": step.id, "name": event["data"]["signer_name"],
                           "authorisation": event["data"].get("authorisation"),
+                          "kind": event["data"].get("licence_kind"),
                           "meaning": event["data"]["meaning"],
                           "scope": event["data"].get("scope"),
                           "signed_at": event["received_at"]})
@@ -271,10 +303,11 @@ def _stamp_text(data: dict[str, Any], at: datetime) -> str:
     meaning), in lines short enough for the stamp box."""
     meaning = (f"Meaning: {data['meaning']} ({data['scope']})" if "scope" in data
                else f"Meaning: {data['meaning']}")
+    licence = (f"Authorisation no. {data.get('authorisation') or 'none recorded'} "
+               f"({data.get('licence_kind') or AUTHORISATION_KIND})")
     return "\n".join((
         f"Signed electronically by {data['signer_name']}",
-        f"Authorisation no. {data.get('authorisation') or 'none recorded'} "
-        f"({AUTHORISATION_KIND})",
+        *textwrap.wrap(licence, STAMP_LINE_CHARACTERS),
         *textwrap.wrap(meaning, STAMP_LINE_CHARACTERS),
         f"Date and time: {station_time(at)}"))
 
@@ -311,12 +344,30 @@ def _device_time(text: str | None) -> datetime | None:
     return datetime.fromisoformat(text) if text else None
 
 
-def _check_authorising_supervisor(db: store.Database, absent: dict[str, Any]) -> None:
-    supervisor = people.person_by_username(db, str(absent.get("supervisor", "")).strip())
-    if supervisor is None or not supervisor.active or not supervisor.has("supervisor"):
-        raise RuleRefusal("absent_owner_authority", "The absent-owner removal must be "
-                          "authorised by a supervisor enrolled on this station (give their "
-                          "username).")
+def _named_person(db: store.Database, data: dict[str, Any]) -> dict[int, tuple[str, ...]]:
+    """The person a tag's hand-over names in `to` (a username or a person id), written into
+    `data` as their id, with their roles; nobody when no active person has that name."""
+    to = data.get("to")
+    found = (people.person_by_username(db, to.strip()) if isinstance(to, str)
+             else people.person_by_id(db, to) if isinstance(to, int) and not isinstance(to, bool)
+             else None)
+    if found is None or not found.active:
+        return {}
+    data["to"] = found.id
+    return {found.id: found.roles}
+
+
+def effectivity_parts(db: store.Database, engine: dict[str, Any]) -> list[dict[str, Any]]:
+    """The parts a procedure's effectivity is checked against: those fitted, and for a
+    position left empty (an exciter off for repair), the part numbers it may take."""
+    fitted = list(engine["components"])
+    held = {(c["kind"], c["channel"]) for c in fitted}
+    for allowed in engines.allowed_parts(db, engine["id"]):
+        for channel in ([allowed.channel] if allowed.channel else ["A", "B"]):
+            if (allowed.kind, channel) not in held:
+                fitted.append({"id": None, "kind": allowed.kind, "channel": channel,
+                               "type": allowed.type, "part_number": None, "serial": None})
+    return fitted
 
 
 @dataclass(frozen=True)
@@ -333,12 +384,13 @@ class Openable:
 def openable_procedures(db: store.Database, engine: dict[str, Any]) -> list[Openable]:
     """The approved procedures whose effectivity fits this engine, per channel choice."""
     found = []
+    parts = effectivity_parts(db, engine)
     for revision in procedures.approved_revisions(db):
         procedure = procedure_of_revision(revision["hash"], revision["content"])
         choices: list[str | None] = ["A", "B"] if procedure.channel == "one" else [None]
         for channel in choices:
             try:
-                configuration_for(procedure, engine["model"], engine["components"], channel)
+                configuration_for(procedure, engine["model"], parts, channel)
             except RuleRefusal:
                 continue
             found.append(Openable(procedure.id, procedure.title, procedure.kind,

@@ -5,7 +5,7 @@ from __future__ import annotations
 import random
 from datetime import date, datetime, timedelta
 from pathlib import Path
-from typing import Literal
+from typing import Any, Literal
 
 import yaml
 from pydantic import BaseModel, ConfigDict, Field
@@ -13,26 +13,37 @@ from pydantic import BaseModel, ConfigDict, Field
 from .. import store
 from ..records.identity import StationAuthority
 from ..resources import shipped_dir
-from ..store import fleet, people
+from ..store import engines, fleet, people
 from .accounts import enrol
+from .authorising import authorise
 
 
 class _Strict(BaseModel):
     model_config = ConfigDict(extra="forbid")
 
 
+class DemoAuthorisation(_Strict):
+    signatures: list[str]
+    scope: list[str]
+    licence_kind: str
+    licence_number: str
+    expires_on: date
+
+
 class DemoPerson(_Strict):
     username: str
     full_name: str
     roles: list[str] = Field(min_length=1)
-    authorisation: str | None
+    authorisation: str | None   # the staff number printed with their entries
     password: str
     pin: str | None = None
+    authorisations: list[DemoAuthorisation] = Field(default_factory=list)  # what they sign
 
 
 class Part(_Strict):
     part_number: str
     type: str
+    alternates: list[str] = Field(default_factory=list)  # interchangeable part numbers
 
 
 class DemoEngine(_Strict):
@@ -73,6 +84,16 @@ class Operator(_Strict):
     approval: str
 
 
+class Deferral(_Strict):
+    """A reading out of limits at a step of a demo job, deferred with its reference and limit
+    (an open item of the engine until a later job closes it)."""
+
+    reading: dict[str, Any]
+    text: str
+    reference: str
+    limit: str
+
+
 class DemoJob(_Strict):
     """A job the demo starts with: opened and worked by `by`, up to the step `until` (not
     included; none: to the end), each sign step signed by the person named for it."""
@@ -84,6 +105,8 @@ class DemoJob(_Strict):
     hours_ago: float = Field(default=3, gt=0)    # when the walk started
     until: str | None = None
     signers: dict[str, str] = Field(default_factory=dict)  # sign step id -> username
+    workers: dict[str, str] = Field(default_factory=dict)  # step id -> username, if not `by`
+    deferrals: dict[str, Deferral] = Field(default_factory=dict)  # step id -> its deferral
 
 
 class Scenario(_Strict):
@@ -113,9 +136,13 @@ def load_scenario(db: store.Database, scenario: Scenario, now: datetime,
     With the station's `authority`, people with a PIN get their signing keys."""
     rng = random.Random(scenario.seed)
     for p in scenario.people:
-        enrol(db, username=p.username, full_name=p.full_name, roles=p.roles,
-              password=p.password, authorisation=p.authorisation, now=now,
-              pin=p.pin if authority is not None else None, authority=authority)
+        enrolled = enrol(db, username=p.username, full_name=p.full_name, roles=p.roles,
+                         password=p.password, authorisation=p.authorisation, now=now,
+                         pin=p.pin if authority is not None else None, authority=authority)
+        for a in p.authorisations:
+            authorise(db, person_id=enrolled.id, signatures=a.signatures, scope=a.scope,
+                      licence_kind=a.licence_kind, licence_number=a.licence_number,
+                      expires_on=a.expires_on, granted_by=None, now=now)
     explicit = {(h.engine, h.channel): h for h in scenario.plug_history}
     with store.writing(db):
         fleet.set_operator(db, scenario.operator.name, scenario.operator.approval)
@@ -126,21 +153,22 @@ def load_scenario(db: store.Database, scenario: Scenario, now: datetime,
             for e in aircraft.engines:
                 engine_id = fleet.add_engine(db, aircraft_id, e.position, scenario.engine_model,
                                              e.serial)
+                _allow_parts(db, engine_id, aircraft, scenario)
                 for channel in ("A", "B"):
                     serial_number += 1
-                    fleet.add_component(db, kind="exciter",
-                                        part_number=aircraft.exciter.part_number,
-                                        serial=f"XE-{serial_number}", type=aircraft.exciter.type,
-                                        engine_id=engine_id, channel=channel)
-                    fleet.add_component(db, kind="lead",
-                                        part_number=scenario.lead_part_numbers[channel],
-                                        serial=f"XL-{serial_number}", type="ht-lead",
-                                        engine_id=engine_id, channel=channel)
-                    plug_id = fleet.add_component(db, kind="plug",
-                                                  part_number=aircraft.plug.part_number,
-                                                  serial=f"XP-{serial_number}",
-                                                  type=aircraft.plug.type,
-                                                  engine_id=engine_id, channel=channel)
+                    fitted = {"exciter": (aircraft.exciter.part_number, f"XE-{serial_number}",
+                                          aircraft.exciter.type),
+                              "lead": (scenario.lead_part_numbers[channel],
+                                       f"XL-{serial_number}", "ht-lead"),
+                              "plug": (aircraft.plug.part_number, f"XP-{serial_number}",
+                                       aircraft.plug.type)}
+                    ids = {}
+                    for kind, (part_number, serial, type_) in fitted.items():
+                        ids[kind] = fleet.add_component(db, kind=kind, part_number=part_number,
+                                                        serial=serial, type=type_,
+                                                        engine_id=engine_id, channel=channel)
+                        engines.set_starting_part(db, engine_id, kind, channel, ids[kind])
+                    plug_id = ids["plug"]
                     history = explicit.get((e.serial, channel))
                     readings = (history.readings if history is not None
                                 else _ordinary_wear(scenario.ordinary_wear, rng, now.date()))
@@ -155,6 +183,17 @@ def load_scenario(db: store.Database, scenario: Scenario, now: datetime,
                                 history is None
                                 and scenario.ordinary_wear.continuous_ignition_estimated),
                             "source": "demo history"})
+
+
+def _allow_parts(db: store.Database, engine_id: int, aircraft: DemoAircraft,
+                 scenario: Scenario) -> None:
+    """The fleet configuration: the part numbers each position may take."""
+    for kind, part in (("exciter", aircraft.exciter), ("plug", aircraft.plug)):
+        engines.allow_part(db, engine_id, kind, None, part.part_number, part.type)
+        for alternate in part.alternates:
+            engines.allow_part(db, engine_id, kind, None, alternate, part.type, "alternate")
+    for channel, part_number in scenario.lead_part_numbers.items():
+        engines.allow_part(db, engine_id, "lead", channel, part_number, "ht-lead")
 
 
 def _ordinary_wear(wear: OrdinaryWear, rng: random.Random, today: date) -> list[WearReading]:
@@ -195,7 +234,9 @@ def load_demo_jobs(db: store.Database, scenario: Scenario, now: datetime,
         demo_jobs.walk(db, job_id, by=person(job.by), now=start + demo_jobs.STEP_GAP,
                        until=job.until, authority=authority,
                        signers={step: demo_jobs.Signer(person(u), pins[u] or "")
-                                for step, u in job.signers.items()})
+                                for step, u in job.signers.items()},
+                       workers={step: person(u) for step, u in job.workers.items()},
+                       deferrals={step: d.model_dump() for step, d in job.deferrals.items()})
         opened.append(job_id)
     return opened
 

@@ -14,7 +14,7 @@ from typing import Any
 from sqlite_utils import Database
 
 from ..domain.execution import JobState, job_state
-from ..domain.procedures import procedure_of_revision
+from ..domain.procedure_files import procedure_of_revision
 from . import jobs, procedures
 
 

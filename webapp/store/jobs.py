@@ -14,12 +14,14 @@ def create_job(db: Database, *, engine_id: int, procedure_id: str, revision_hash
                channel: str | None, opened_by: int, now: datetime) -> int:
     return new_row_id(db.table("jobs").insert({
         "engine_id": engine_id, "procedure_id": procedure_id, "revision_hash": revision_hash,
-        "channel": channel, "status": "open", "opened_by": opened_by,
+        "channel": channel, "status": "open", "progress": "in work", "opened_by": opened_by,
         "opened_at": now.isoformat()}))
 
 
-def set_job_status(db: Database, job_id: int, status: str) -> None:
-    db.execute("update jobs set status = ? where id = ?", [status, job_id])
+def set_job_status(db: Database, job_id: int, status: str, progress: str) -> None:
+    """The job's status (open, complete) and where it stands in the job list's words."""
+    db.execute("update jobs set status = ?, progress = ? where id = ?",
+               [status, progress, job_id])
 
 
 _JOB_SELECT = (

@@ -155,3 +155,13 @@ def authorisations(db: Database) -> None:
         not_null={"person_id", "signatures", "scope", "licence_kind", "licence_number",
                   "expires_on", "granted_at"})
     db.table("authorisations").create_index(["person_id"])
+
+
+@MIGRATIONS(name="0006_job_progress")
+def job_progress(db: Database) -> None:
+    # Where each job stands in the words of the job list (in work, returned, waiting for
+    # inspection, waiting for certification, released, closed, not released): derived from
+    # the job's events by the domain and written with the event that changes it.
+    db.table("jobs").add_column("progress", str)
+    db.execute("update jobs set progress = case status when 'open' then 'in work' "
+               "else 'closed' end")

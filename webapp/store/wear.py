@@ -7,11 +7,16 @@ from typing import Any
 
 from sqlite_utils import Database
 
+# A plug where it is fitted now, or (removed) where it was last fitted: its history follows
+# the serial, wherever it goes.
 _PLUGS = (
-    "select c.id as component_id, c.part_number, c.serial, c.type, c.channel, "
+    "select c.id as component_id, c.part_number, c.serial, c.type, "
+    "coalesce(c.channel, m.channel) as channel, c.engine_id is not null as fitted, "
     "e.id as engine_id, e.serial as engine_serial, e.position, e.model as engine_model, "
     "a.id as aircraft_id, a.registration "
-    "from components c join engines e on e.id = c.engine_id "
+    "from components c left join part_moves m on m.id = (select max(id) from part_moves "
+    "where component_id = c.id) "
+    "join engines e on e.id = coalesce(c.engine_id, m.engine_id) "
     "join aircraft a on a.id = e.aircraft_id where c.kind = 'plug' ")
 
 # Every inspection of a plug: the recorded history, and each wear reading a job recorded on
@@ -62,8 +67,8 @@ def plug_histories(db: Database) -> list[dict]:
 
 
 def plug_history(db: Database, component_id: int) -> dict | None:
-    """One installed plug's history as in `plug_histories`, or None if it is not one."""
-    found = _histories(db, "and c.engine_id is not null and c.id = ?", [component_id])
+    """One plug's history as in `plug_histories` (fitted now or removed), or None."""
+    found = _histories(db, "and c.id = ?", [component_id])
     return found[0] if found else None
 
 

@@ -1,14 +1,19 @@
-"""The admin's room: the people enrolled on the station and their roles."""
+"""The admin's room: the people enrolled on the station, their roles and what they sign."""
 
 from __future__ import annotations
 
 from typing import Any
 
-from flask import Blueprint, render_template, request
+from flask import Blueprint, abort, redirect, render_template, request, url_for
 
+from .. import store
+from ..domain.authorisations import PROCEDURE_KINDS, SIGNATURE_KINDS
+from ..domain.readings import InputProblem
 from ..station.accounts import enrol
-from ..store import people
-from .common import authority, db, now, requires
+from ..station.authorising import authorise, withdraw
+from ..store import authorisations, people
+from ..store.job_states import NotFound
+from .common import authority, db, now, person, requires
 
 bp = Blueprint("admin", __name__)
 
@@ -36,12 +41,46 @@ def people_page() -> Any:
 @bp.post("/people/<int:person_id>/revoke")
 @requires("admin")
 def revoke(person_id: int) -> Any:
-    from flask import abort, redirect, url_for
-
-    from .. import store
-
     if people.person_by_id(db(), person_id) is None:
         abort(404)
     with store.writing(db()):
         people.revoke(db(), person_id, now())
     return redirect(url_for("admin.people_page"), code=303)
+
+
+@bp.route("/people/<int:person_id>/authorisations", methods=["GET", "POST"])
+@requires("admin")
+def authorisations_page(person_id: int) -> Any:
+    """A person's authorisations (revoked and expired ones too), and granting a new one."""
+    who = people.person_by_id(db(), person_id)
+    if who is None:
+        abort(404)
+    problem = None
+    if request.method == "POST":
+        form = request.form
+        try:
+            authorise(db(), person_id=person_id, signatures=form.getlist("signatures"),
+                      scope=form.get("scope", ""), licence_kind=form.get("licence_kind", ""),
+                      licence_number=form.get("licence_number", ""),
+                      expires_on=form.get("expires_on", ""), granted_by=person().id,
+                      now=now())
+        except InputProblem as wrong:
+            problem = wrong
+        else:
+            return redirect(url_for("admin.authorisations_page", person_id=person_id), 303)
+    held = authorisations.held_by(db(), person_id, include_revoked=True)
+    names = people.names_by_id(db(), {a.granted_by for a in held if a.granted_by is not None})
+    return render_template("admin/authorisations.html", who=who, held=held, names=names,
+                           problem=problem, entered=request.form if problem else {},
+                           signature_kinds=SIGNATURE_KINDS, procedure_kinds=PROCEDURE_KINDS,
+                           today=now().date()), 422 if problem else 200
+
+
+@bp.post("/people/<int:person_id>/authorisations/<int:authorisation_id>/revoke")
+@requires("admin")
+def revoke_authorisation(person_id: int, authorisation_id: int) -> Any:
+    try:
+        withdraw(db(), person_id=person_id, authorisation_id=authorisation_id, now=now())
+    except NotFound:
+        abort(404)
+    return redirect(url_for("admin.authorisations_page", person_id=person_id), code=303)

@@ -19,7 +19,9 @@ from ..store.people import Person
 csrf = CSRFProtect()
 
 # What a supervisor who is not also a mechanic may send about a job: never the work itself.
-SUPERVISOR_EVENTS = ("signed", "returned", "amendment")
+# A supervisor's authorisation for an absent tag owner is theirs to give, not work.
+SUPERVISOR_EVENTS = ("signed", "returned", "amendment", "tag_transfer_authorised",
+                     "tag_removal_authorised")
 
 F = TypeVar("F", bound=Callable[..., Any])
 

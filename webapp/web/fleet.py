@@ -12,7 +12,8 @@ from flask.blueprints import BlueprintSetupState
 from ..charts import wear_chart_svg
 from ..domain import wear
 from ..domain.errors import RuleRefusal
-from ..domain.procedures import Reading, procedure_of_revision
+from ..domain.procedure_files import procedure_of_revision
+from ..domain.procedures import Reading
 from ..store import fleet as fleet_store
 from ..store import procedures
 from ..store import wear as wear_store
@@ -140,8 +141,12 @@ def plug(component_id: int) -> Any:
     if found is None:
         abort(404)
     limit = erosion_limit()
-    # The pooled rate is the fleet's: assess every plug, then pick this one.
-    plugs = assess(wear_store.plug_histories(db()), limit, _interval())
+    # The pooled rate is the fleet's: assess every fitted plug (and this one, if it has come
+    # off), then pick this one.
+    histories = wear_store.plug_histories(db())
+    if all(h["component_id"] != component_id for h in histories):
+        histories.append(found)
+    plugs = assess(histories, limit, _interval())
     this = next(p for p in plugs if p.plug["component_id"] == component_id)
     return render_template("fleet/plug.html", p=this, limit=limit, interval=_interval(),
                            usage_label=USAGE_LABEL, measures=usage_measures(this.plug))

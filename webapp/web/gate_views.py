@@ -13,16 +13,34 @@ from typing import Any
 from .. import store
 from ..domain import gates
 from ..domain.execution import JobState
-from ..domain.gates import ChannelClock, DischargeRequirement, Tag
-from ..domain.procedures import DischargeWait, DutyCycle, IgnitionRun, Lockout
+from ..domain.gates import ChannelClock, Consent, DischargeRequirement, Tag
+from ..domain.procedures import DischargeWait, DutyCycle, IgnitionRun, Lockout, PartChange
 from ..station import recording
-from ..store import people
+from ..store import engines, people
+
+
+@dataclass(frozen=True)
+class ConsentView:
+    """A hand-over or an authorisation waiting on a tag, as the tag list says it."""
+
+    consent: Consent
+    by: str
+    to: str | None
 
 
 @dataclass(frozen=True)
 class TagView:
     tag: Tag
     owner: str
+    counts_here: bool = False              # this job's own tag, or one it confirmed
+    consents: tuple[ConsentView, ...] = ()
+
+    def may_take_over(self, person_id: int) -> bool:
+        return self.tag.consent_for(person_id) is not None
+
+    def removal_authorised(self, job_id: int) -> ConsentView | None:
+        found = self.tag.removal_authorised_in(job_id)
+        return next((c for c in self.consents if c.consent == found), None) if found else None
 
 
 @dataclass(frozen=True)
@@ -71,19 +89,41 @@ def _discharge(step: DischargeWait, state: JobState, now: datetime) -> Discharge
                          voltage, energy_now)
 
 
+def _tag_views(db: store.Database, tags: dict[str, Tag], job_id: int) -> list[TagView]:
+    """Each hanging tag with its owner's name and the consents waiting on it."""
+    ids = {t.owner_id for t in tags.values()} | {
+        i for t in tags.values() for c in t.consents for i in (c.by, c.to) if i is not None}
+    names = people.names_by_id(db, ids)
+    return [TagView(t, names.get(t.owner_id, "unknown"),
+                    t.job_id == job_id or job_id in t.confirmed_in,
+                    tuple(ConsentView(c, names.get(c.by, "unknown"),
+                                      None if c.to is None else names.get(c.to, "unknown"))
+                          for c in t.consents))
+            for t in sorted(tags.values(), key=lambda t: (t.breaker, t.number))]
+
+
+def _mechanics(db: store.Database) -> list[tuple[int, str]]:
+    """Who a tag may be handed to: the station's active mechanics, by name."""
+    return sorted(((p.id, p.full_name) for p in people.all_people(db)
+                   if p.active and p.has("mechanic")), key=lambda p: p[1])
+
+
 def gate_context(db: store.Database, job: recording.Job, now: datetime) -> dict[str, Any]:
     """Everything the step screen's gate panels need, for the job as it stands now."""
     state = job.state
     tags = recording.engine_tags(db, job.row["engine_id"])
-    names = people.names_by_id(db, {t.owner_id for t in tags.values()})
-    tag_list = [TagView(t, names.get(t.owner_id, "unknown"))
-                for t in sorted(tags.values(), key=lambda t: (t.breaker, t.number))]
+    engine = engines.current(db, job.row["engine_id"])
+    tag_list = _tag_views(db, tags, job.row["id"])
     by_breaker: dict[str, list[TagView]] = {}
     for view in tag_list:
         by_breaker.setdefault(view.tag.breaker, []).append(view)
     context: dict[str, Any] = {
         "tag_list": tag_list, "tags_by_breaker": by_breaker, "lockout_missing": [],
-        "channels": [_channel(c, state.clocks[c], now) for c in sorted(state.clocks)],
+        "mechanics": _mechanics(db) if tag_list else [],
+        # Each fitted exciter's own clock (by serial), whichever job ran it.
+        "channels": [_channel(c, clock, now) for c, clock in sorted(engine.channel_clocks().items())
+                     if clock.runs],
+        "engine": engine, "run_blocked": {}, "part": None,
         "open_gate_steps": state.open_gate_steps(), "discharge": None,
         "run_channels": [], "run_wait": 0.0, "duty_text": "",
     }
@@ -95,7 +135,14 @@ def gate_context(db: store.Database, job: recording.Job, now: datetime) -> dict[
         context["discharge"] = _discharge(step, state, now)
     elif isinstance(step, IgnitionRun):
         channels = ("A", "B") if step.channel == "both" else (step.channel,)
-        views = [_channel(c, state.clocks.get(c, ChannelClock()), now) for c in channels]
+        views = [_channel(c, engine.clock_for(c), now) for c in channels]
         context.update(run_channels=views, duty_text=duty_text(step.duty_cycle),
-                       run_wait=max((v.off_remaining for v in views), default=0.0))
+                       run_wait=max((v.off_remaining for v in views), default=0.0),
+                       run_blocked={c: engine.not_whole(c) for c in channels
+                                    if engine.not_whole(c)})
+    elif isinstance(step, PartChange):
+        channel = state.configuration.channel or "A"
+        context["part"] = {"position": engine.position(step.part, channel),
+                           "allowed": [a for a in engines.allowed_parts(db, job.row["engine_id"])
+                                       if a.fits(step.part, channel)]}
     return context

@@ -9,14 +9,16 @@ from typing import Any
 
 from flask import Blueprint, abort, redirect, render_template, request, url_for
 
+from ..domain.engine import PART_KINDS
 from ..domain.gates import ON_LIMIT_WARNING_S
 from ..domain.readings import InputProblem
 from ..station import recording
+from ..store import engines, people
 from ..store import fleet as fleet_store
 from ..store import jobs as job_store
-from ..store import people
 from .common import SUPERVISOR_EVENTS, authority, db, now, page_or_fragment, person, requires
 from .gate_views import gate_context
+from .sign_views import sign_view
 
 bp = Blueprint("mechanic", __name__)
 
@@ -42,6 +44,7 @@ def engine(engine_id: int) -> Any:
     tags = recording.engine_tags(db(), engine_id)
     names = people.names_by_id(db(), {t.owner_id for t in tags.values()})
     return render_template("mechanic/engine.html", engine=found, openable=openable,
+                           state=engines.current(db(), engine_id), part_kinds=PART_KINDS,
                            open_here=open_here, tags=sorted(tags.values(),
                                                             key=lambda t: t.breaker),
                            names=names)
@@ -69,7 +72,9 @@ def _job_page(job_id: int, error: str | None = None, status: int = 200,
                             job=job.row, state=job.state, current=job.state.next_step,
                             names=names, error=error, gate=gate_context(db(), job, now()),
                             warning_s=ON_LIMIT_WARNING_S, problem=problem,
-                            entered=entered or {}, today=now().date().isoformat())
+                            entered=entered or {}, today=now().date().isoformat(),
+                            sign=sign_view(db(), job.state, job.state.next_step, person(),
+                                           now().date()))
 
 
 @bp.get("/jobs/<int:job_id>")
@@ -88,15 +93,19 @@ def _event_data(kind: str, form: Any) -> dict[str, Any]:
         return {"tag": form.get("tag", ""),
                 "breaker_confirmed_open": form.get("breaker_confirmed_open") == "1"}
     if kind == "tag_removed":
-        data: dict[str, Any] = {"tag": form.get("tag", "")}
-        if "absent_reason" in form or "absent_supervisor" in form:
-            data["absent_owner"] = {"reason": form.get("absent_reason", ""),
-                                    "supervisor": form.get("absent_supervisor", "")}
-        return data
+        return {"tag": form.get("tag", "")}
+    if kind in ("tag_handed_over", "tag_transfer_authorised", "tag_removal_authorised"):
+        return _consent_data(kind, form)
     if kind == "de_energised" and form.get("channel"):
         return {"channel": form["channel"]}
     if kind == "reading_recorded":
         return _reading_data(form)
+    if kind == "part_recorded":
+        data = {k: form[k] for k in ("part_number", "serial", "status", "reason", "tag",
+                                     "release", "condition") if k in form}
+        data["usage"] = {k: form.get(k, "") for k in ("engine_hours", "starts",
+                                                       "continuous_ignition_hours")}
+        return data
     if kind == "signed":
         return {"pin": form.get("pin", "")}
     if kind == "amendment":
@@ -105,9 +114,21 @@ def _event_data(kind: str, form: Any) -> dict[str, Any]:
     if kind == "sparks_counted":
         return _count_data(form)
     if kind == "finding":
-        return {k: form.get(k, "") for k in ("text", "disposition", "reference")
+        return {k: form.get(k, "") for k in ("text", "disposition", "reference", "limit")
                 if k in form}
     return {}
+
+
+def _consent_data(kind: str, form: Any) -> dict[str, Any]:
+    """A tag's hand-over or a supervisor's authorisation: the tag, the person picked (by id)
+    and the reason where one is asked, with the PIN that proves who gives it."""
+    data: dict[str, Any] = {"tag": form.get("tag", ""), "pin": form.get("pin", "")}
+    if kind != "tag_removal_authorised":
+        to = form.get("to", "")
+        data["to"] = int(to) if to.isdigit() else to
+    if kind != "tag_handed_over":
+        data["reason"] = form.get("reason", "")
+    return data
 
 
 def _count_data(form: Any) -> dict[str, Any]:

@@ -6,7 +6,7 @@ from typing import Any
 
 from flask import Blueprint, abort, render_template
 
-from ..domain.procedures import procedure_of_revision
+from ..domain.procedure_files import procedure_of_revision
 from ..store import procedures as stored
 from .common import db, requires
 

@@ -7,11 +7,13 @@ from typing import Any
 
 from flask import Blueprint, Response, abort, redirect, render_template, request, url_for
 
+from ..domain.release import passed_channel_checks, release_statement
 from ..domain.signoff import awaiting_review
 from ..station import recording
+from ..store import engines, people, signers
 from ..store import jobs as job_store
-from ..store import people, signers
 from .common import authority, db, now, person, requires
+from .sign_views import sign_view
 
 bp = Blueprint("supervisor", __name__)
 
@@ -41,6 +43,12 @@ def _attention(state: Any) -> tuple[int, int]:
     return (-flagged, 0)
 
 
+def release_preview(state: Any, engine: Any, job_id: int) -> Any:
+    """What certifying the job now would state (released, or why not)."""
+    effects = passed_channel_checks(state.procedure.kind, state.readings)
+    return release_statement(engine, f"job {job_id}", job_id, effects)
+
+
 @bp.get("/review")
 @requires("supervisor")
 def review_queue() -> Any:
@@ -50,7 +58,10 @@ def review_queue() -> Any:
         if awaiting_review(job.state):
             flagged = [r for r in job.state.readings
                        if r.get("verdict") == "out of limits" or r.get("finding")]
-            waiting.append({"job": row, "state": job.state, "flagged": flagged})
+            engine = engines.current(db(), row["engine_id"])
+            waiting.append({"job": row, "state": job.state, "flagged": flagged,
+                            "engine": engine, "release": release_preview(job.state, engine,
+                                                                         row["id"])})
     waiting.sort(key=lambda w: (-len(w["flagged"]), w["job"]["id"]))
     return render_template("supervisor/review_queue.html", waiting=waiting)
 
@@ -64,6 +75,7 @@ def _review_page(job_id: int, error: str | None = None, status: int = 200) -> An
     certifying = job.state.next_step if awaiting_review(job.state) else None
     return render_template("supervisor/review.html", job=job.row, state=job.state,
                            record=record, certifying=certifying, error=error,
+                           sign=sign_view(db(), job.state, certifying, person(), now().date()),
                            latest=signers.latest_record(db(), job_id),
                            event_id=str(uuid.uuid4())), status
 

@@ -1,0 +1,183 @@
+"""Each engine's state as kept beside the event log, and the fleet's part register it drives.
+
+The state is the domain's fold (`domain.engine`) over the fleet's starting configuration
+and the events of every job on the engine. The store keeps its current value, written in
+the same transaction as each event that changes it, so no page or write replays a long
+history; `replay` rebuilds it from the log (a test checks the two agree). Where each
+serial is fitted (`components.engine_id`, `components.channel`) and each time a serial
+was fitted and removed (`part_moves`) are written from the same events, never by hand.
+"""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Mapping
+from typing import Any
+
+from sqlite_utils import Database
+
+from ..domain.engine import (
+    PART_LABELS,
+    EngineState,
+    apply_engine_event,
+    effects_of,
+    engine_state,
+    starting_state,
+    state_as_data,
+    state_of,
+)
+from ..domain.parts import AllowedPart, Whereabouts
+from . import new_row_id
+
+
+def set_starting_part(db: Database, engine_id: int, kind: str, channel: str,
+                      component_id: int) -> None:
+    """Part of the fleet's starting configuration (the fleet loader's, before any job)."""
+    db.table("installed_at_start").upsert({"engine_id": engine_id, "kind": kind,
+                                           "channel": channel, "component_id": component_id},
+                                          pk=("engine_id", "kind", "channel"))
+
+
+def allow_part(db: Database, engine_id: int, kind: str, channel: str | None, part_number: str,
+               type: str, interchangeability: str = "approved") -> None:
+    """A part number a position of the engine may take (the fleet configuration)."""
+    db.table("allowed_parts").insert({"engine_id": engine_id, "kind": kind, "channel": channel,
+                                      "part_number": part_number, "type": type,
+                                      "interchangeability": interchangeability})
+
+
+def allowed_parts(db: Database, engine_id: int) -> list[AllowedPart]:
+    return [AllowedPart(r["kind"], r["channel"], r["part_number"], r["type"],
+                        r["interchangeability"])
+            for r in db.query("select * from allowed_parts where engine_id = ? "
+                              "order by kind, channel, interchangeability, part_number",
+                              [engine_id])]
+
+
+def _starting_parts(db: Database, engine_id: int) -> list[dict[str, Any]]:
+    return list(db.query(
+        "select s.kind, s.channel, c.part_number, c.serial, c.type from installed_at_start s "
+        "join components c on c.id = s.component_id where s.engine_id = ?", [engine_id]))
+
+
+def replay(db: Database, engine_id: int) -> EngineState:
+    """The engine's state rebuilt from its starting configuration and every event."""
+    rows = db.query("select e.id, e.job_id, e.step_id, e.kind, e.data, e.received_at, "
+                    "e.device_time from events e join jobs j on j.id = e.job_id "
+                    "where j.engine_id = ? order by e.rowid", [engine_id])
+    events = ({**r, "data": json.loads(r["data"])} for r in rows)
+    return engine_state(starting_state(_starting_parts(db, engine_id)), events)
+
+
+def current(db: Database, engine_id: int) -> EngineState:
+    """The engine's state now: the kept value, or (first use) a replay, then kept."""
+    rows = list(db.query("select state from engine_state where engine_id = ?", [engine_id]))
+    if rows:
+        return state_of(json.loads(rows[0]["state"]))
+    state = replay(db, engine_id)
+    _keep(db, engine_id, state)
+    return state
+
+
+def _keep(db: Database, engine_id: int, state: EngineState) -> None:
+    rowid = next(db.query("select coalesce(max(e.rowid), 0) as n from events e join jobs j "
+                          "on j.id = e.job_id where j.engine_id = ?", [engine_id]))["n"]
+    db.table("engine_state").upsert({"engine_id": engine_id,
+                                     "state": json.dumps(state_as_data(state), sort_keys=True),
+                                     "event_rowid": rowid}, pk="engine_id")
+
+
+def record_event_effects(db: Database, engine_id: int, before: EngineState,
+                         event: Mapping[str, Any]) -> EngineState:
+    """After an event is appended (same transaction): keep the engine's new state and move
+    the parts it fitted or removed in the part register. `before` is the state the rules
+    checked the event against."""
+    effects = effects_of(event)
+    if not effects:
+        return before
+    after = apply_engine_event(before, event)
+    _keep(db, engine_id, after)
+    for effect in effects:
+        if effect.get("effect") == "remove":
+            _part_removed(db, engine_id, before, event, effect)
+        elif effect.get("effect") == "install":
+            _part_fitted(db, engine_id, event, effect)
+    return after
+
+
+def _part_removed(db: Database, engine_id: int, before: EngineState, event: Mapping[str, Any],
+                  effect: Mapping[str, Any]) -> None:
+    # The register's fitted part leaves the position; the serial read off the plate (the
+    # same, unless the finding says the record was wrong) gets the removal's status.
+    fitted = before.fitted(effect["kind"], effect["channel"])
+    gone = [(fitted.part_number, fitted.serial)] if fitted else []
+    gone.append((effect["part_number"], effect["serial"]))
+    for part_number, serial in dict.fromkeys(gone):
+        component = _component(db, effect["kind"], part_number, serial, None)
+        db.execute("update components set engine_id = null, channel = null where id = ?",
+                   [component])
+        moves = list(db.query("select id from part_moves where component_id = ? and "
+                              "removed_job is null order by id desc limit 1", [component]))
+        removal = {"removed_job": event["job_id"], "removed_at": event["received_at"],
+                   "removed_usage": json.dumps(effect.get("usage")),
+                   "status": effect["status"], "reason": effect["reason"], "tag": effect["tag"]}
+        if moves:
+            db.table("part_moves").update(moves[0]["id"], removal)
+        else:  # fitted since the starting configuration
+            db.table("part_moves").insert({"component_id": component, "engine_id": engine_id,
+                                           "kind": effect["kind"],
+                                           "channel": effect["channel"], **removal})
+
+
+def _part_fitted(db: Database, engine_id: int, event: Mapping[str, Any],
+                 effect: Mapping[str, Any]) -> None:
+    component = _component(db, effect["kind"], effect["part_number"], effect["serial"],
+                           effect["type"])
+    db.execute("update components set engine_id = ?, channel = ? where id = ?",
+               [engine_id, effect["channel"], component])
+    db.table("part_moves").insert({"component_id": component, "engine_id": engine_id,
+                                   "kind": effect["kind"], "channel": effect["channel"],
+                                   "fitted_job": event["job_id"],
+                                   "fitted_at": event["received_at"],
+                                   "fitted_usage": json.dumps(effect.get("usage"))})
+
+
+def _component(db: Database, kind: str, part_number: str, serial: str,
+               type: str | None) -> int:
+    """The register's row for a part and serial number, made on first sight."""
+    rows = list(db.query("select id from components where part_number = ? and serial = ?",
+                         [part_number, serial]))
+    if rows:
+        return int(rows[0]["id"])
+    return new_row_id(db.table("components").insert({
+        "kind": kind, "part_number": part_number, "serial": serial,
+        "type": type or "unknown", "engine_id": None, "channel": None}))
+
+
+def whereabouts(db: Database, kind: str, serial: str) -> Whereabouts:
+    """Where a serial of this kind of part is fitted in the fleet now, and its last removal."""
+    fitted = list(db.query(
+        "select a.registration, e.position, c.channel, c.part_number from components c "
+        "join engines e on e.id = c.engine_id join aircraft a on a.id = e.aircraft_id "
+        "where c.kind = ? and c.serial = ? limit 1", [kind, serial]))
+    last = list(db.query(
+        "select m.status, m.removed_job from part_moves m join components c "
+        "on c.id = m.component_id where c.kind = ? and c.serial = ? and m.removed_job is not "
+        "null order by m.id desc limit 1", [kind, serial]))
+    where = None
+    if fitted:
+        f = fitted[0]
+        where = (f"{f['registration']} engine {f['position']}, channel {f['channel']} "
+                 f"{PART_LABELS[kind]} ({f['part_number']})")
+    return Whereabouts(where, last[0]["status"] if last else None,
+                       last[0]["removed_job"] if last else None)
+
+
+def part_history(db: Database, component_id: int) -> list[dict[str, Any]]:
+    """Where and when a serial was fitted and removed, with the engine's usage at each end."""
+    rows = db.query(
+        "select m.*, a.registration, e.position, e.serial as engine_serial from part_moves m "
+        "join engines e on e.id = m.engine_id join aircraft a on a.id = e.aircraft_id "
+        "where m.component_id = ? order by m.id", [component_id])
+    return [{**r, "fitted_usage": json.loads(r["fitted_usage"] or "null"),
+             "removed_usage": json.loads(r["removed_usage"] or "null")} for r in rows]
