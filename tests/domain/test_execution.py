@@ -7,14 +7,9 @@ from pathlib import Path
 
 import pytest
 
+from webapp.domain.checks import Circumstances, check_event
 from webapp.domain.errors import RuleRefusal
-from webapp.domain.execution import (
-    Circumstances,
-    apply_event,
-    check_event,
-    configuration_for,
-    job_state,
-)
+from webapp.domain.execution import apply_event, configuration_for, job_state
 from webapp.domain.procedure_files import parse_procedure
 
 TASKS = Path(__file__).resolve().parents[2] / "tasks"
@@ -160,7 +155,7 @@ def test_a_signature_is_not_a_tick():
 
 
 def test_the_engine_s_tags_are_read_only_for_the_events_that_need_them():
-    from webapp.domain.execution import needs_engine_tags
+    from webapp.domain.checks import needs_engine_tags
 
     state = _state()
     for kind in ("breaker_tagged", "tag_taken_over", "tag_removed", "energised"):

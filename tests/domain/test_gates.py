@@ -25,14 +25,13 @@ from typing import Any
 import pytest
 
 from webapp.domain import gates, tag_handover
+from webapp.domain.checks import Circumstances, check_event
 from webapp.domain.engine import EngineState, apply_engine_event, starting_state
 from webapp.domain.errors import RuleRefusal
 from webapp.domain.execution import (
     COMPLETING_EVENT,
-    Circumstances,
     JobState,
     apply_event,
-    check_event,
     configuration_for,
     job_state,
 )

@@ -31,7 +31,8 @@ from tests.domain.tag_events import (
     tags_with,
 )
 from webapp.domain import gates
-from webapp.domain.execution import Circumstances, apply_event, check_event, configuration_for
+from webapp.domain.checks import Circumstances, check_event
+from webapp.domain.execution import apply_event, configuration_for
 from webapp.domain.execution import job_state as fold_job
 from webapp.domain.procedures import Lockout
 

@@ -10,8 +10,9 @@ from pathlib import Path
 import pytest
 
 from webapp.domain.authorisations import Authorisation
+from webapp.domain.checks import Circumstances, check_event
 from webapp.domain.errors import RuleRefusal
-from webapp.domain.execution import Circumstances, check_event, configuration_for, job_state
+from webapp.domain.execution import configuration_for, job_state
 from webapp.domain.procedure_files import parse_procedure
 from webapp.domain.procedures import Sign
 from webapp.domain.signoff import check_signature, signature_refusal

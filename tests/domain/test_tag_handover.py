@@ -45,7 +45,8 @@ from tests.domain.tag_events import (
     taken,
 )
 from webapp.domain import gates, tag_handover
-from webapp.domain.execution import Circumstances, apply_event, check_event, configuration_for
+from webapp.domain.checks import Circumstances, check_event
+from webapp.domain.execution import apply_event, configuration_for
 from webapp.domain.execution import job_state as fold_job
 from webapp.domain.procedures import Lockout
 
@@ -379,7 +380,7 @@ def test_a_removal_authorisation_belongs_to_the_release_step_when_the_job_is_the
 
 
 def test_tag_moves_are_checked_with_the_engine_s_tags():
-    from webapp.domain.execution import needs_engine_tags
+    from webapp.domain.checks import needs_engine_tags
 
     state = _Engine().state
     for kind in gates.CONSENT_KINDS:

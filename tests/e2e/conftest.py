@@ -56,3 +56,41 @@ def open_removal_to_warning(page, base_url: str) -> None:
     for index in range(3):
         page.check(f"[data-testid=item-{index}]")
     tap(page, "[data-testid=done]")
+
+
+@pytest.fixture
+def station_api(db_path, station_clock):
+    """The station's own web app over the live server's database file and clock, for work a
+    test does before (or beside) the browser: `station_api("mech1")` is that person's client.
+    The browser tests then meet that work as a tablet would."""
+    from tests.conftest import LoggedIn
+    from webapp import store
+
+    app = create_app({"DB_PATH": str(db_path), "SECRET_KEY": "pre-walk-secret",
+                      "CLOCK": station_clock, "TESTING": True})
+    db = store.connect(db_path)
+
+    def client(username: str) -> LoggedIn:
+        return LoggedIn(app.test_client(), username)
+
+    client.db = db  # type: ignore[attr-defined]
+    yield client
+    db.close()
+
+
+def fill_part(page, part_number: str, serial: str, *, removed: bool, tag_or_release: str,
+              hours: str = "812", starts: str = "760") -> None:
+    """Fill a part step's typed fields and record them (status unserviceable, reason failed
+    for a removal; condition new for a fitting)."""
+    page.fill("[data-testid=part-number]", part_number)
+    page.fill("[data-testid=part-serial]", serial)
+    if removed:
+        page.check("[data-testid=status-unserviceable]")
+        page.check("[data-testid=reason-failed]")
+        page.fill("[data-testid=part-tag]", tag_or_release)
+    else:
+        page.fill("[data-testid=part-release]", tag_or_release)
+        page.check("[data-testid=condition-new]")
+    page.fill("[data-testid=part-engine-hours]", hours)
+    page.fill("[data-testid=part-starts]", starts)
+    tap(page, "[data-testid=record-part]")

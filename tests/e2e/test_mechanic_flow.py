@@ -48,7 +48,7 @@ def test_walk_steps_reload_and_resume_on_another_device(browser, playwright, liv
     expect(step).to_have_attribute("data-step-id", "breakers")
     expect(page.get_by_test_id("reminders")).to_contain_text("lethal charge")
     expect(page.get_by_test_id("tag-number-IGN-A")).to_be_visible()
-    expect(page.get_by_test_id("progress")).to_have_text("3 of 15 steps done")
+    expect(page.get_by_test_id("progress")).to_have_text("3 of 16 steps done")
 
     ARTIFACTS.mkdir(exist_ok=True)
     shot = f"step-screen-{device.lower().replace(' ', '-')}.png"

@@ -98,6 +98,7 @@ def test_energising_is_refused_while_another_job_has_the_channel_open(removal, m
     clock.advance(1500)
     refused = check.refused(_event("run-a-dc", "energised"), "channel_disturbed")
     assert f"job {removal.id}, step disconnect-input" in refused["reason"]
+    assert "Channel A: low-voltage input disconnected" in refused["reason"]  # as written
     assert "low-voltage input disconnected" in refused["reason"]
     page = mechanic.get(f"/jobs/{check.id}").get_data(as_text=True)
     assert 'data-testid="channel-not-whole-A"' in page

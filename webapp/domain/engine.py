@@ -293,9 +293,10 @@ def check_channels_whole(state: EngineState, channels: Sequence[str]) -> None:
         if why:
             said.append(f"channel {channel}: " + "; ".join(why))
     if said:
+        said_all = ". ".join(said)
         raise RuleRefusal("channel_disturbed", "Nothing is energised on a channel that is not "
-                          "whole. " + ". ".join(said).capitalize() + ". Finish or put back "
-                          "that work first.", channels=list(channels))
+                          "whole. " + said_all[0].upper() + said_all[1:] + ". Finish or put "
+                          "back that work first.", channels=list(channels))
 
 
 # --- the kept value, as JSON ----------------------------------------------------------------

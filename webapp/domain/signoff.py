@@ -22,7 +22,8 @@ from .errors import RuleRefusal
 from .procedures import Sign
 
 if TYPE_CHECKING:
-    from .execution import Circumstances, JobState, StepProgress
+    from .checks import Circumstances
+    from .execution import JobState, StepProgress
 
 # What each signature means (21 CFR 11.50(a)(3)); its scope is always this job's work only.
 SIGNATURE_MEANINGS = {"performer": "Performed", "inspector": "Inspected",

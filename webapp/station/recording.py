@@ -17,16 +17,9 @@ from cryptography.hazmat.primitives import hashes
 from .. import store
 from ..domain import gates
 from ..domain.chain import GENESIS, event_digest
+from ..domain.checks import Circumstances, check_event, job_progress, needs_engine_tags
 from ..domain.errors import RuleRefusal
-from ..domain.execution import (
-    Circumstances,
-    JobState,
-    apply_event,
-    check_event,
-    configuration_for,
-    job_progress,
-    needs_engine_tags,
-)
+from ..domain.execution import JobState, apply_event, configuration_for
 from ..domain.gates import Tag
 from ..domain.procedure_files import procedure_of_revision
 from ..domain.procedures import PartChange

@@ -29,7 +29,9 @@ def fleet() -> Any:
     open_jobs = job_store.jobs(db(), status="open")
     mine = [j for j in open_jobs if j["opened_by"] == person().id]
     others = [j for j in open_jobs if j["opened_by"] != person().id]
-    return render_template("mechanic/fleet.html", aircraft=fleet_store.fleet(db()),
+    aircraft = fleet_store.fleet(db())
+    states = {e["id"]: engines.current(db(), e["id"]) for a in aircraft for e in a["engines"]}
+    return render_template("mechanic/fleet.html", aircraft=aircraft, states=states,
                            mine=mine, others=others)
 
 

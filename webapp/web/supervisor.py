@@ -7,6 +7,7 @@ from typing import Any
 
 from flask import Blueprint, Response, abort, redirect, render_template, request, url_for
 
+from ..domain.checks import job_progress
 from ..domain.release import passed_channel_checks, release_statement
 from ..domain.signoff import awaiting_review
 from ..station import recording
@@ -73,7 +74,12 @@ def _review_page(job_id: int, error: str | None = None, status: int = 200) -> An
     record = record_html(db(), job_id, now(), signatures=recording.signatures_of(job.state),
                          embedded=True, record_revision=recording.record_revision(job.state))
     certifying = job.state.next_step if awaiting_review(job.state) else None
+    preview = (release_preview(job.state, engines.current(db(), job.row["engine_id"]), job_id)
+               if certifying else None)
+    given = next((e["data"]["release"] for e in job.state.completed.values()
+                  if e.get("kind") == "signed" and "release" in e.get("data", {})), None)
     return render_template("supervisor/review.html", job=job.row, state=job.state,
+                           preview=preview, given=given, progress=job_progress(job.state),
                            record=record, certifying=certifying, error=error,
                            sign=sign_view(db(), job.state, certifying, person(), now().date()),
                            latest=signers.latest_record(db(), job_id),
