@@ -5,6 +5,7 @@ follows the exciter's serial across jobs. The kept engine state equals a replay.
 from __future__ import annotations
 
 import random
+import re
 
 import pytest
 
@@ -135,3 +136,97 @@ def test_the_kept_engine_state_equals_a_replay_after_random_work(mechanic, db, c
             pass  # the walk met a refusal (a part not fitted, a tag in use): that is work too
         assert engines.current(db, DEMO_101_ENGINE_1) == engines.replay(db, DEMO_101_ENGINE_1)
         clock.advance(rng.randrange(30, 900))
+
+
+def _plug_change(client, db, clock, engine, channel, fitted_data):
+    """A plug replacement up to its signatures: the fitted plug comes off serviceable
+    (robbed), and `fitted_data` goes on."""
+    job = Job(client, db, clock, "igniter-plug-replacement", channel=channel, engine=engine)
+    job.walk_to("removed-plug")
+    plug = fitted(db, "plug", channel, engine)
+    job.ok(_event("removed-plug", "part_recorded", part_number=plug.part_number,
+                  serial=plug.serial, status="serviceable", reason="robbed", tag="S-0007",
+                  usage={"engine_hours": "812", "starts": "760"}))
+    job.walk_to("installed-plug")
+    job.ok(_event("installed-plug", "part_recorded", **fitted_data))
+    job.walk_to("performer")
+    return job, plug
+
+
+def test_a_plug_s_history_follows_its_serial_to_the_next_engine(mechanic, db, clock):
+    # DEMO-101 engine 1 channel B: its plug is robbed for DEMO-102 engine 1 (same P/N).
+    first, robbed = _plug_change(mechanic, db, clock, DEMO_101_ENGINE_1, "B", {
+        "part_number": "XIP-2207", "serial": "XP-NEW-1", "release": "DEMO-REL-1",
+        "condition": "new", "usage": {"engine_hours": "812", "starts": "760"}})
+    clock.advance(3600)
+    second, _ = _plug_change(mechanic, db, clock, 3, "A", {
+        "part_number": robbed.part_number, "serial": robbed.serial, "release": "DEMO-REL-2",
+        "condition": "serviceable used", "usage": {"engine_hours": "1500", "starts": "1410",
+                                                   "continuous_ignition_hours": "40"}})
+    assert fitted(db, "plug", "A", 3).serial == robbed.serial
+    page = mechanic.get(f"/fleet/parts/{robbed.part_number}/{robbed.serial}").get_data(
+        as_text=True)
+    assert "Fitted now: DEMO-102 engine 1, channel A igniter plug" in page
+    moves = re.findall(r'<tr data-testid="move-\d+">(.*?)</tr>', page, re.S)
+    assert len(moves) == 2
+    assert "DEMO-101 engine 1" in moves[0] and f"job {first.id}" in moves[0]
+    assert "removed serviceable (robbed), tag S-0007" in moves[0]
+    assert "DEMO-102 engine 1" in moves[1] and f"job {second.id}" in moves[1]
+    assert "engine at 1500 h, 1410 starts" in moves[1] and "still fitted" in moves[1]
+    # Its wear history went with it: its own plug page keeps the demo gaugings, while the
+    # new plug in its old position starts with none.
+    robbed_id = fleet_store.component_by_serial(db, robbed.part_number, robbed.serial)["id"]
+    new_id = fleet_store.component_by_serial(db, "XIP-2207", "XP-NEW-1")["id"]
+    robbed_page = mechanic.get(f"/fleet/wear/plugs/{robbed_id}").get_data(as_text=True)
+    new_page = mechanic.get(f"/fleet/wear/plugs/{new_id}").get_data(as_text=True)
+    assert len(re.findall(r'<tr data-testid="point-\d+">', robbed_page)) >= 4
+    assert "DEMO-102" in robbed_page
+    assert re.findall(r'<tr data-testid="point-\d+">', new_page) == []
+    assert "DEMO-101" in new_page
+
+
+def test_a_serial_fitted_elsewhere_cannot_go_on_and_one_removed_unserviceable_needs_overhaul(
+        mechanic, db, clock):
+    job = Job(mechanic, db, clock, "igniter-plug-replacement", channel="A", engine=3)
+    job.walk_to("removed-plug")
+    plug = fitted(db, "plug", "A", 3)
+    job.ok(_event("removed-plug", "part_recorded", part_number=plug.part_number,
+                  serial=plug.serial, status="unserviceable", reason="failed", tag="U-9",
+                  usage={"engine_hours": "1500", "starts": "1410"}))
+    job.walk_to("installed-plug")
+    in_use = fitted(db, "plug", "B", DEMO_101_ENGINE_1)
+    refused = job.refused(_event("installed-plug", "part_recorded", part_number="XIP-2207",
+                                 serial=in_use.serial, release="R", condition="new",
+                                 usage=USAGE), "serial_fitted_elsewhere")
+    assert "DEMO-101 engine 1, channel B igniter plug" in refused["reason"]
+    again = {"part_number": plug.part_number, "serial": plug.serial, "release": "R-2",
+             "usage": USAGE}
+    job.refused(_event("installed-plug", "part_recorded", condition="serviceable used",
+                       **again), "part_unserviceable")
+    job.ok(_event("installed-plug", "part_recorded", condition="overhauled", **again))
+
+
+def test_a_deferred_defect_is_an_open_item_until_a_later_job_closes_it(mechanic, db, clock,
+                                                                         login):
+    lead = Job(mechanic, db, clock, "ignition-lead-inspection", channel="A")
+    lead.walk_to("routing-clamps")
+    lead.ok(_event("routing-clamps", "reading_recorded", result="fail"))
+    problem = lead.post(_event("routing-clamps", "finding", text="Clamp 4 cushion perished",
+                               disposition="deferred", reference="DD-7"))
+    assert problem.status_code == 422 and "data.limit" in str(problem.get_json())
+    lead.ok(_event("routing-clamps", "finding", text="Clamp 4 cushion perished",
+                   disposition="deferred", reference="DD-7", limit="50 FH"))
+    item = engines.current(db, DEMO_101_ENGINE_1).open_items[0]
+    assert (item.reference, item.limit, item.job_id) == ("DD-7", "50 FH", lead.id)
+    # Shown on the engine page and on a later job on the engine.
+    later = Job(mechanic, db, clock, "exciter-removal", channel="B")
+    assert 'data-testid="open-item-DD-7"' in mechanic.get(
+        f"/fleet/engines/{DEMO_101_ENGINE_1}").get_data(as_text=True)
+    assert 'data-testid="job-open-item-DD-7"' in mechanic.get(
+        f"/jobs/{later.id}").get_data(as_text=True)
+    # Closing it needs what was done; an unknown item is refused.
+    later.refused(_event(None, "item_closed", item="no-such-item", how="x"), "no_such_item")
+    assert later.post(_event(None, "item_closed", item=item.id, how=" ")).status_code == 422
+    later.ok(_event(None, "item_closed", item=item.id, how="Cushion replaced, WO 88"))
+    assert engines.current(db, DEMO_101_ENGINE_1).open_items == ()
+    assert engines.current(db, DEMO_101_ENGINE_1) == engines.replay(db, DEMO_101_ENGINE_1)

@@ -98,6 +98,19 @@ def engine_usage(data: Mapping[str, Any]) -> dict[str, Any]:
     return usage
 
 
+def time_fitted(fitted: Mapping[str, Any] | None,
+                removed: Mapping[str, Any] | None) -> dict[str, float] | None:
+    """How long a part was fitted, by the engine's own counters at each end (None when either
+    end is unknown, e.g. fitted before the station's first job, or still fitted)."""
+    if not fitted or not removed:
+        return None
+    spans = {}
+    for name in ("engine_hours", "starts", "continuous_ignition_hours"):
+        if fitted.get(name) is not None and removed.get(name) is not None:
+            spans[name] = removed[name] - fitted[name]
+    return spans or None
+
+
 def evaluate_part(step: PartChange, data: Mapping[str, Any], channel: str,
                   engine: EngineState, allowed: Sequence[AllowedPart],
                   whereabouts: Whereabouts) -> dict[str, Any]:

@@ -12,10 +12,11 @@ from flask.blueprints import BlueprintSetupState
 from ..charts import wear_chart_svg
 from ..domain import wear
 from ..domain.errors import RuleRefusal
+from ..domain.parts import time_fitted
 from ..domain.procedure_files import procedure_of_revision
 from ..domain.procedures import Reading
+from ..store import engines, procedures
 from ..store import fleet as fleet_store
-from ..store import procedures
 from ..store import wear as wear_store
 from .common import db, requires
 
@@ -150,6 +151,20 @@ def plug(component_id: int) -> Any:
     this = next(p for p in plugs if p.plug["component_id"] == component_id)
     return render_template("fleet/plug.html", p=this, limit=limit, interval=_interval(),
                            usage_label=USAGE_LABEL, measures=usage_measures(this.plug))
+
+
+@bp.get("/fleet/parts/<part_number>/<serial>")
+@requires("mechanic", "supervisor", "trainer")
+def part(part_number: str, serial: str) -> Any:
+    """One serial's history: each engine and position it was fitted to, and for how long."""
+    component = fleet_store.component_by_serial(db(), part_number, serial)
+    if component is None:
+        abort(404)
+    moves = [{**m, "span": time_fitted(m["fitted_usage"], m["removed_usage"])}
+             for m in engines.part_history(db(), component["id"])]
+    where = engines.whereabouts(db(), component["kind"], serial)
+    return render_template("fleet/part.html", component=component, moves=moves,
+                           where=where)
 
 
 MEASURE_LABELS = {"engine_hours": ("engine hours", 100, "per 100 FH"),

@@ -98,6 +98,8 @@ def _event_data(kind: str, form: Any) -> dict[str, Any]:
         return {"tag": form.get("tag", "")}
     if kind in ("tag_handed_over", "tag_transfer_authorised", "tag_removal_authorised"):
         return _consent_data(kind, form)
+    if kind == "item_closed":
+        return {"item": form.get("item", ""), "how": form.get("how", "")}
     if kind == "de_energised" and form.get("channel"):
         return {"channel": form["channel"]}
     if kind == "reading_recorded":
