@@ -11,7 +11,8 @@ USERS = {"mechanic": "mech1", "supervisor": "super", "trainer": "trainer", "admi
 # A real URL for each GET route with arguments (job 1 is opened by the fixture below).
 SAMPLE_ARGS = {"engine_id": 1, "job_id": 1, "procedure_id": "exciter-removal",
                "component_id": 3, "record_id": 1,  # 3: the DEMO-101 engine 1 channel A plug
-               "person_id": 1}                     # 1: mech1, the first demo person enrolled
+               "person_id": 1,                     # 1: mech1, the first demo person enrolled
+               "part_number": "XEX-1001-03", "serial": "XE-4401"}  # DEMO-101 engine 1 A exciter
 
 
 def _routes(app):
