@@ -143,11 +143,26 @@ def _random_effects(rng: random.Random) -> list[dict]:
     return [{"effect": "defer", "text": "chafed lead", "reference": "DD-1", "limit": "10 FH"}]
 
 
+def _random_tag_event(rng: random.Random, at: int) -> dict:
+    kind = rng.choice(["breaker_tagged", "breaker_tagged", "tag_handed_over",
+                       "tag_taken_over", "tag_removed"])
+    data = {"tag": f"T-{rng.randrange(4)}", "breaker": rng.choice(["IGN-A", "IGN-B"])}
+    if kind == "tag_handed_over":
+        data["to"] = rng.randrange(1, 4)
+    if kind == "breaker_tagged" and rng.random() < 0.3:
+        data["confirmed_existing"] = True
+    return {**event(rng.randrange(1, 4), [], at=at), "kind": kind, "data": data,
+            "person_id": rng.randrange(1, 4)}
+
+
 @pytest.mark.parametrize("seed", range(20))
 def test_the_kept_json_equals_the_fold_after_any_sequence(seed):
     rng = random.Random(seed)
     state: EngineState = starting_state(START)
-    events = [event(rng.randrange(1, 4), _random_effects(rng), at=i * 30) for i in range(60)]
+    events = [event(rng.randrange(1, 4), _random_effects(rng), at=i * 30)
+              if rng.random() < 0.7 else _random_tag_event(rng, i * 30) for i in range(80)]
+    assert any(e["kind"] != "x" for e in events)
     for e in events:  # kept as JSON and read back before every event, as the store does
         state = apply_engine_event(state_of(state_as_data(state)), e)
     assert state == engine_state(starting_state(START), events)
+    assert state.tags == gates.engine_tags(e for e in events if e["kind"] != "x")

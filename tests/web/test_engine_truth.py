@@ -230,3 +230,14 @@ def test_a_deferred_defect_is_an_open_item_until_a_later_job_closes_it(mechanic,
     later.ok(_event(None, "item_closed", item=item.id, how="Cushion replaced, WO 88"))
     assert engines.current(db, DEMO_101_ENGINE_1).open_items == ()
     assert engines.current(db, DEMO_101_ENGINE_1) == engines.replay(db, DEMO_101_ENGINE_1)
+
+
+def test_a_kept_state_of_an_older_format_is_rebuilt_not_read(removal, db):
+    removal.walk_to("input-first")   # tags T-1 and T-2 hang
+    replayed = engines.replay(db, DEMO_101_ENGINE_1)
+    assert set(replayed.tags) == {"T-1", "T-2"}
+    # A station upgraded from a layout without tags in the kept value: never read as "none".
+    db.execute("update engine_state set state = ? where engine_id = ?",
+               ['{"format": 1, "positions": {}, "disturbed": [], "clocks": {}, '
+                '"removed": [], "open_items": []}', DEMO_101_ENGINE_1])
+    assert engines.current(db, DEMO_101_ENGINE_1) == replayed

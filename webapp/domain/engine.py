@@ -17,7 +17,7 @@ from datetime import datetime
 from typing import Any, Literal
 
 from .errors import RuleRefusal
-from .gates import ChannelClock, DutyPeriod, PowerOff
+from .gates import TAG_EVENT_KINDS, ChannelClock, Consent, DutyPeriod, PowerOff, Tag, next_tags
 
 PART_KINDS = ("exciter", "lead", "plug")
 CHANNELS = ("A", "B")
@@ -26,6 +26,8 @@ CONNECTIONS = ("input", "lead")          # what a check step can disconnect and 
 CONNECTION_LABELS = {"input": "low-voltage input disconnected",
                      "lead": "high-tension lead disconnected"}
 RemovalStatus = Literal["unserviceable", "serviceable"]
+# The kept state's layout: a kept value of another format is rebuilt by a replay, never read.
+STATE_FORMAT = 2
 
 
 def position_key(kind: str, channel: str) -> str:
@@ -134,6 +136,7 @@ class EngineState:
     removed: tuple[RemovedPart, ...] = ()
     open_items: tuple[OpenItem, ...] = ()
     checks_due: tuple[CheckDue, ...] = ()
+    tags: Mapping[str, Tag] = field(default_factory=dict)   # lockout tags hanging now
 
     def position(self, kind: str, channel: str) -> Position:
         return self.positions.get(position_key(kind, channel), Position(kind, channel))
@@ -200,7 +203,10 @@ def effects_of(event: Mapping[str, Any]) -> list[Mapping[str, Any]]:
 
 
 def apply_engine_event(state: EngineState, event: Mapping[str, Any]) -> EngineState:
-    """One more event of any job on the engine; an event without effects changes nothing."""
+    """One more event of any job on the engine; an event without effects changes nothing
+    (lockout tag events change the tags, by their kind)."""
+    if event.get("kind") in TAG_EVENT_KINDS:
+        state = replace(state, tags=next_tags(state.tags, event))
     for effect in effects_of(event):
         state = _apply_effect(state, event, effect)
     return state
@@ -327,6 +333,7 @@ def state_as_data(state: EngineState) -> dict[str, Any]:
     def part(p: FittedPart | None) -> dict[str, Any] | None:
         return None if p is None else {**p.__dict__, "usage": dict(p.usage or {}) or None}
     return {
+        "format": STATE_FORMAT,
         "positions": {k: {"kind": p.kind, "channel": p.channel, "fitted": part(p.fitted),
                           "emptied": None if p.emptied is None else dict(p.emptied.__dict__)}
                       for k, p in sorted(state.positions.items())},
@@ -338,6 +345,9 @@ def state_as_data(state: EngineState) -> dict[str, Any]:
                     for r in state.removed],
         "open_items": [dict(i.__dict__) for i in state.open_items],
         "checks_due": [dict(d.__dict__) for d in state.checks_due],
+        "tags": {n: {**t.__dict__, "confirmed_in": sorted(t.confirmed_in),
+                     "consents": [dict(c.__dict__) for c in t.consents]}
+                 for n, t in sorted(state.tags.items())},
     }
 
 
@@ -353,4 +363,7 @@ def state_of(data: Mapping[str, Any]) -> EngineState:
         clocks={k: _clock_of(c) for k, c in data["clocks"].items()},
         removed=tuple(RemovedPart(**r) for r in data["removed"]),
         open_items=tuple(OpenItem(**i) for i in data["open_items"]),
-        checks_due=tuple(CheckDue(**d) for d in data.get("checks_due", ())))
+        checks_due=tuple(CheckDue(**d) for d in data.get("checks_due", ())),
+        tags={n: Tag(**{**t, "confirmed_in": frozenset(t["confirmed_in"]),
+                        "consents": tuple(Consent(**c) for c in t["consents"])})
+              for n, t in data.get("tags", {}).items()})

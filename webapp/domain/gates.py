@@ -71,29 +71,38 @@ def engine_tags(events: Iterable[Mapping[str, Any]]) -> dict[str, Tag]:
     """The tags active on an engine: a fold over its jobs' tag events in station order."""
     tags: dict[str, Tag] = {}
     for e in events:
-        data, kind = e["data"], e["kind"]
-        number = str(data["tag"]).strip()  # as the checks read it: " T-1 " is tag T-1
-        tag, at = tags.get(number), e["received_at"]
-        if kind == "breaker_tagged" and data.get("confirmed_existing"):
-            if tag is not None:
-                tags[number] = replace(tag, confirmed_in=tag.confirmed_in | {e["job_id"]})
-        elif kind == "breaker_tagged":
-            tags[number] = Tag(number, data["breaker"], e["person_id"], e["job_id"],
-                               e["person_id"], at, at)
-        elif tag is None:
-            continue
-        elif kind == "tag_taken_over":
-            tags[number] = replace(tag, owner_id=e["person_id"], job_id=e["job_id"],
-                                   owner_since=at, consents=(), handovers=tag.handovers + 1)
-        elif kind == "tag_removed":
-            del tags[number]
-        elif kind in CONSENT_KINDS:
-            # An owner's later hand-over replaces their earlier one (they changed their mind).
-            kept = tuple(c for c in tag.consents
-                         if not (kind == "tag_handed_over" and c.kind == kind))
-            consent = Consent(kind, str(e.get("id", "")), e["person_id"], data.get("to"),
-                              e["job_id"], at, str(data.get("reason", "")))
-            tags[number] = replace(tag, consents=(*kept, consent))
+        tags = next_tags(tags, e)
+    return tags
+
+
+def next_tags(tags: Mapping[str, Tag], e: Mapping[str, Any]) -> dict[str, Tag]:
+    """The tags after one more event of any job on the engine (other kinds change nothing)."""
+    data, kind = e["data"], e["kind"]
+    if kind not in TAG_EVENT_KINDS:
+        return dict(tags)
+    tags = dict(tags)
+    number = str(data["tag"]).strip()  # as the checks read it: " T-1 " is tag T-1
+    tag, at = tags.get(number), e["received_at"]
+    if kind == "breaker_tagged" and data.get("confirmed_existing"):
+        if tag is not None:
+            tags[number] = replace(tag, confirmed_in=tag.confirmed_in | {e["job_id"]})
+    elif kind == "breaker_tagged":
+        tags[number] = Tag(number, data["breaker"], e["person_id"], e["job_id"],
+                           e["person_id"], at, at)
+    elif tag is None:
+        pass
+    elif kind == "tag_taken_over":
+        tags[number] = replace(tag, owner_id=e["person_id"], job_id=e["job_id"],
+                               owner_since=at, consents=(), handovers=tag.handovers + 1)
+    elif kind == "tag_removed":
+        del tags[number]
+    elif kind in CONSENT_KINDS:
+        # An owner's later hand-over replaces their earlier one (they changed their mind).
+        kept = tuple(c for c in tag.consents
+                     if not (kind == "tag_handed_over" and c.kind == kind))
+        consent = Consent(kind, str(e.get("id", "")), e["person_id"], data.get("to"),
+                          e["job_id"], at, str(data.get("reason", "")))
+        tags[number] = replace(tag, consents=(*kept, consent))
     return tags
 
 

@@ -330,7 +330,7 @@ def _sign_record(db: store.Database, job_id: int, state: JobState, event: dict[s
 
 def engine_tags(db: store.Database, engine_id: int) -> dict[str, Tag]:
     """The lockout tags hanging on an engine's breakers now, from all its jobs."""
-    return gates.engine_tags(jobs.engine_events(db, engine_id, gates.TAG_EVENT_KINDS))
+    return dict(engines.current(db, engine_id).tags)
 
 
 def _device_time(text: str | None) -> datetime | None:

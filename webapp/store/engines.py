@@ -18,6 +18,7 @@ from sqlite_utils import Database
 
 from ..domain.engine import (
     PART_LABELS,
+    STATE_FORMAT,
     EngineState,
     apply_engine_event,
     effects_of,
@@ -26,6 +27,7 @@ from ..domain.engine import (
     state_as_data,
     state_of,
 )
+from ..domain.gates import TAG_EVENT_KINDS
 from ..domain.parts import AllowedPart, Whereabouts
 from . import new_row_id
 
@@ -62,8 +64,8 @@ def _starting_parts(db: Database, engine_id: int) -> list[dict[str, Any]]:
 
 def replay(db: Database, engine_id: int) -> EngineState:
     """The engine's state rebuilt from its starting configuration and every event."""
-    rows = db.query("select e.id, e.job_id, e.step_id, e.kind, e.data, e.received_at, "
-                    "e.device_time from events e join jobs j on j.id = e.job_id "
+    rows = db.query("select e.id, e.job_id, e.step_id, e.kind, e.data, e.person_id, "
+                    "e.received_at, e.device_time from events e join jobs j on j.id = e.job_id "
                     "where j.engine_id = ? order by e.rowid", [engine_id])
     events = ({**r, "data": json.loads(r["data"])} for r in rows)
     return engine_state(starting_state(_starting_parts(db, engine_id)), events)
@@ -72,8 +74,9 @@ def replay(db: Database, engine_id: int) -> EngineState:
 def current(db: Database, engine_id: int) -> EngineState:
     """The engine's state now: the kept value, or (first use) a replay, then kept."""
     rows = list(db.query("select state from engine_state where engine_id = ?", [engine_id]))
-    if rows:
-        return state_of(json.loads(rows[0]["state"]))
+    kept = json.loads(rows[0]["state"]) if rows else None
+    if kept is not None and kept.get("format") == STATE_FORMAT:
+        return state_of(kept)
     state = replay(db, engine_id)
     _keep(db, engine_id, state)
     return state
@@ -93,7 +96,7 @@ def record_event_effects(db: Database, engine_id: int, before: EngineState,
     the parts it fitted or removed in the part register. `before` is the state the rules
     checked the event against."""
     effects = effects_of(event)
-    if not effects:
+    if not effects and event.get("kind") not in TAG_EVENT_KINDS:
         return before
     after = apply_engine_event(before, event)
     _keep(db, engine_id, after)
