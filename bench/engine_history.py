@@ -138,11 +138,11 @@ def main() -> int:
             for measure, size in work:
                 engine_id, job_id = station.engines[size]
                 if measure == "record":
-                    took = timed(lambda: station.record(job_id))
+                    took = timed(lambda j=job_id: station.record(j))
                 elif measure == "engine_page":
-                    took = timed(lambda: client.get(f"/fleet/engines/{engine_id}"))
+                    took = timed(lambda e=engine_id: client.get(f"/fleet/engines/{e}"))
                 else:
-                    took = timed(lambda: engines.replay(station.db, engine_id))
+                    took = timed(lambda e=engine_id: engines.replay(station.db, e))
                 if round_ >= args.warmup:
                     samples.setdefault((measure, size), []).append(took * 1000)
         for size in sizes:
