@@ -15,7 +15,7 @@ from playwright.sync_api import expect
 
 from tests.conftest import DEMO_PASSWORDS, DEMO_PINS, LoggedIn
 from tests.pdf_text import pdf_text
-from tests.web.jobs import Job, _event
+from tests.web.jobs import functional_check_counted
 from webapp import create_app, store
 from webapp.records.signing import verify_record
 from webapp.station.authority import station_authority
@@ -51,11 +51,9 @@ def check_job(live_server, db_path, station_clock):
     app = create_app({"DB_PATH": str(db_path), "SECRET_KEY": "pre-walk-secret",
                       "CLOCK": station_clock, "TESTING": True})
     db = store.connect(db_path)
-    job = Job(LoggedIn(app.test_client(), "mech1"), db, station_clock, PROCEDURE, channel=None)
-    job.walk_to("count-both")
-    job.ok(_event("count-both", "sparks_counted", method="timed", count=70, window_s=30),
-           client=LoggedIn(app.test_client(), "mech2"))  # demo check count, as the walk's
-    job.walk_to("ignition-off")
+    job = functional_check_counted(LoggedIn(app.test_client(), "mech1"),
+                                   LoggedIn(app.test_client(), "mech2"), db, station_clock,
+                                   until="ignition-off")
     yield job
     db.close()
 

@@ -24,6 +24,17 @@ def exciter_removed(client, db, clock, channel="A", engine=DEMO_101_ENGINE_1):
     return removal
 
 
+def functional_check_counted(mech1, mech2, db, clock, until="sign-selector"):
+    """A functional check walked by mech1 with mech2 at the engine counting the snaps with
+    both channels on (so both did work on it), up to `until`."""
+    job = Job(mech1, db, clock, "ignition-functional-check", channel=None)
+    job.walk_to("count-both")
+    job.ok(_event("count-both", "sparks_counted", method="timed", count=70, window_s=30),
+           client=mech2)  # demo check count, as the job walk's
+    job.walk_to(until)
+    return job
+
+
 class Job:
     """One job driven through the API, with the station's clock at hand."""
 

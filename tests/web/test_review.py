@@ -6,7 +6,7 @@ import pytest
 
 from tests.conftest import DEMO_PINS, csrf_token_of
 from tests.pdf_text import pdf_text
-from tests.web.jobs import Job, _event
+from tests.web.jobs import _event, functional_check_counted
 from webapp.records.signing import empty_signature_fields, verify_record
 from webapp.station.authority import station_authority
 from webapp.store import signers
@@ -18,11 +18,7 @@ def signed_check(login, db, clock):
     mech2, at the engine, counts the snaps with both channels on (a performer signs only
     work they recorded)."""
     mech1, mech2 = login("mech1"), login("mech2")
-    job = Job(mech1, db, clock, "ignition-functional-check", channel=None)
-    job.walk_to("count-both")
-    job.ok(_event("count-both", "sparks_counted", method="timed", count=70, window_s=30),
-           client=mech2)  # demo check count, as the job walk's
-    job.walk_to("sign-selector")
+    job = functional_check_counted(mech1, mech2, db, clock)
     job.ok(_event("sign-selector", "signed", pin=DEMO_PINS["mech1"]))
     job.ok(_event("sign-engine", "signed", pin=DEMO_PINS["mech2"]), client=mech2)
     return job

@@ -14,7 +14,7 @@ import pytest
 
 from tests.conftest import DEMO_PASSWORDS, DEMO_PINS, LoggedIn
 from tests.pdf_text import pdf_text
-from tests.web.jobs import Job, _event
+from tests.web.jobs import Job, _event, functional_check_counted
 from webapp.station.accounts import enrol
 from webapp.station.authority import station_authority
 from webapp.station.library import load_shop_library
@@ -33,11 +33,7 @@ def check(login, db, clock):
     """A functional check walked by mech1, with mech2 counting the snaps at the engine: both
     did work on it. Waits at its first performer line (sign-selector)."""
     mech1, mech2 = login("mech1"), login("mech2")
-    job = Job(mech1, db, clock, "ignition-functional-check", channel=None)
-    job.walk_to("count-both")
-    job.ok(_event("count-both", "sparks_counted", method="timed", count=70, window_s=30),
-           client=mech2)  # demo check count, as the job walk's
-    job.walk_to("sign-selector")
+    job = functional_check_counted(mech1, mech2, db, clock)
     job.mech2 = mech2
     return job
 
