@@ -121,7 +121,7 @@ def demo(db_path: Path | None, host: str, port: int, https: bool, extra_names: t
     finally:
         db.close()
     click.echo(f"Demo scenario '{chosen.name}' built in {path}"
-               + (f", with {len(opened)} job(s) under way" if opened else ""))
+               + (f", with {len(opened)} demo job(s) (see the README)" if opened else ""))
     click.echo("Demo log-ins (username / password / signing PIN / role):")
     for username, password, pin, roles in demo_logins(chosen):
         click.echo(f"  {username:8} {password:14} {pin:8} {roles}")

@@ -12,7 +12,8 @@ import xml.etree.ElementTree as ET
 
 import pytest
 
-from tests.web.jobs import Job, _event
+from tests.web.jobs import DEMO_101_ENGINE_1, Job, _event, exciter_removed
+from webapp.store import fleet as fleet_store
 
 SVG = "{http://www.w3.org/2000/svg}"
 
@@ -176,3 +177,23 @@ def test_plug_page_compares_the_usage_measures(mechanic, db):
     assert 'data-testid="measure-continuous_ignition_hours"' in html
     block = html.split('data-testid="measure-continuous_ignition_hours"')[1].split("</tr>")[0]
     assert "yes" in block
+
+
+def test_a_new_exciter_does_not_inherit_its_predecessor_s_readings(mechanic, db, clock):
+    check = Job(mechanic, db, clock, "ignition-functional-check", channel=None)
+    check.walk_to("count-a")
+    check.ok(_event("count-a", "sparks_counted", method="timed", count=36, window_s=30))
+    check.walk_to("input-current-a")
+    check.ok(_event("input-current-a", "reading_recorded", value="1.9", unit="A"))
+    clock.advance(3600)
+    exciter_removed(mechanic, db, clock, channel="A")
+    installation = Job(mechanic, db, clock, "exciter-installation", channel="A")
+    installation.walk_to("performer")   # a new serial goes on channel A
+    html = mechanic.get("/fleet/wear").get_data(as_text=True)
+    cells = dict(re.findall(r'<tr data-testid="exciter-([^"]+)">(.*?)</tr>', html, re.S))
+    new = fleet_store.engine(db, DEMO_101_ENGINE_1)["components"]
+    serial = next(c["serial"] for c in new if c["kind"] == "exciter" and c["channel"] == "A")
+    assert serial.startswith("N")                     # the demo walk's new serial
+    text = " ".join(cells[serial].split())
+    assert "input current a" not in text              # the old unit's 1.9 A is not its
+    assert f"job {installation.id}" in text           # its own installation's readings are

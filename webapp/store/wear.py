@@ -101,6 +101,10 @@ def installed_exciters(db: Database, reading_procedures: Sequence[str]) -> list[
         "and (j.channel = c.channel or (j.channel is null and "
         "(ev.step_id like '%-' || lower(c.channel) "
         "or ev.step_id like '%-' || lower(c.channel) || '-%'))) "
+        # Only readings taken while this serial was the one fitted there (since its fitting,
+        # when a job fitted it): a new exciter does not inherit its predecessor's readings.
+        "and ev.received_at >= coalesce((select max(m.fitted_at) from part_moves m "
+        "where m.component_id = c.id and m.engine_id = j.engine_id), '') "
         "order by ev.rowid desc", list(reading_procedures))
     seen: set[tuple[int, str]] = set()
     for row in rows:
