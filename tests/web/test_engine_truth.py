@@ -10,6 +10,7 @@ import re
 import pytest
 
 from tests.web.jobs import DEMO_101_ENGINE_1, Job, _event
+from webapp.records.pdf import record_html
 from webapp.store import engines
 from webapp.store import fleet as fleet_store
 
@@ -207,7 +208,7 @@ def test_a_serial_fitted_elsewhere_cannot_go_on_and_one_removed_unserviceable_ne
 
 
 def test_a_deferred_defect_is_an_open_item_until_a_later_job_closes_it(mechanic, db, clock,
-                                                                         login):
+                                                                         app):
     lead = Job(mechanic, db, clock, "ignition-lead-inspection", channel="A")
     lead.walk_to("routing-clamps")
     lead.ok(_event("routing-clamps", "reading_recorded", result="fail"))
@@ -229,6 +230,11 @@ def test_a_deferred_defect_is_an_open_item_until_a_later_job_closes_it(mechanic,
     assert later.post(_event(None, "item_closed", item=item.id, how=" ")).status_code == 422
     later.ok(_event(None, "item_closed", item=item.id, how="Cushion replaced, WO 88"))
     assert engines.current(db, DEMO_101_ENGINE_1).open_items == ()
+    with app.app_context():   # the closing job's record says what it closed and how
+        html = record_html(db, later.id, clock(), embedded=True)
+    closed = html.split('data-testid="items-closed"')[1].split("</table>")[0]
+    assert "open item DD-7: Clamp 4 cushion perished" in closed
+    assert "Cushion replaced, WO 88" in closed
     assert engines.current(db, DEMO_101_ENGINE_1) == engines.replay(db, DEMO_101_ENGINE_1)
 
 

@@ -108,6 +108,7 @@ class WorkRecord:
     refusals: list[Entry] = field(default_factory=list)
     record_revision: int = 1   # 1, then one more after each return and each amendment
     returns: list[Entry] = field(default_factory=list)      # sent back by a supervisor
+    items_closed: list[Entry] = field(default_factory=list)  # engine open items put right
     amendments: list[Entry] = field(default_factory=list)   # corrections after certification
 
     @property
@@ -207,6 +208,10 @@ def gather(db: Database, job_id: int, now: datetime,
                         station_time(r["received_at"]), numbers.get(r["step_id"]),
                         f"{r['rule']}: {r['reason']}")
                   for r in job_store.refusals(db, job_id)],
+        items_closed=[Entry(f"open item {e['data']['reference']}: {e['data']['text']}",
+                            who(e["person_id"]), station_time(e["received_at"]), None,
+                            e["data"]["how"])
+                      for e in events if e["kind"] == "item_closed"],
         returns=[Entry(r["data"]["reason"], who(r["person_id"]), station_time(r["received_at"]),
                        numbers.get(r["data"].get("repeat_from") or ""),
                        "work done again from this step on" if r["data"].get("repeat_from")
