@@ -104,6 +104,10 @@ def test_energising_is_refused_while_another_job_has_the_channel_open(removal, m
     assert "low-voltage input disconnected" in refused["reason"]
     page = mechanic.get(f"/jobs/{check.id}").get_data(as_text=True)
     assert 'data-testid="channel-not-whole-A"' in page
+    # The job's JSON (what a tablet keeps) says the same.
+    engine = check.state()["engine_state"]
+    assert engine["not_whole"]["B"] == []
+    assert any(f"job {removal.id}" in why for why in engine["not_whole"]["A"])
 
 
 def test_the_duty_cycle_clock_carries_from_one_job_to_the_next(mechanic, db, clock):

@@ -13,10 +13,13 @@ from uuid import UUID
 from flask import Blueprint, jsonify, request, url_for
 from pydantic import AwareDatetime, BaseModel, ConfigDict, Field, ValidationError
 
+from ..domain.checks import job_progress
+from ..domain.engine import EngineState
 from ..domain.execution import CLIENT_EVENT_KINDS, JobState, StepProgress
 from ..domain.gates import ChannelClock
 from ..domain.procedures import Check, Lockout, Reading, Torque
 from ..station import recording
+from ..store import engines
 from ..store import fleet as fleet_store
 from .common import SUPERVISOR_EVENTS, authority, db, now, person, public, requires
 from .openapi import openapi_document
@@ -110,8 +113,19 @@ def job_json(row: dict[str, Any], state: JobState) -> dict[str, Any]:
         "readings": list(state.readings),
         "awaiting_finding": sorted(state.awaiting_finding),
         "ignition": {channel: _clock_json(clock, now_) for channel, clock in state.clocks.items()},
+        "progress": job_progress(state),
+        "engine_state": _engine_json(engines.current(db(), row["engine_id"]), now_),
         "url": url_for("mechanic.job", job_id=row["id"]),
     }
+
+
+def _engine_json(engine: EngineState, at: datetime) -> dict[str, Any]:
+    return {"not_whole": {c: engine.not_whole(c) for c in ("A", "B")},
+            "exciter_clocks": {c: _clock_json(clock, at)
+                               for c, clock in engine.channel_clocks().items()},
+            "checks_due": [d.said() for d in engine.checks_due],
+            "open_items": [{"id": i.id, "reference": i.reference, "text": i.text,
+                            "limit": i.limit, "job": i.job_id} for i in engine.open_items]}
 
 
 @bp.get("/healthz")

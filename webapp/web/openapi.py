@@ -30,7 +30,16 @@ EVENT_DATA = (
     "{engine_hours, starts, continuous_ignition_hours, continuous_ignition_estimated}; "
     "torque adds wrench_id, calibration_due (YYYY-MM-DD) and adapter {wrench_length, "
     "extension}. finding (after an out-of-limits reading): {\"text\", \"disposition\": "
-    "replaced|re-tested|deferred, \"reference\" (for deferred)}. sparks_counted (spark "
+    "replaced|re-tested|deferred, \"reference\" and \"limit\" (hours, cycles or date; for "
+    "deferred: the defect becomes an open item of the engine)}. part_recorded (part step): "
+    "{\"part_number\", \"serial\", \"usage\": {engine_hours, starts, "
+    "continuous_ignition_hours (optional)}} plus, for a removal, \"status\": "
+    "unserviceable|serviceable, \"reason\": scheduled|failed|robbed, \"tag\"; for an "
+    "installation, \"release\" (release certificate reference), \"condition\": new|"
+    "overhauled|serviceable used. A removed serial other than the one fitted is stored "
+    "with verdict mismatch and needs a finding. item_closed (any step): {\"item\": the open "
+    "item's id, \"how\"}. Events that change the engine are stored with their effects "
+    "under data.engine. sparks_counted (spark "
     "count step): {\"method\": \"taps\", \"taps\": [seconds, ...]} or {\"method\": \"timed\", "
     "\"count\", \"window_s\"}. signed (sign "
     "step, by a person the sign-off rules allow): {\"pin\"} (used, never stored); the "
@@ -104,6 +113,17 @@ _JOB = {
                          "on_remaining_s": {"type": ["number", "null"]},
                          "next_on_allowed_in_s": {"type": "number"},
                          "runs": {"type": "integer"}, "overrun_s": {"type": "number"}}}},
+        "progress": {"type": "string", "description": "in work, returned, waiting for "
+                     "inspection, waiting for certification, released, closed, not released"},
+        "engine_state": {"type": "object", "description": "the engine as the station knows "
+                         "it now: why each channel is not whole (empty when it is), the "
+                         "fitted exciters' duty-cycle clocks, functional checks due, open "
+                         "items", "properties": {
+                             "not_whole": {"type": "object", "additionalProperties": {
+                                 "type": "array", "items": {"type": "string"}}},
+                             "exciter_clocks": {"type": "object"},
+                             "checks_due": {"type": "array", "items": {"type": "string"}},
+                             "open_items": {"type": "array", "items": {"type": "object"}}}},
         "url": {"type": "string"},
     },
 }
