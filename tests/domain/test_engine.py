@@ -26,6 +26,7 @@ START = [
     for k, pn, t in (("exciter", "XEX-1001-03", "dc"), ("lead", f"XHL-330-{c}", "ht-lead"),
                      ("plug", "XIP-2207", "surface-discharge"))
 ]
+CONNECTIONS = ["input", "lead_at_exciter", "lead_at_plug"]
 # Demo duty cycle (invented demo data): on 2 min, off 3 min, on 2 min, off 23 min.
 DUTY = [[120.0, 180.0], [120.0, 1380.0]]
 
@@ -73,14 +74,25 @@ def test_a_removed_exciter_leaves_its_position_empty_with_the_job_and_step_that_
 def test_a_connection_opened_in_one_job_stays_open_until_any_job_restores_it():
     state = engine_state(starting_state(START), [
         event(3, [{"effect": "disturb", "what": "input", "channel": "A"}], step="disconnect"),
-        event(3, [{"effect": "disturb", "what": "lead", "channel": "A"}], step="leads")])
+        event(3, [{"effect": "disturb", "what": "lead_at_plug", "channel": "A"}], step="leads")])
     assert len(state.not_whole("A")) == 2
     assert "job 3, step disconnect" in state.not_whole("A")[0]
-    state = apply_engine_event(state, event(9, [{"effect": "restore", "what": "lead",
+    state = apply_engine_event(state, event(9, [{"effect": "restore", "what": "lead_at_plug",
                                                  "channel": "A"}]))
     state = apply_engine_event(state, event(9, [{"effect": "restore", "what": "input",
                                                  "channel": "A"}]))
     assert state.not_whole("A") == []
+
+
+def test_putting_back_one_end_of_a_lead_does_not_close_the_other_end():
+    # Two jobs on channel A: an exciter change has the lead off the exciter, a plug change has
+    # it off the plug. Reconnecting at the exciter leaves the plug end open.
+    state = engine_state(starting_state(START), [
+        event(1, [{"effect": "disturb", "what": "lead_at_exciter", "channel": "A"}]),
+        event(2, [{"effect": "disturb", "what": "lead_at_plug", "channel": "A"}]),
+        event(1, [{"effect": "restore", "what": "lead_at_exciter", "channel": "A"}])])
+    assert state.not_whole("A") == [
+        "high-tension lead disconnected at the plug in job 2, step s"]
 
 
 def test_an_installed_part_fills_the_position_and_names_its_job():
@@ -133,9 +145,9 @@ def _random_effects(rng: random.Random) -> list[dict]:
     if choice == 1:
         return [install(kind, channel, f"S{rng.randrange(5)}")]
     if choice == 2:
-        return [{"effect": "disturb", "what": rng.choice(["input", "lead"]), "channel": channel}]
+        return [{"effect": "disturb", "what": rng.choice(CONNECTIONS), "channel": channel}]
     if choice == 3:
-        return [{"effect": "restore", "what": rng.choice(["input", "lead"]), "channel": channel}]
+        return [{"effect": "restore", "what": rng.choice(CONNECTIONS), "channel": channel}]
     if choice == 4:
         return [{"effect": "energise", "channel": channel, "duty": DUTY}]
     if choice == 5:

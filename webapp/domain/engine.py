@@ -22,9 +22,9 @@ from .gates import TAG_EVENT_KINDS, ChannelClock, Consent, DutyPeriod, PowerOff,
 PART_KINDS = ("exciter", "lead", "plug")
 CHANNELS = ("A", "B")
 PART_LABELS = {"exciter": "exciter", "lead": "high-tension lead", "plug": "igniter plug"}
-CONNECTIONS = ("input", "lead")          # what a check step can disconnect and reconnect
 CONNECTION_LABELS = {"input": "low-voltage input disconnected",
-                     "lead": "high-tension lead disconnected"}
+                     "lead_at_exciter": "high-tension lead disconnected at the exciter",
+                     "lead_at_plug": "high-tension lead disconnected at the plug"}
 RemovalStatus = Literal["unserviceable", "serviceable"]
 # The kept state's layout: a kept value of another format is rebuilt by a replay, never read.
 STATE_FORMAT = 2

@@ -19,8 +19,9 @@ STEP_KINDS = (
     "note", "caution", "warning", "check", "lockout", "discharge_wait",
     "reading", "spark_count", "ignition_run", "torque", "part", "sign",
 )
-PART_KINDS = ("exciter", "lead", "plug")
-CONNECTIONS = ("input", "lead")
+# What a check step can disconnect and reconnect on its channel: the exciter's low-voltage
+# input, and the high-tension lead at either end (two jobs may each have one end open).
+Connection = Literal["input", "lead_at_exciter", "lead_at_plug"]
 ADVISORY_KINDS = ("warning", "caution", "note")  # in the order they must stand
 EXCITER_TYPES = ("dc", "transistorised", "ac")
 PLUG_TYPES = ("air-gap", "surface-discharge")
@@ -180,8 +181,8 @@ class Check(_Step):
     ignition_off: bool = False  # ticking it records every energised exciter switched off
     # What ticking it does to the engine's channel: a connection opened (the channel is not
     # whole until some job restores it) or put back.
-    disturbs: list[Literal["input", "lead"]] = Field(default_factory=list)
-    restores: list[Literal["input", "lead"]] = Field(default_factory=list)
+    disturbs: list[Connection] = Field(default_factory=list)
+    restores: list[Connection] = Field(default_factory=list)
 
 
 class Breaker(_Strict):
