@@ -251,3 +251,16 @@ def test_a_kept_state_of_an_older_format_is_rebuilt_not_read(removal, db):
                ['{"format": 1, "positions": {}, "disturbed": [], "clocks": {}, '
                 '"removed": [], "open_items": []}', DEMO_101_ENGINE_1])
     assert engines.current(db, DEMO_101_ENGINE_1) == replayed
+
+
+def test_a_plate_naming_a_serial_fitted_elsewhere_leaves_the_other_engine_s_record(removal,
+                                                                                   db):
+    elsewhere = fitted(db, "exciter", "B", engine=3)   # DEMO-102 engine 1
+    removal.walk_to("removed-exciter")
+    answer = removal.ok(removal_of(db, serial=elsewhere.serial)).get_json()
+    assert answer["data"]["verdict"] == "mismatch"     # a finding must follow
+    # This position is empty; the other engine's record is not changed from here.
+    assert fitted(db) is None
+    assert fitted(db, "exciter", "B", engine=3) == elsewhere
+    row = fleet_store.component_by_serial(db, elsewhere.part_number, elsewhere.serial)
+    assert (row["engine_id"], row["channel"]) == (3, "B")

@@ -110,26 +110,38 @@ def record_event_effects(db: Database, engine_id: int, before: EngineState,
 
 def _part_removed(db: Database, engine_id: int, before: EngineState, event: Mapping[str, Any],
                   effect: Mapping[str, Any]) -> None:
-    # The register's fitted part leaves the position; the serial read off the plate (the
-    # same, unless the finding says the record was wrong) gets the removal's status.
+    """The register's fitted part leaves the position. A plate that said otherwise (a
+    mismatch, with its finding) is registered as removed from here too, unless the register
+    has that serial fitted elsewhere: then the two records disagree, and the finding says
+    so; the other engine's record is not changed from this one."""
+    removal = {"removed_job": event["job_id"], "removed_at": event["received_at"],
+               "removed_usage": json.dumps(effect.get("usage")),
+               "status": effect["status"], "reason": effect["reason"], "tag": effect["tag"]}
     fitted = before.fitted(effect["kind"], effect["channel"])
-    gone = [(fitted.part_number, fitted.serial)] if fitted else []
-    gone.append((effect["part_number"], effect["serial"]))
-    for part_number, serial in dict.fromkeys(gone):
-        component = _component(db, effect["kind"], part_number, serial, None)
+    if fitted is not None:
+        component = _component(db, effect["kind"], fitted.part_number, fitted.serial,
+                               fitted.type)
         db.execute("update components set engine_id = null, channel = null where id = ?",
                    [component])
-        moves = list(db.query("select id from part_moves where component_id = ? and "
-                              "removed_job is null order by id desc limit 1", [component]))
-        removal = {"removed_job": event["job_id"], "removed_at": event["received_at"],
-                   "removed_usage": json.dumps(effect.get("usage")),
-                   "status": effect["status"], "reason": effect["reason"], "tag": effect["tag"]}
-        if moves:
-            db.table("part_moves").update(moves[0]["id"], removal)
-        else:  # fitted since the starting configuration
-            db.table("part_moves").insert({"component_id": component, "engine_id": engine_id,
-                                           "kind": effect["kind"],
-                                           "channel": effect["channel"], **removal})
+        _close_move(db, component, engine_id, effect, removal)
+    if fitted is None or (fitted.part_number, fitted.serial) != (effect["part_number"],
+                                                                  effect["serial"]):
+        plate = _component(db, effect["kind"], effect["part_number"], effect["serial"], None)
+        row = db.table("components").get(plate)
+        if row["engine_id"] is None:
+            _close_move(db, plate, engine_id, effect, removal)
+
+
+def _close_move(db: Database, component: int, engine_id: int, effect: Mapping[str, Any],
+                removal: dict[str, Any]) -> None:
+    moves = list(db.query("select id from part_moves where component_id = ? and "
+                          "removed_job is null order by id desc limit 1", [component]))
+    if moves:
+        db.table("part_moves").update(moves[0]["id"], removal)
+    else:  # fitted since the starting configuration (or never registered as fitted)
+        db.table("part_moves").insert({"component_id": component, "engine_id": engine_id,
+                                       "kind": effect["kind"], "channel": effect["channel"],
+                                       **removal})
 
 
 def _part_fitted(db: Database, engine_id: int, event: Mapping[str, Any],
