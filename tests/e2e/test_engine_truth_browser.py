@@ -20,6 +20,7 @@ from tests.web.jobs import DEMO_101_ENGINE_1, Job, _event
 from webapp.store import engines
 
 from .conftest import fill_part, log_in, tap
+from .test_tablet_grade import _audit
 
 ARTIFACTS = Path(__file__).resolve().parents[1] / "artifacts"
 NEW_SERIAL = "XE-9001"            # invented
@@ -49,6 +50,7 @@ def test_remove_refuse_install_release_and_every_page_agrees(browser, live_serve
     step = page.get_by_test_id("step")
     expect(step).to_have_attribute("data-step-id", "removed-exciter")
     expect(page.get_by_test_id("fitted-serial")).to_have_text(removed.serial)
+    _audit(page, "part removal step")
     fill_part(page, removed.part_number, removed.serial, removed=True, tag_or_release="U-0042")
     expect(step).to_have_attribute("data-step-id", "performer")
     page.goto(f"{live_server}/fleet/engines/{DEMO_101_ENGINE_1}")
@@ -140,6 +142,11 @@ def test_remove_refuse_install_release_and_every_page_agrees(browser, live_serve
     expect(page.get_by_test_id("open-items")).to_have_count(0)   # no check due any more
     page.screenshot(path=str(ARTIFACTS / "engine-page-after-exciter-change.png"),
                     full_page=True)
+    _audit(page, "engine page with a removed part")
+    page.get_by_test_id(f"removed-{removed.serial}").get_by_role("link").click()
+    expect(page.get_by_test_id("part-where")).to_contain_text("last removed unserviceable")
+    expect(page.get_by_test_id("move-1")).to_contain_text(f"job {removal.id}")
+    _audit(page, "a part's history")
     page.goto(f"{live_server}/fleet")
     fitted = page.get_by_test_id("fitted-exciters-QT6-10231")
     expect(fitted).to_contain_text(f"A {NEW_SERIAL}")
