@@ -10,6 +10,8 @@ import re
 import pytest
 
 from tests.web.jobs import DEMO_101_ENGINE_1, Job, _event
+from webapp.domain import gates
+from webapp.domain.errors import RuleRefusal
 from webapp.records.pdf import record_html
 from webapp.store import engines
 from webapp.store import fleet as fleet_store
@@ -264,3 +266,30 @@ def test_a_plate_naming_a_serial_fitted_elsewhere_leaves_the_other_engine_s_reco
     assert fitted(db, "exciter", "B", engine=3) == elsewhere
     row = fleet_store.component_by_serial(db, elsewhere.part_number, elsewhere.serial)
     assert (row["engine_id"], row["channel"]) == (3, "B")
+
+
+def test_a_hot_exciter_moved_to_another_engine_keeps_its_off_time(mechanic, db, clock):
+    # DEMO-101 engine 2 channel A is emptied first (its exciter off for repair).
+    Job(mechanic, db, clock, "exciter-removal", channel="A", engine=2).walk_to("performer")
+    # Engine 1's channel A exciter runs one minute (demo duty cycle, invented: on 2 min,
+    # then off 3 min), then comes off, robbed for engine 2, within its off time.
+    check = Job(mechanic, db, clock, "ignition-functional-check", channel=None)
+    check.walk_to("run-a-dc")
+    check.ok(_event("run-a-dc", "energised"))
+    clock.advance(60)
+    check.ok(_event(None, "de_energised", channel="A"))
+    hot = fitted(db)
+    removal = Job(mechanic, db, clock, "exciter-removal", channel="A")
+    removal.walk_to("removed-exciter")          # the walk waits out the 2 min discharge
+    removal.ok(removal_of(db, status="serviceable", reason="robbed"))
+    installation = Job(mechanic, db, clock, "exciter-installation", channel="A", engine=2)
+    installation.walk_to("incoming-exciter")
+    installation.ok(fitting(part_number=hot.part_number, serial=hot.serial,
+                            condition="serviceable used"))
+    moved = engines.current(db, 2).clock_for("A")
+    assert moved == engines.current(db, DEMO_101_ENGINE_1).clocks[hot.serial]
+    assert moved.runs == 1 and moved.off_remaining_s(clock()) == 60   # 180 s - 120 s
+    with pytest.raises(RuleRefusal) as refused:
+        gates.check_energise({"A": moved}, ["A"], clock(), None)
+    assert refused.value.rule == "duty_cycle_off"
+    assert engines.current(db, 2) == engines.replay(db, 2)

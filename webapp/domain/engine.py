@@ -242,8 +242,12 @@ def _apply_effect(state: EngineState, event: Mapping[str, Any],
         fitted = FittedPart(effect["part_number"], effect["serial"], effect["type"],
                             event["job_id"], at, effect.get("usage"), effect.get("release"),
                             effect.get("condition"))
+        clocks = state.clocks
+        if isinstance(effect.get("clock"), Mapping):   # it came from another engine
+            clocks = {**clocks, effect["serial"]: clock_of(effect["clock"])}
         return replace(state, positions={**state.positions,
-                                         key: Position(effect["kind"], channel, fitted)})
+                                         key: Position(effect["kind"], channel, fitted)},
+                       clocks=clocks)
     if what == "energise":
         exciter = state.fitted("exciter", channel)
         if exciter is None:
@@ -307,7 +311,7 @@ def check_channels_whole(state: EngineState, channels: Sequence[str]) -> None:
 
 # --- the kept value, as JSON ----------------------------------------------------------------
 
-def _clock_data(clock: ChannelClock) -> dict[str, Any]:
+def clock_data(clock: ChannelClock) -> dict[str, Any]:
     def times(t: PowerOff | None) -> list[str | None] | None:
         return None if t is None else [t.station.isoformat(),
                                        t.device.isoformat() if t.device else None]
@@ -316,7 +320,7 @@ def _clock_data(clock: ChannelClock) -> dict[str, Any]:
             "period": clock.period, "runs": clock.runs, "overrun_s": clock.overrun_s}
 
 
-def _clock_of(data: Mapping[str, Any]) -> ChannelClock:
+def clock_of(data: Mapping[str, Any]) -> ChannelClock:
     def times(t: list[str | None] | None) -> PowerOff | None:
         if t is None:
             return None
@@ -338,7 +342,7 @@ def state_as_data(state: EngineState) -> dict[str, Any]:
                           "emptied": None if p.emptied is None else dict(p.emptied.__dict__)}
                       for k, p in sorted(state.positions.items())},
         "disturbed": [dict(d.__dict__) for d in state.disturbed],
-        "clocks": {k: _clock_data(c) for k, c in sorted(state.clocks.items())},
+        "clocks": {k: clock_data(c) for k, c in sorted(state.clocks.items())},
         "removed": [{**r.__dict__,
                      "usage_at_fitting": dict(r.usage_at_fitting or {}) or None,
                      "usage_at_removal": dict(r.usage_at_removal or {}) or None}
@@ -360,7 +364,7 @@ def state_of(data: Mapping[str, Any]) -> EngineState:
     return EngineState(
         positions=positions,
         disturbed=tuple(Disturbance(**d) for d in data["disturbed"]),
-        clocks={k: _clock_of(c) for k, c in data["clocks"].items()},
+        clocks={k: clock_of(c) for k, c in data["clocks"].items()},
         removed=tuple(RemovedPart(**r) for r in data["removed"]),
         open_items=tuple(OpenItem(**i) for i in data["open_items"]),
         checks_due=tuple(CheckDue(**d) for d in data.get("checks_due", ())),

@@ -47,6 +47,9 @@ class Whereabouts:
     fitted_at: str | None = None          # "DEMO-101 engine 1, channel A exciter"
     last_removal_status: str | None = None
     last_removal_job: int | None = None
+    # An exciter's duty-cycle clock as the engine it came off last knew it (kept form): it
+    # goes on with the unit, so a hot exciter moved to another engine still cools first.
+    clock: Mapping[str, Any] | None = None
 
 
 def _text(data: Mapping[str, Any], name: str, said: str) -> str:
@@ -174,4 +177,6 @@ def evaluate_part(step: PartChange, data: Mapping[str, Any], channel: str,
     stored["engine"] = [{"effect": "install", "kind": step.part, "channel": channel,
                          **{k: stored[k] for k in ("part_number", "serial", "type", "release",
                                                    "condition", "usage")}}]
+    if step.part == "exciter" and whereabouts.clock is not None:
+        stored["engine"][0]["clock"] = dict(whereabouts.clock)
     return stored

@@ -21,6 +21,7 @@ from ..domain.engine import (
     STATE_FORMAT,
     EngineState,
     apply_engine_event,
+    clock_data,
     effects_of,
     engine_state,
     starting_state,
@@ -176,7 +177,7 @@ def whereabouts(db: Database, kind: str, serial: str) -> Whereabouts:
         "join engines e on e.id = c.engine_id join aircraft a on a.id = e.aircraft_id "
         "where c.kind = ? and c.serial = ? limit 1", [kind, serial]))
     last = list(db.query(
-        "select m.status, m.removed_job from part_moves m join components c "
+        "select m.status, m.removed_job, m.engine_id from part_moves m join components c "
         "on c.id = m.component_id where c.kind = ? and c.serial = ? and m.removed_job is not "
         "null order by m.id desc limit 1", [kind, serial]))
     where = None
@@ -184,8 +185,12 @@ def whereabouts(db: Database, kind: str, serial: str) -> Whereabouts:
         f = fitted[0]
         where = (f"{f['registration']} engine {f['position']}, channel {f['channel']} "
                  f"{PART_LABELS[kind]} ({f['part_number']})")
+    clock = None
+    if last and kind == "exciter":
+        kept = current(db, last[0]["engine_id"]).clocks.get(serial)
+        clock = clock_data(kept) if kept is not None else None
     return Whereabouts(where, last[0]["status"] if last else None,
-                       last[0]["removed_job"] if last else None)
+                       last[0]["removed_job"] if last else None, clock)
 
 
 def part_history(db: Database, component_id: int) -> list[dict[str, Any]]:
