@@ -685,13 +685,23 @@ def test_both_channels_at_a_plus_b_are_consistent():
     assert check["beat_period_s"] == pytest.approx(15.0, rel=EXACT)   # 60 / |72 − 68|
 
 
-def test_lock_step_units_leave_the_combined_count_inconclusive_and_the_verdict_within():
-    # A = B = 72/min: they never drift apart and can sound as one snap (72/min together).
+def test_a_combined_count_at_one_unit_s_rate_is_out_of_limits_even_at_equal_rates():
+    # A = B = 72/min and 72/min heard with both on: one unit is not firing (two
+    # independent units are heard near their sum: tests/domain/test_spark_trains.py).
     stored = readings.evaluate_spark_count(COUNT_BOTH, _timed(36),
                                            {"A": (72.0, 2.0), "B": (72.0, 2.0)})
-    assert stored["both_check"]["result"] == "lock-step: inconclusive"
+    assert stored["both_check"]["result"] == "one unit not firing"
     assert stored["both_check"]["beat_period_s"] is None
-    assert stored["verdict"] == "within"
+    assert stored["verdict"] == "out of limits"
+
+
+def test_a_combined_count_below_the_step_s_minimum_is_out_of_limits_even_if_a_plus_b_agrees():
+    # A 50 and B 52/min (each out of the 55-95 demo limits, dispositioned at their own
+    # steps); both 51 in 30 s = 102/min ≈ A + B, yet under the step's own 110/min minimum.
+    stored = readings.evaluate_spark_count(COUNT_BOTH, _timed(51),
+                                           {"A": (50.0, 2.0), "B": (52.0, 2.0)})
+    assert stored["both_check"]["result"] == "consistent"
+    assert stored["verdict"] == "out of limits"
 
 
 def test_both_channels_at_a_alone_while_b_fires_on_its_own_is_one_unit_not_firing():

@@ -214,13 +214,18 @@ def test_count_out_of_limits_needs_a_finding(check):
 
 def test_both_channels_checked_against_a_plus_b(check):
     check.walk_to("count-both")   # A 36/30 s and B 36/30 s by the walk (demo counts)
-    # A = B = 72 and the ear hears 72 with both on: two units in lock-step sound as one, so
-    # the combined count cannot tell; the single counts decide (no finding is asked for).
+    # A = B = 72 and the ear hears 72 with both on: two independent units are heard near
+    # their sum, so one is not firing: out of limits, and a finding is asked for.
     check.ok(_event("count-both", "sparks_counted", method="timed", count=36, window_s=30))
     reading = check.state()["readings"][-1]
-    assert reading["both_check"]["result"] == "lock-step: inconclusive"
+    assert reading["both_check"]["result"] == "one unit not firing"
     assert reading["both_check"]["expected"] == 144.0
-    assert check.state()["awaiting_finding"] == []
+    assert reading["verdict"] == "out of limits"
+    assert check.state()["awaiting_finding"] == ["count-both"]
+    check.ok(_event("count-both", "finding", text="Channel B silent with both selected",
+                    disposition="re-tested"))
+    check.ok(_event("count-both", "sparks_counted", method="timed", count=72, window_s=30))
+    assert check.state()["readings"][-1]["both_check"]["result"] == "consistent"
 
 
 def test_combined_rate_of_one_channel_says_one_unit_is_not_firing(mechanic, db, clock):

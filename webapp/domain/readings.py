@@ -344,8 +344,6 @@ def evaluate_spark_count(step: SparkCount, data: Mapping[str, Any],
                                 "beat_period_s": check.beat_period_s}
         if check.result in ("inconsistent", "one unit not firing"):
             stored["verdict"] = "out of limits"
-        elif check.result == "lock-step: inconclusive":
-            # The combined count proves nothing; A and B were each judged at their own step
-            # (an out-of-limits one needed its finding), so theirs is the verdict.
-            stored["verdict"] = "within"
+        # Otherwise the combined rate keeps its own verdict against the step's limits: a
+        # combined count below the step's minimum is out of limits, whatever A and B were.
     return stored

@@ -30,13 +30,12 @@ DOUBLE_TAP_FRACTION = 0.5   # an interval under half the median is a second tap 
 MISSED_SNAP_FRACTION = 1.5  # an interval over 1.5 medians hides at least one snap
 
 VerdictWord = Literal["within", "near limit", "out of limits"]
-BothResult = Literal["consistent", "one unit not firing", "lock-step: inconclusive",
-                     "inconsistent"]
+BothResult = Literal["consistent", "one unit not firing", "inconsistent"]
 Channel = Literal["A", "B"]
 
 VERDICT_SYMBOLS: dict[str, str] = {"within": "✓", "near limit": "▲", "out of limits": "✗"}
-BOTH_SYMBOLS: dict[str, str] = {"consistent": "✓", "lock-step: inconclusive": "▲",
-                                "one unit not firing": "✗", "inconsistent": "✗"}
+BOTH_SYMBOLS: dict[str, str] = {"consistent": "✓", "one unit not firing": "✗",
+                                "inconsistent": "✗"}
 
 
 def _fmt(value: float) -> str:
@@ -187,10 +186,13 @@ class Verdict:
 
 
 def rate_verdict(rate: float, low: float, high: float, resolution: float = 0) -> Verdict:
-    """Within, out of limits, or near limit when the count cannot tell (limits inclusive).
+    """Within, near limit or out of limits (limits inclusive), by a guard-banded decision
+    rule: the count's resolution narrows the acceptance zone and never widens it (ISO
+    14253-1:2017 decision rules; ILAC-G8:09/2019 guard band).
 
-    A count good to ±r cannot place a rate less than r from a limit on either
-    side of it; exactly r away it can (the next count step is the limit itself).
+    A rate outside the limits is out of limits, however close. A rate inside them but less
+    than one resolution step from a limit is "near limit": the count cannot prove it inside
+    (count again over a longer window); exactly one step inside, it can.
     """
     rate = _finite_at_least_zero("spark_rate_invalid", "spark rate", rate)
     low = _finite_at_least_zero("rate_limits_invalid", "low limit", low)
@@ -206,10 +208,11 @@ def rate_verdict(rate: float, low: float, high: float, resolution: float = 0) ->
     reading = f"{_fmt(rate)} ± {_fmt(resolution)}/min" if resolution else f"{_fmt(rate)}/min"
     limits = f"{_fmt(low)}–{_fmt(high)}/min"
     word: VerdictWord
-    if abs(rate - low) < resolution or abs(rate - high) < resolution:
+    if margin >= 0 and margin < resolution:
         word = "near limit"
-        message = (f"{reading} is too close to the {nearest} limit of {_fmt(limit)} for the "
-                   f"count to tell which side it is on; count over a longer window.")
+        message = (f"{reading} is inside {limits} but less than the count's resolution from "
+                   f"the {nearest} limit of {_fmt(limit)}: the count cannot prove it inside; "
+                   f"count again over a longer window.")
     elif margin >= 0:
         word = "within"
         message = (f"{reading} is within {limits}, {_fmt(margin)}/min inside the "
@@ -245,13 +248,15 @@ class BothCheck:
 
 def two_channel_check(rate_a: float, rate_b: float, rate_both: float, tolerance: float,
                       resolution: float = 0) -> BothCheck:
-    """Combined ≈ A + B; combined ≈ one channel → the other not firing; lock-step → undecided.
+    """Combined ≈ A + B, or not: combined ≈ one channel → the other is not firing.
 
-    Two unsynchronised units drift in and out of step with the beat period
-    1/|fA − fB|. When that is longer than the counting window (A and B within the
-    count's resolution of each other) their snaps may stay together the whole
-    count and the ear hears one, so the combined count proves nothing. The
-    count's resolution widens every comparison, since each rate is only good to it.
+    Two independent units are not synchronised: even at nearly equal rates their snaps
+    fall at unrelated moments (each unit's spark gap fires when its own capacitor reaches
+    breakdown), so the ear hears about A + B, not one train; a combined count near one
+    unit's rate means one unit is not firing, never "lock-step". (The simulation in
+    tests/domain/test_spark_trains.py shows it.) `beat_period_s` = 1/|fA − fB| is reported
+    as what the ear hears as the uneven rhythm. The count's resolution widens every
+    comparison, since each rate is only good to it.
     """
     a = _finite_at_least_zero("spark_rate_invalid", "rate of unit A", rate_a)
     b = _finite_at_least_zero("spark_rate_invalid", "rate of unit B", rate_b)
@@ -264,7 +269,6 @@ def two_channel_check(rate_a: float, rate_b: float, rate_both: float, tolerance:
     allowance = tolerance + resolution
     beat = None if a == b else 60.0 / abs(a - b)   # f in Hz = rate / 60
     firing_a, firing_b = a > allowance, b > allowance
-    lock_step = firing_a and firing_b and (a == b or abs(a - b) < resolution)
     sums = f"{_fmt(both)}/min with both units against {_fmt(a)} + {_fmt(b)} = {_fmt(expected)}"
 
     result: BothResult
@@ -273,14 +277,6 @@ def two_channel_check(rate_a: float, rate_b: float, rate_both: float, tolerance:
         result = "consistent"
         message = (f"{sums}/min expected: consistent, within ±{_fmt(tolerance)}/min "
                    f"tolerance and ±{_fmt(resolution)}/min count resolution.")
-    elif lock_step:
-        result = "lock-step: inconclusive"
-        beat_words = ("they never drift apart" if beat is None
-                      else f"they take {_fmt(beat)} s to drift apart, longer than the count")
-        message = (f"Units A and B fire at nearly the same rate ({_fmt(a)} and {_fmt(b)}/min): "
-                   f"{beat_words}, so their snaps can sound as one. "
-                   f"The combined count ({_fmt(both)}/min) cannot tell; the single-unit "
-                   f"counts decide.")
     else:
         matches_a = firing_b and abs(both - a) <= allowance
         matches_b = firing_a and abs(both - b) <= allowance
