@@ -88,7 +88,8 @@ def reading_summary(data: dict) -> str:
         if data.get("double_taps"):
             flags.append(f"{len(data['double_taps'])} double tap(s) left out")
         if data.get("missed"):
-            flags.append(f"{sum(m[1] for m in data['missed'])} missed snap(s) counted")
+            flags.append(f"{sum(m[1] for m in data['missed'])} snap(s) inferred missed, "
+                         "not counted")
         if flags:
             shown += " (" + ", ".join(flags) + ")"
         if data.get("both_check"):

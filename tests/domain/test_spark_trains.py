@@ -83,3 +83,23 @@ def test_only_two_jitter_free_units_at_one_rate_in_phase_could_sound_as_one():
     assert heard(a, b) == len(a)
     result = sparks.two_channel_check(72.0, 72.0, len(a) / WINDOW_S * 60.0, TOLERANCE, 2.0)
     assert result.result == "one unit not firing"
+
+
+@pytest.mark.parametrize("rate_a, rate_b", [(72.0, 71.0), (90.0, 60.0), (72.0, 72.0)])
+def test_tapping_two_independent_trains_flags_nothing_and_gives_about_the_sum(rate_a, rate_b):
+    # One tap per snap heard with both units on. The one-unit heuristics would call the
+    # short intervals double taps and the long ones missed snaps; with both on they are real.
+    rng = np.random.default_rng(7)
+    for _ in range(50):
+        a, b = _train(rng, rate_a, JITTER), _train(rng, rate_b, JITTER)
+        taps = np.sort(np.concatenate((a, b)))
+        taps = taps[np.concatenate(([True], np.diff(taps) >= EAR_S))]   # what is heard
+        one_unit = sparks.spark_rate_from_taps(taps.tolist())
+        assert one_unit.double_taps or one_unit.missed   # the one-unit rules misfire here
+        both = sparks.spark_rate_from_taps(taps.tolist(), one_unit=False)
+        assert both.double_taps == () and both.missed == ()
+        assert both.counted_sparks == len(taps)
+        # the mean rate over the taps is well above either unit, up to about A + B (the ear
+        # merges the snaps that fall together)
+        assert max(rate_a, rate_b) + 0.5 * min(rate_a, rate_b) < both.rate_per_min
+        assert both.rate_per_min < 1.1 * (rate_a + rate_b)

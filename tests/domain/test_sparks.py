@@ -55,22 +55,23 @@ def test_a_double_tap_is_flagged_and_not_counted_as_a_spark():
     assert result.counted_sparks == 6
 
 
-def test_a_missed_snap_is_flagged_with_one_missed_and_counted():
+def test_a_missed_snap_is_flagged_as_inferred_and_never_added_to_the_count():
     # Intervals 0.75, 0.75, 1.5, 0.75, 0.75 → median 0.75 → 80/min.
-    # 1.5 > 1.5 × 0.75 = 1.125 → interval 2 hides round(1.5 / 0.75) − 1 = 1 snap.
-    # Sparks 6 taps + 1 missed = 7 (snaps at 0, 0.75, …, 4.5).
+    # 1.5 > 1.5 × 0.75 = 1.125 → interval 2 hides round(1.5 / 0.75) − 1 = 1 snap: inferred,
+    # shown as such; the count is the 6 taps heard.
     result = spark_rate_from_taps([0.0, 0.75, 1.5, 3.0, 3.75, 4.5])
     assert result.rate_per_min == 80.0
     assert result.missed == ((2, 1),)
+    assert result.inferred_missed == 1
     assert result.double_taps == ()
-    assert result.counted_sparks == 7
+    assert result.counted_sparks == 6
 
 
 def test_a_long_gap_counts_every_snap_it_hides():
     # Intervals 0.75, 0.75, 2.25, 0.75, 0.75 → median 0.75; 2.25 / 0.75 = 3 → 2 missed.
     result = spark_rate_from_taps([0.0, 0.75, 1.5, 3.75, 4.5, 5.25])
     assert result.missed == ((2, 2),)
-    assert result.counted_sparks == 8
+    assert (result.inferred_missed, result.counted_sparks) == (2, 6)
 
 
 JITTERED_TAPS = [0.00, 0.81, 1.55, 2.37, 3.09, 3.92, 4.66, 5.49, 6.20, 7.04]

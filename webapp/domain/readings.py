@@ -299,13 +299,14 @@ def evaluate_spark_count(step: SparkCount, data: Mapping[str, Any],
             taps = data.get("taps")
             if not isinstance(taps, list):
                 raise InputProblem("taps", "Tap once for each snap you hear.")
-            tapped = sparks.spark_rate_from_taps(taps)
+            tapped = sparks.spark_rate_from_taps(taps, one_unit=step.channel != "both")
             rate, resolution = tapped.rate_per_min, 0.0
             stored: dict[str, Any] = {
                 "method": "taps", "taps": [float(t) for t in taps], "rate": rate,
                 "median_interval_s": tapped.median_interval_s,
                 "double_taps": list(tapped.double_taps),
                 "missed": [list(m) for m in tapped.missed],
+                "inferred_missed": tapped.inferred_missed, "rate_method": tapped.method,
                 "counted_sparks": tapped.counted_sparks, "window_s": tapped.window_s}
         elif method == "timed":
             window = data.get("window_s")

@@ -68,9 +68,15 @@ class TapRate:
     taps: int
     intervals: tuple[float, ...]
     double_taps: tuple[int, ...]            # index of the second tap of each pair
-    missed: tuple[tuple[int, int], ...]     # (interval index, snaps estimated missed)
-    counted_sparks: int
+    missed: tuple[tuple[int, int], ...]     # (interval index, snaps inferred missed)
+    counted_sparks: int                     # snaps heard: the taps, double taps left out
     window_s: float
+    method: str = "median interval, one unit"
+
+    @property
+    def inferred_missed(self) -> int:
+        """Snaps the gaps suggest were not tapped: shown beside the count, never in it."""
+        return sum(count for _, count in self.missed)
 
 
 def _snaps_missed(interval: float, median: float) -> int:
@@ -78,11 +84,14 @@ def _snaps_missed(interval: float, median: float) -> int:
     return max(1, math.floor(interval / median + 0.5) - 1)
 
 
-def spark_rate_from_taps(tap_times_s: Sequence[float]) -> TapRate:
+def spark_rate_from_taps(tap_times_s: Sequence[float], one_unit: bool = True) -> TapRate:
     """Rate = 60 / median interval between taps; flags double taps and missed snaps.
 
     The median keeps one stray tap or one missed snap from moving the rate; the
-    flags say where the tapping and the snaps parted ways.
+    flags say where the tapping and the snaps parted ways. They assume one unit's
+    regular train: with both units on (`one_unit=False`) the snaps of two independent
+    trains fall at unrelated moments, so short and long intervals are real, nothing is
+    flagged, and the rate is the mean over the taps: (taps − 1) / (last − first) × 60.
     """
     times = list(tap_times_s)
     if len(times) < MIN_TAPS:
@@ -109,7 +118,7 @@ def spark_rate_from_taps(tap_times_s: Sequence[float]) -> TapRate:
                               f"and tap again.", index=index + 1)
 
     median = statistics.median(intervals)
-    rate = 60.0 / median
+    rate = 60.0 / median if one_unit else (len(floats) - 1) / (floats[-1] - floats[0]) * 60.0
     if rate > MAX_RATE_PER_MIN:
         raise RuleRefusal("spark_rate_implausible", f"The taps come {_fmt(median)} s apart, "
                           f"{_fmt(rate)} a minute: faster than 10 snaps a second, more than "
@@ -121,15 +130,20 @@ def spark_rate_from_taps(tap_times_s: Sequence[float]) -> TapRate:
                           f"too slow to time by tapping. Count snaps over a timed window "
                           f"instead.", rate_per_min=rate)
 
+    if not one_unit:
+        return TapRate(rate_per_min=rate, median_interval_s=median, taps=len(floats),
+                       intervals=intervals, double_taps=(), missed=(),
+                       counted_sparks=len(floats), window_s=floats[-1] - floats[0],
+                       method="mean rate, two independent units")
     double_taps = tuple(index + 1 for index, interval in enumerate(intervals)
                         if interval < DOUBLE_TAP_FRACTION * median)
     missed = tuple((index, _snaps_missed(interval, median))
                    for index, interval in enumerate(intervals)
                    if interval > MISSED_SNAP_FRACTION * median)
-    counted = len(floats) - len(double_taps) + sum(count for _, count in missed)
     return TapRate(rate_per_min=rate, median_interval_s=median, taps=len(floats),
                    intervals=intervals, double_taps=double_taps, missed=missed,
-                   counted_sparks=counted, window_s=floats[-1] - floats[0])
+                   counted_sparks=len(floats) - len(double_taps),
+                   window_s=floats[-1] - floats[0])
 
 
 # --- a timed count --------------------------------------------------------------------------
