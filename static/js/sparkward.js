@@ -35,6 +35,13 @@
         if (label) label.textContent = "— the wait is over";
       }
     });
+    // A counting window as the station timed it from its start (the length chosen here).
+    document.querySelectorAll("[data-window-left]").forEach(function (el) {
+      var box = el.closest("[data-timed-window]");
+      var remaining = Number(box.querySelector("[data-window]").value)
+        - (Number(el.dataset.elapsed) + gone);
+      el.textContent = remaining > 0 ? mmss(remaining) : "Stop counting";
+    });
     document.querySelectorAll("[data-count-up]").forEach(function (el) {
       el.textContent = mmss(Number(el.dataset.countUp) + gone);
     });
@@ -119,18 +126,6 @@
   document.addEventListener("click", function (event) {
     var reset = event.target.closest("[data-tap-reset]");
     if (reset) { taps = []; showTaps(reset.closest("[data-tapper]")); }
-    var start = event.target.closest("[data-window-start]");
-    if (start) {
-      var box = start.closest("[data-timed-window]");
-      var length = Number(box.querySelector("[data-window]").value);
-      var began = Date.now();
-      var left = box.querySelector("[data-window-left]");
-      var timer = setInterval(function () {
-        var remaining = length - (Date.now() - began) / 1000;
-        left.textContent = remaining > 0 ? mmss(remaining) : "Stop counting";
-        if (remaining <= 0) clearInterval(timer);
-      }, 200);
-    }
   });
   document.addEventListener("htmx:afterSwap", function () { taps = []; });
 

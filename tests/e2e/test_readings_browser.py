@@ -20,7 +20,7 @@ def _tick_all(page, count):
         page.check(f"[data-testid=item-{index}]")
 
 
-def test_tap_count_channel_a_gives_rate_and_verdict(browser, live_server):
+def test_tap_count_channel_a_gives_rate_and_verdict(browser, live_server, station_clock):
     context = browser.new_context(viewport={"width": 1024, "height": 768}, has_touch=True)
     page = context.new_page()
     start = datetime.now(UTC)
@@ -43,6 +43,9 @@ def test_tap_count_channel_a_gives_rate_and_verdict(browser, live_server):
     tap(page, "[data-testid=energise]")
     tap(page, "[data-testid=continue]")
     expect(step).to_have_attribute("data-step-kind", "spark_count")
+    _audit(page, "spark count, not started")
+    tap(page, "[data-testid=start-count]")     # the station times the count from here
+    expect(page.get_by_test_id("count-started")).to_be_visible()
     _audit(page, "spark count")
 
     # Twelve snaps 0.75 s apart (80 per minute), timed by the page's controlled clock.
@@ -52,6 +55,13 @@ def test_tap_count_channel_a_gives_rate_and_verdict(browser, live_server):
         page.get_by_test_id("tap").dispatch_event("pointerdown")
     expect(page.get_by_test_id("tap-count")).to_have_text("12")
     expect(page.get_by_test_id("tap-rate")).to_have_text("80")
+    tap(page, "[data-testid=use-taps]")           # sent at once: refused, too soon
+    expect(page.get_by_test_id("refusal")).to_contain_text("not over")
+    station_clock.advance(9)                      # the 8.25 s of taps have passed
+    for index in range(12):
+        if index:
+            page.clock.run_for(750)
+        page.get_by_test_id("tap").dispatch_event("pointerdown")
     tap(page, "[data-testid=use-taps]")
     expect(step).to_have_attribute("data-step-id", "cross-connection-a")
     done = page.get_by_test_id("progress-count-a")

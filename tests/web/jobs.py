@@ -29,8 +29,8 @@ def functional_check_counted(mech1, mech2, db, clock, until="sign-selector"):
     both channels on (so both did work on it), up to `until`."""
     job = Job(mech1, db, clock, "ignition-functional-check", channel=None)
     job.walk_to("count-both")
-    job.ok(_event("count-both", "sparks_counted", method="timed", count=70, window_s=30),
-           client=mech2)  # demo check count, as the job walk's
+    job.count("count-both", method="timed", count=70, window_s=30,
+              client=mech2)  # demo check count, as the job walk's
     job.walk_to(until)
     return job
 
@@ -68,6 +68,19 @@ class Job:
         assert after == (before[0], before[1] + 1)  # only the refusal is kept
         return answer.get_json()
 
+    def start_count(self, step_id, client=None):
+        """Start a spark count's window (or tapping) on the station."""
+        return self.ok(_event(step_id, "count_started"), client)
+
+    def count(self, step_id, client=None, **data):
+        """A spark count as the tablet sends it: the window started on the station, the
+        station's clock moved on by the window (or the taps' span), then the count."""
+        self.start_count(step_id, client)
+        taps = data.get("taps")
+        span = (float(taps[-1]) - float(taps[0])) if taps else float(data.get("window_s", 0))
+        self.clock.advance(span)
+        return self.ok(_event(step_id, "sparks_counted", **data), client)
+
     def _demo_reading(self, step_id):
         """The demo's in-limits reading for a step (the one the demo jobs record)."""
         return demo_jobs.reading_data(recording.load_job(self.db, self.id).state
@@ -100,8 +113,8 @@ class Job:
                 self.ok(_event(step["id"], "energised"))
             elif step["kind"] == "spark_count":
                 count = 70 if step["id"].endswith("both") else 36  # demo check counts
-                self.ok(_event(step["id"], "sparks_counted", method="timed", count=count,
-                               window_s=30))
+                self.count(step["id"], method="timed", count=count,
+                           window_s=30)
             else:
                 self.ok(_event(step["id"], items=list(range(len(step.get("items", []))))))
         raise AssertionError(f"{step_id} is not a step of this job")

@@ -153,7 +153,7 @@ def test_a_wear_reading_recorded_on_a_job_adds_a_point(mechanic, db, clock, fast
 def test_exciter_shows_its_channels_last_functional_check_reading(mechanic, db, clock):
     check = Job(mechanic, db, clock, "ignition-functional-check", channel=None)
     check.walk_to("count-a")
-    check.ok(_event("count-a", "sparks_counted", method="timed", count=36, window_s=30))
+    check.count("count-a", method="timed", count=36, window_s=30)
     check.walk_to("input-current-a")
     check.ok(_event("input-current-a", "reading_recorded", value="1.9", unit="A"))
     html = mechanic.get("/fleet/wear").get_data(as_text=True)
@@ -182,7 +182,7 @@ def test_plug_page_compares_the_usage_measures(mechanic, db):
 def test_a_new_exciter_does_not_inherit_its_predecessor_s_readings(mechanic, db, clock):
     check = Job(mechanic, db, clock, "ignition-functional-check", channel=None)
     check.walk_to("count-a")
-    check.ok(_event("count-a", "sparks_counted", method="timed", count=36, window_s=30))
+    check.count("count-a", method="timed", count=36, window_s=30)
     check.walk_to("input-current-a")
     check.ok(_event("input-current-a", "reading_recorded", value="1.9", unit="A"))
     clock.advance(3600)

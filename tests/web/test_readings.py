@@ -3,6 +3,8 @@ field and nothing stored, out-of-limits blocked until a finding is dispositioned
 
 from __future__ import annotations
 
+from datetime import timedelta
+
 import pytest
 
 from tests.web.jobs import Job, _event, exciter_removed
@@ -174,7 +176,7 @@ def check(mechanic, db, clock):
 def test_tapped_count_gives_the_rate_and_flags_a_double_tap(check):
     taps = [i * 0.75 for i in range(12)]          # 60 / 0.75 = 80 per minute
     taps.insert(5, taps[4] + 0.1)                  # a double tap
-    check.ok(_event("count-a", "sparks_counted", method="taps", taps=taps))
+    check.count("count-a", method="taps", taps=taps)
     reading = check.state()["readings"][-1]
     assert reading["rate"] == pytest.approx(80.0)
     assert reading["double_taps"] == [5]
@@ -184,7 +186,7 @@ def test_tapped_count_gives_the_rate_and_flags_a_double_tap(check):
 
 
 def test_timed_count_gives_rate_with_its_resolution(check):
-    check.ok(_event("count-a", "sparks_counted", method="timed", count=36, window_s=30))
+    check.count("count-a", method="timed", count=36, window_s=30)
     reading = check.state()["readings"][-1]
     assert reading["rate"] == 72.0 and reading["resolution"] == 2.0  # 36/30·60; ±60/30
 
@@ -207,8 +209,38 @@ def test_senseless_counts_are_refused_and_nothing_stored(check, data, field):
     assert counts(check) == before
 
 
+def test_a_count_is_taken_over_time_the_station_saw_pass(check, clock):
+    timed = {"method": "timed", "count": 36, "window_s": 30}
+    # Not started on the station: refused, whatever the tablet says.
+    check.refused(_event("count-a", "sparks_counted", **timed), "count_not_started")
+    check.start_count("count-a")
+    clock.advance(10)
+    refused = check.refused(_event("count-a", "sparks_counted", **timed), "count_window_open")
+    assert refused["seconds_remaining"] == 20
+    # A device clock that says the window is over does not shorten the station's.
+    started_device = clock() - timedelta(seconds=10)
+    early = {**_event("count-a", "sparks_counted", **timed),
+             "device_time": (started_device + timedelta(seconds=40)).isoformat()}
+    check.refused(early, "count_window_open")
+    clock.advance(20)
+    check.ok(_event("count-a", "sparks_counted", **timed))
+    # The window is used up: the next count (after a finding, or on a later attempt) starts
+    # its own.
+    assert check.state()["next_step"] != "count-a"
+
+
+def test_taps_spanning_longer_than_the_time_since_the_start_are_refused(check, clock):
+    check.start_count("count-a")
+    clock.advance(5)
+    taps = [i * 0.75 for i in range(12)]          # 8.25 s of taps, only 5 s after the start
+    check.refused(_event("count-a", "sparks_counted", method="taps", taps=taps),
+                  "count_window_open")
+    clock.advance(4)
+    check.ok(_event("count-a", "sparks_counted", method="taps", taps=taps))
+
+
 def test_count_out_of_limits_needs_a_finding(check):
-    check.ok(_event("count-a", "sparks_counted", method="timed", count=20, window_s=30))
+    check.count("count-a", method="timed", count=20, window_s=30)
     assert check.state()["awaiting_finding"] == ["count-a"]
 
 
@@ -216,7 +248,7 @@ def test_both_channels_checked_against_a_plus_b(check):
     check.walk_to("count-both")   # A 36/30 s and B 36/30 s by the walk (demo counts)
     # A = B = 72 and the ear hears 72 with both on: two independent units are heard near
     # their sum, so one is not firing: out of limits, and a finding is asked for.
-    check.ok(_event("count-both", "sparks_counted", method="timed", count=36, window_s=30))
+    check.count("count-both", method="timed", count=36, window_s=30)
     reading = check.state()["readings"][-1]
     assert reading["both_check"]["result"] == "one unit not firing"
     assert reading["both_check"]["expected"] == 144.0
@@ -224,19 +256,19 @@ def test_both_channels_checked_against_a_plus_b(check):
     assert check.state()["awaiting_finding"] == ["count-both"]
     check.ok(_event("count-both", "finding", text="Channel B silent with both selected",
                     disposition="re-tested"))
-    check.ok(_event("count-both", "sparks_counted", method="timed", count=72, window_s=30))
+    check.count("count-both", method="timed", count=72, window_s=30)
     assert check.state()["readings"][-1]["both_check"]["result"] == "consistent"
 
 
 def test_combined_rate_of_one_channel_says_one_unit_is_not_firing(mechanic, db, clock):
     job = Job(mechanic, db, clock, "ignition-functional-check", channel=None)
     job.walk_to("count-a")
-    job.ok(_event("count-a", "sparks_counted", method="timed", count=36, window_s=30))  # 72
+    job.count("count-a", method="timed", count=36, window_s=30)  # 72
     job.walk_to("count-b")
-    job.ok(_event("count-b", "sparks_counted", method="timed", count=34, window_s=30))  # 68
+    job.count("count-b", method="timed", count=34, window_s=30)  # 68
     job.walk_to("count-both")
     # Demo functional check (invented): 70/30 s = 140 ≈ 72 + 68 = 140: consistent.
-    job.ok(_event("count-both", "sparks_counted", method="timed", count=70, window_s=30))
+    job.count("count-both", method="timed", count=70, window_s=30)
     assert job.state()["readings"][-1]["both_check"]["result"] == "consistent"
 
 

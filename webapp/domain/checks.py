@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 from datetime import datetime
 from typing import Any
 
-from . import gates, readings, release, signoff, tag_handover
+from . import gates, readings, release, signoff, sparks, tag_handover
 from .authorisations import Authorisation
 from .engine import EngineState, check_channels_whole
 from .errors import RuleRefusal
@@ -259,6 +259,11 @@ def _check_in_step(state: JobState, step: Step, kind: str, data: Mapping[str, An
             return tag_handover.check_tag_removal_authorised(step, data, at.tags, at.person_id,
                                                              at.roles, at.job_id)
         return tag_handover.check_tag_removed(step, data, at.tags, at.person_id, at.job_id)
+    if kind == "count_started":
+        if step.id in state.awaiting_finding:
+            raise RuleRefusal("finding_required", "The last count was out of limits: record "
+                              "the finding and what was done before counting again.")
+        return {}
     if step.id not in state.awaiting_finding:
         raise RuleRefusal("no_reading_to_disposition", "A finding goes with an out-of-limits "
                           "reading; this step has none waiting.")
@@ -275,7 +280,10 @@ def _check_completion(state: JobState, target: StepProgress, data: Mapping[str, 
         if isinstance(step, Torque):
             return readings.evaluate_torque(step, data, at.now.date())
         if isinstance(step, SparkCount):
-            return readings.evaluate_spark_count(step, data, state.single_channel_rates())
+            stored = readings.evaluate_spark_count(step, data, state.single_channel_rates())
+            sparks.check_window_served(state.count_windows.get(step.id), stored, at.now,
+                                       at.device_now)
+            return stored
         stored = readings.evaluate_reading(step, data)
         if isinstance(step, Reading) and step.wear:
             stored["plug"] = _plug_at_work(state)

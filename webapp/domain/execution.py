@@ -32,8 +32,8 @@ from .procedures import (
 CLIENT_EVENT_KINDS = ("acknowledged", "step_done", "breaker_tagged", "tag_taken_over",
                       "tag_removed", "tag_handed_over", "tag_transfer_authorised",
                       "tag_removal_authorised", "input_reconnected", "energised", "de_energised",
-                      "reading_recorded", "finding", "sparks_counted", "part_recorded", "signed",
-                      "returned", "amendment", "item_closed")
+                      "reading_recorded", "finding", "count_started", "sparks_counted",
+                      "part_recorded", "signed", "returned", "amendment", "item_closed")
 STATION_EVENT_KINDS = ("job_opened",)
 EVENT_KINDS = STATION_EVENT_KINDS + CLIENT_EVENT_KINDS
 
@@ -56,7 +56,7 @@ COMPLETING_EVENT = {
 }
 # Events that happen within the current step without completing it.
 IN_STEP_EVENTS = {"breaker_tagged": "lockout", "tag_removed": "lockout",
-                  "tag_removal_authorised": "lockout",
+                  "tag_removal_authorised": "lockout", "count_started": "spark_count",
                   "finding": ("reading", "torque", "spark_count", "part")}
 # Verdicts a finding must answer before the job goes on.
 NEEDS_FINDING = ("out of limits", "mismatch")
@@ -118,6 +118,9 @@ class JobState:
     returns: tuple[Mapping[str, Any], ...] = ()   # supervisors' returns, with their reasons
     amendments: tuple[Mapping[str, Any], ...] = ()  # corrections after certification
     revision: str = ""   # the SHA-256 of the procedure revision the job pinned
+    # When each spark count step's window (or tapping) was started, by both clocks: the
+    # station times the window; a count uses its start up.
+    count_windows: Mapping[str, PowerOff] = field(default_factory=dict)
     workers: frozenset[int] = frozenset()  # everyone who recorded work (not only a signature)
 
     @cached_property
@@ -259,6 +262,11 @@ def apply_event(state: JobState, event: Mapping[str, Any]) -> JobState:
         completed = {k: v for k, v in state.completed.items()
                      if not isinstance(_step_of(state, k), Sign) and state.positions[k] < again}
         return replace(state, completed=completed, returns=(*state.returns, event))
+    if kind == "count_started" and step is not None:
+        return replace(state, count_windows={**state.count_windows, step.id: _times(event)})
+    if kind == "sparks_counted" and step is not None:
+        state = replace(state, count_windows={k: v for k, v in state.count_windows.items()
+                                              if k != step.id})
     if kind in ("reading_recorded", "sparks_counted", "part_recorded") and step is not None:
         return _with_reading(state, step, event)
     if kind == "finding" and step is not None:

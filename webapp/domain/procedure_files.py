@@ -3,8 +3,9 @@
 A procedure file is parsed from text (the caller reads the file), checked against the
 typed models of `procedures`, then against the rules of a well-made procedure (unique
 step ids, WARNING/CAUTION/NOTE before the step they guard, in that order, a wait after
-the step that starts its clock). Every problem is reported at once, with file, step
-number, step id and field.
+the step that starts its clock) and against the data checks of `procedure_sanity` (a
+discharge wait no shorter than the bleed-down, a rest after every on-period). Every
+problem is reported at once, with file, step number, step id and field.
 """
 
 from __future__ import annotations
@@ -18,6 +19,7 @@ from typing import Any
 import yaml
 from pydantic import ValidationError
 
+from .procedure_sanity import data_problems
 from .procedures import (
     ADVISORY_KINDS,
     STEP_KINDS,
@@ -68,8 +70,12 @@ def normalise_text(text: str) -> str:
     return text.replace("\r\n", "\n").replace("\r", "\n")
 
 
-def parse_procedure(text: str, file: str = "<procedure>") -> Procedure:
-    """Parse and validate a procedure's YAML text; raise ProcedureInvalid with every problem."""
+def parse_procedure(text: str, file: str = "<procedure>", check_data: bool = True) -> Procedure:
+    """Parse and validate a procedure's YAML text; raise ProcedureInvalid with every problem.
+
+    `check_data=False` skips the data sanity rules (`procedure_sanity`): for re-reading a
+    revision approved and stored already, which a job may have pinned under earlier rules
+    and must still be readable; every file loaded or checked is held to them."""
     try:
         raw = yaml.load(text, Loader=_loader())
     except yaml.YAMLError as err:
@@ -88,6 +94,8 @@ def parse_procedure(text: str, file: str = "<procedure>") -> Procedure:
         raise ProcedureInvalid(problems) from None
     problems.extend(_order_problems(procedure, file))
     problems.extend(_gate_problems(procedure, file))
+    if check_data:
+        problems.extend(ProcedureProblem(file, *found) for found in data_problems(procedure))
     if problems:
         raise ProcedureInvalid(problems)
     return procedure
@@ -240,4 +248,4 @@ def _when_text(when: StepCondition) -> str:
 @lru_cache(maxsize=64)
 def procedure_of_revision(revision_hash: str, content: str) -> Procedure:
     """The parsed procedure of a stored revision (parsed once per process: it never changes)."""
-    return parse_procedure(content, f"revision {revision_hash[:12]}")
+    return parse_procedure(content, f"revision {revision_hash[:12]}", check_data=False)

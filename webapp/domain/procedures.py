@@ -222,8 +222,12 @@ class Capacitor(_Strict):
 
 
 class DischargeWait(_Step):
+    """The wait after the exciter's input is disconnected. `minimum_reason` says why the
+    approved data allows a minimum shorter than the station's floor (see procedure_sanity)."""
+
     kind: Literal["discharge_wait"]
     minimum: Duration
+    minimum_reason: Text | None = None
     capacitor: Capacitor | None = None
 
 

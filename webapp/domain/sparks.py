@@ -15,11 +15,13 @@ from __future__ import annotations
 import math
 import numbers
 import statistics
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
-from typing import Literal
+from datetime import datetime
+from typing import Any, Literal
 
 from .errors import RuleRefusal
+from .gates import PowerOff, wait_remaining
 
 # Beyond these the number is not a spark rate anyone timed by ear: faster than
 # 10 snaps a second no hand taps along, slower than one in 10 s nobody hears a rate.
@@ -176,6 +178,24 @@ def spark_rate_from_count(count: int, window_s: float) -> TimedRate:
                           f"the count and the window.", count=int(count), window_s=window)
     return TimedRate(count=int(count), window_s=window, rate_per_min=count / window * 60.0,
                      resolution_per_min=60.0 / window)
+
+
+def check_window_served(started: PowerOff | None, counted: Mapping[str, Any], now: datetime,
+                        device_now: datetime | None) -> None:
+    """A count is taken over time the station saw pass: its window (or tapping) was started
+    on the station, and the count arrives no sooner than the window (or the taps' span)
+    after it, by the station's clock and, where known, the device's. A count typed in ahead
+    of its window is refused."""
+    if started is None:
+        raise RuleRefusal("count_not_started", "Start the window (or the tapping) on the "
+                          "tablet first: the station times the count from then.")
+    needed = float(counted.get("window_s") or 0.0)
+    left = wait_remaining(needed, started, now, device_now)
+    if left > 0:
+        whole = int(left) + (left % 1 > 0)
+        raise RuleRefusal("count_window_open", f"The counting window is not over: {whole} s "
+                          "to go. Count to the end of the window, then enter the count.",
+                          seconds_remaining=whole)
 
 
 # --- against the limits ---------------------------------------------------------------------

@@ -36,6 +36,7 @@ from . import recording
 STEP_GAP = timedelta(seconds=20)         # between two entries of the walk
 DISCHARGE_PAST = timedelta(seconds=120)  # past the 2 min minimum of the demo exciters
 DUTY_REST = timedelta(seconds=1500)      # past any duty-cycle off period (23 min at most)
+COUNT_WINDOW = timedelta(seconds=30)     # the demo counts' timed window
 DEMO_TAGS = ("T-1", "T-2", "T-3", "T-4")
 
 
@@ -147,6 +148,8 @@ def walk(db: store.Database, job_id: int, *, by: Person, now: datetime,
         elif isinstance(step, SparkCount):
             # Demo counts: about 1.2 snaps a second on one channel, twice that on both.
             count = 70 if step.channel == "both" else 36
+            record("count_started", step.id, {})
+            now += COUNT_WINDOW
             record("sparks_counted", step.id, {"method": "timed", "count": count,
                                                "window_s": 30})
         elif isinstance(step, Check) and step.items:

@@ -75,6 +75,7 @@ def _job_page(job_id: int, error: str | None = None, status: int = 200,
                             names=names, error=error, gate=gate_context(db(), job, now()),
                             warning_s=ON_LIMIT_WARNING_S, problem=problem,
                             entered=entered or {}, today=now().date().isoformat(),
+                            station_now=now(),
                             sign=sign_view(db(), job.state, job.state.next_step, person(),
                                            now().date()))
 
