@@ -94,6 +94,12 @@ def reading_summary(data: dict) -> str:
             shown += " (" + ", ".join(flags) + ")"
         if data.get("both_check"):
             shown += f"; A + B: {data['both_check']['result']}"
+        supply = data.get("supply")
+        if isinstance(supply, dict):
+            shown += f"; supply {supply['voltage']:g} V" + (
+                f" {supply['frequency']:g} Hz" if supply.get("frequency") else "") + (
+                "" if supply.get("within") else " (outside its limits: the count proves "
+                "nothing)")
     elif "value" in data and "unit" in data:
         shown = f"{data['value']:g} {unit_label(data['unit'])}"
         if data["unit"] != data.get("procedure_unit"):

@@ -55,6 +55,7 @@ def test_tap_count_channel_a_gives_rate_and_verdict(browser, live_server, statio
         page.get_by_test_id("tap").dispatch_event("pointerdown")
     expect(page.get_by_test_id("tap-count")).to_have_text("12")
     expect(page.get_by_test_id("tap-rate")).to_have_text("80")
+    page.fill("[data-testid=supply-voltage-taps]", "27.5")   # inside 22-29 V DC (from memory)
     tap(page, "[data-testid=use-taps]")           # sent at once: refused, too soon
     expect(page.get_by_test_id("refusal")).to_contain_text("not over")
     station_clock.advance(9)                      # the 8.25 s of taps have passed
@@ -62,6 +63,7 @@ def test_tap_count_channel_a_gives_rate_and_verdict(browser, live_server, statio
         if index:
             page.clock.run_for(750)
         page.get_by_test_id("tap").dispatch_event("pointerdown")
+    page.fill("[data-testid=supply-voltage-taps]", "27.5")
     tap(page, "[data-testid=use-taps]")
     expect(step).to_have_attribute("data-step-id", "cross-connection-a")
     done = page.get_by_test_id("progress-count-a")

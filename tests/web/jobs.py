@@ -78,6 +78,7 @@ class Job:
         self.start_count(step_id, client)
         taps = data.get("taps")
         span = (float(taps[-1]) - float(taps[0])) if taps else float(data.get("window_s", 0))
+        data.setdefault("supply", demo_jobs.demo_supply(self.db, self.id))
         self.clock.advance(span)
         return self.ok(_event(step_id, "sparks_counted", **data), client)
 

@@ -210,7 +210,7 @@ def test_senseless_counts_are_refused_and_nothing_stored(check, data, field):
 
 
 def test_a_count_is_taken_over_time_the_station_saw_pass(check, clock):
-    timed = {"method": "timed", "count": 36, "window_s": 30}
+    timed = {"method": "timed", "count": 36, "window_s": 30, "supply": {"voltage": "27.5"}}
     # Not started on the station: refused, whatever the tablet says.
     check.refused(_event("count-a", "sparks_counted", **timed), "count_not_started")
     check.start_count("count-a")
@@ -233,10 +233,33 @@ def test_taps_spanning_longer_than_the_time_since_the_start_are_refused(check, c
     check.start_count("count-a")
     clock.advance(5)
     taps = [i * 0.75 for i in range(12)]          # 8.25 s of taps, only 5 s after the start
-    check.refused(_event("count-a", "sparks_counted", method="taps", taps=taps),
-                  "count_window_open")
+    tapped = {"method": "taps", "taps": taps, "supply": {"voltage": "27.5"}}
+    check.refused(_event("count-a", "sparks_counted", **tapped), "count_window_open")
     clock.advance(4)
-    check.ok(_event("count-a", "sparks_counted", method="taps", taps=taps))
+    check.ok(_event("count-a", "sparks_counted", **tapped))
+
+
+@pytest.mark.parametrize(("supply", "field"), [
+    (None, "supply_voltage"), ({"voltage": ""}, "supply_voltage"),
+    ({"voltage": "lots"}, "supply_voltage"), ({"voltage": "-28"}, "supply_voltage")])
+def test_a_count_without_its_supply_is_refused_at_the_field(check, clock, supply, field):
+    check.start_count("count-a")
+    clock.advance(30)
+    data = {"method": "timed", "count": 36, "window_s": 30}
+    if supply is not None:
+        data["supply"] = supply
+    answer = check.post(_event("count-a", "sparks_counted", **data))
+    assert answer.status_code == 422
+    assert answer.get_json()["problems"][0]["field"] == f"data.{field}"
+
+
+def test_a_count_at_a_supply_outside_its_limits_is_out_of_limits(check):
+    # MIL-STD-704F normal steady-state 28 V DC bus: 22-29 V (from memory). 21 V is outside:
+    # a DC unit's rate follows its supply, so this count proves nothing and needs a finding.
+    check.count("count-a", method="timed", count=36, window_s=30, supply={"voltage": "21"})
+    reading = check.state()["readings"][-1]
+    assert reading["supply"]["within"] is False and reading["verdict"] == "out of limits"
+    assert check.state()["awaiting_finding"] == ["count-a"]
 
 
 def test_count_out_of_limits_needs_a_finding(check):

@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 from datetime import datetime
 from typing import Any
 
-from . import gates, readings, release, signoff, sparks, tag_handover
+from . import gates, readings, release, signoff, sparks, supply, tag_handover
 from .authorisations import Authorisation
 from .engine import EngineState, check_channels_whole
 from .errors import RuleRefusal
@@ -281,6 +281,12 @@ def _check_completion(state: JobState, target: StepProgress, data: Mapping[str, 
             return readings.evaluate_torque(step, data, at.now.date())
         if isinstance(step, SparkCount):
             stored = readings.evaluate_spark_count(step, data, state.single_channel_rates())
+            stored["supply"] = supply.evaluate_supply(
+                supply.supply_kind(state.configuration.exciter_types), data.get("supply"),
+                step.supply)
+            if not stored["supply"]["within"]:
+                # A count at a supply outside its limits proves nothing about the unit.
+                stored["verdict"] = "out of limits"
             sparks.check_window_served(state.count_windows.get(step.id), stored, at.now,
                                        at.device_now)
             return stored

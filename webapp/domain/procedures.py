@@ -256,12 +256,22 @@ class Reading(_Step):
         return self
 
 
+class SupplyLimits(_Strict):
+    """The exciter supply a count is valid at, as the approved data gives it (volts; hertz
+    for an AC supply). Absent, the station's defaults for a 28 V DC or 115 V 400 Hz bus."""
+
+    dc_volts: Limits | None = None
+    ac_volts: Limits | None = None
+    ac_hertz: Limits | None = None
+
+
 class SparkCount(_Step):
     kind: Literal["spark_count"]
     channel: Literal["A", "B", "both"]
     window: Duration = "30 s"
     limits: Limits
     both_tolerance: float | None = Field(default=None, ge=0)
+    supply: SupplyLimits | None = None
 
 
 class DutyCycle(_Strict):

@@ -94,6 +94,13 @@ def part_data(db: store.Database, job_id: int, step: PartChange) -> dict[str, An
             "usage": DEMO_USAGE}
 
 
+def demo_supply(db: store.Database, job_id: int) -> dict[str, str]:
+    """A demo supply inside the normal limits of the job's exciters' bus (invented)."""
+    state = recording.load_job(db, job_id).state
+    return ({"voltage": "115", "frequency": "400"} if "ac" in state.configuration.exciter_types
+            else {"voltage": "27.5"})
+
+
 def walk(db: store.Database, job_id: int, *, by: Person, now: datetime,
          until: str | None = None, signers: Mapping[str, Signer] | None = None,
          authority: StationAuthority | None = None,
@@ -150,7 +157,8 @@ def walk(db: store.Database, job_id: int, *, by: Person, now: datetime,
             count = 70 if step.channel == "both" else 36
             record("count_started", step.id, {})
             now += COUNT_WINDOW
-            record("sparks_counted", step.id, {"method": "timed", "count": count,
+            record("sparks_counted", step.id, {"supply": demo_supply(db, job_id),
+                                               "method": "timed", "count": count,
                                                "window_s": 30})
         elif isinstance(step, Check) and step.items:
             record("step_done", step.id, {"items": list(range(len(step.items)))})

@@ -137,18 +137,21 @@ def _consent_data(kind: str, form: Any) -> dict[str, Any]:
 
 
 def _count_data(form: Any) -> dict[str, Any]:
-    """Taps arrive as a JSON list of seconds; a timed count as its number and window."""
+    """Taps arrive as a JSON list of seconds; a timed count as its number and window; both
+    with the supply the exciter was at."""
+    supply = {k: form.get(f"supply_{k}", "") for k in ("voltage", "frequency")}
     if form.get("method") == "taps":
         try:
             taps = json.loads(form.get("taps", "[]"))
         except ValueError:
             taps = None
-        return {"method": "taps", "taps": taps}
+        return {"method": "taps", "taps": taps, "supply": supply}
     try:
         window: Any = float(form.get("window_s", ""))
     except ValueError:
         window = form.get("window_s")
-    return {"method": form.get("method"), "count": form.get("count", ""), "window_s": window}
+    return {"method": form.get("method"), "count": form.get("count", ""), "window_s": window,
+            "supply": supply}
 
 
 def _reading_data(form: Any) -> dict[str, Any]:
