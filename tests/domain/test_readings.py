@@ -540,8 +540,8 @@ def test_a_wear_reading_without_usage_is_refused():
 
 # --- 7. findings ----------------------------------------------------------------------------
 
-@pytest.mark.parametrize("disposition", ["replaced", "re-tested"])
-def test_a_finding_replaced_or_re_tested_needs_no_reference(disposition):
+@pytest.mark.parametrize("disposition", ["replaced", "repaired", "re-tested"])
+def test_a_finding_replaced_repaired_or_re_tested_needs_no_reference(disposition):
     stored = readings.evaluate_finding({"text": " plug shell eroded ", "disposition": disposition})
     assert stored == {"text": "plug shell eroded", "disposition": disposition}
 

@@ -8,6 +8,7 @@ from datetime import timedelta
 import pytest
 
 from tests.web.jobs import Job, _event, exciter_removed
+from webapp.records.pdf import record_html
 from webapp.store import jobs as job_store
 
 LBF_IN_IN_N_M = 0.1129848  # NIST SP 811 B.9: 1 lbf·in = 0.1129848 N·m
@@ -301,3 +302,23 @@ def test_both_without_the_single_counts_is_refused(mechanic, db, clock):
     # The order of steps already keeps count-both after the single counts.
     job.refused(_event("count-both", "sparks_counted", method="timed", count=70,
                        window_s=30), "out_of_order")
+
+
+@pytest.mark.parametrize("disposition", ["replaced", "repaired"])
+def test_a_replaced_or_repaired_finding_needs_the_re_test_reading(installation, app, clock,
+                                                                  db, disposition):
+    installation.ok(torque("45"))                                     # above 40 lbf·in
+    installation.ok(_event("mounting-torque", "finding", text="bolt thread stripped",
+                           disposition=disposition))
+    # Not done yet: the step waits for its new reading, and nothing after it goes in.
+    assert installation.state()["next_step"] == "mounting-torque"
+    installation.refused(_event("bonding-resistance", "reading_recorded"), "out_of_order")
+    with app.app_context():
+        html = record_html(db, installation.id, clock(), embedded=True)
+    assert f"{disposition}; re-test reading not yet recorded" in html
+    installation.ok(torque("38"))
+    assert installation.state()["next_step"] == "bonding-resistance"
+    with app.app_context():
+        html = record_html(db, installation.id, clock(), embedded=True)
+    flat = " ".join(html.split())
+    assert f"{disposition}, re-tested: attempt 2, 38 lbf·in ✓ within" in flat

@@ -317,9 +317,9 @@ def _with_finding(state: JobState, step: Step, event: Mapping[str, Any]) -> JobS
             break
     waiting = {k: v for k, v in state.awaiting_finding.items() if k != step.id}
     completed = dict(state.completed)
-    if event["data"].get("disposition") in ("replaced", "deferred") or step.kind == "part":
-        # A part that did not match is on the record with its finding; a reading re-tested
-        # waits for the new reading.
+    if event["data"].get("disposition") == "deferred" or step.kind == "part":
+        # A deferral, or a part that did not match, is on the record with its finding; a
+        # reading replaced, repaired or re-tested waits for the new reading of the step.
         completed[step.id] = event
     return replace(state, readings=tuple(readings), awaiting_finding=waiting,
                    completed=completed)

@@ -24,7 +24,10 @@ from .units import DIMENSIONS, UnitProblem, parse_unit, registry, seconds
 
 Verdict = Literal["within", "near limit", "out of limits"]
 VERDICT_SYMBOL = {"within": "✓", "near limit": "▲", "out of limits": "✗"}
-DISPOSITIONS = ("replaced", "re-tested", "deferred")
+# What was done about an out-of-limits reading. Replaced, repaired and re-tested each ask for
+# a new reading of the step within limits before the job goes on; deferred needs its
+# reference and limit and becomes an open item of the engine.
+DISPOSITIONS = ("replaced", "repaired", "re-tested", "deferred")
 
 # Units offered at the field, by dimension (pint spellings, and how they are shown).
 UNIT_CHOICES: dict[str, list[tuple[str, str]]] = {

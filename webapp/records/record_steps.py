@@ -12,8 +12,9 @@ from ..domain.readings import VERDICT_SYMBOL
 from ..shown import limits_text, unit_label
 from .record_entries import People, Who, station_time, step_of
 
-DISPOSITION_WORDS = {"replaced": "replaced and re-tested", "re-tested": "re-tested",
+DISPOSITION_WORDS = {"replaced": "replaced", "repaired": "repaired", "re-tested": "re-tested",
                      "deferred": "deferred"}
+NEEDS_RETEST = ("replaced", "repaired", "re-tested")
 
 
 @dataclass(frozen=True)
@@ -149,6 +150,19 @@ def _short_name(step_id: str) -> str:
     return step_id.replace("-", " ")
 
 
+def _retest_words(r: Mapping[str, Any], state: JobState, done: str) -> str:
+    """"re-tested" is printed only with the re-test reading that backs it, and its value."""
+    later = [x for x in state.readings if x["step"] == r["step"] and x["attempt"] > r["attempt"]]
+    if not later:
+        return f"{done}; re-test reading not yet recorded"
+    entered, converted = _entered(later[0])
+    verdict = later[0].get("verdict", "")
+    said = " ".join(x for x in (entered, converted != entered and f"= {converted}",
+                                VERDICT_SYMBOL.get(verdict, ""), verdict) if x)
+    head = "re-tested" if done == "re-tested" else f"{done}, re-tested"
+    return f"{head}: attempt {later[0]['attempt']}, {said}"
+
+
 def reading_line(r: Mapping[str, Any], state: JobState, numbers: Mapping[str, int],
                  who: People) -> ReadingLine:
     entered, converted = _entered(r)
@@ -160,6 +174,8 @@ def reading_line(r: Mapping[str, Any], state: JobState, numbers: Mapping[str, in
     finding = r.get("finding")
     if finding:
         disposition = DISPOSITION_WORDS.get(finding.get("disposition"), "—")
+        if finding.get("disposition") in NEEDS_RETEST:
+            disposition = _retest_words(r, state, finding["disposition"])
         return replace(line, disposition=disposition, finding=finding.get("text", ""),
                        reference=finding.get("reference") or "—",
                        finding_by=who(finding.get("person_id")),
