@@ -150,12 +150,18 @@ def test_a_wear_reading_recorded_on_a_job_adds_a_point(mechanic, db, clock, fast
     assert len(re.findall(r'<tr data-testid="point-\d+">', page)) == 4
 
 
-def test_exciter_shows_its_channels_last_functional_check_reading(mechanic, db, clock):
+def _channel_a_current_read(mechanic, db, clock):
+    """A functional check that has read channel A's input current (1.9 A) on DEMO-101 1."""
     check = Job(mechanic, db, clock, "ignition-functional-check", channel=None)
     check.walk_to("count-a")
     check.count("count-a", method="timed", count=36, window_s=30)
     check.walk_to("input-current-a")
     check.ok(_event("input-current-a", "reading_recorded", value="1.9", unit="A"))
+    return check
+
+
+def test_exciter_shows_its_channels_last_functional_check_reading(mechanic, db, clock):
+    _channel_a_current_read(mechanic, db, clock)
     html = mechanic.get("/fleet/wear").get_data(as_text=True)
     row = {r["channel"]: r["serial"] for r in db.query(
         "select c.channel, c.serial from components c join engines e on e.id = c.engine_id "
@@ -180,11 +186,7 @@ def test_plug_page_compares_the_usage_measures(mechanic, db):
 
 
 def test_a_new_exciter_does_not_inherit_its_predecessor_s_readings(mechanic, db, clock):
-    check = Job(mechanic, db, clock, "ignition-functional-check", channel=None)
-    check.walk_to("count-a")
-    check.count("count-a", method="timed", count=36, window_s=30)
-    check.walk_to("input-current-a")
-    check.ok(_event("input-current-a", "reading_recorded", value="1.9", unit="A"))
+    _channel_a_current_read(mechanic, db, clock)
     clock.advance(3600)
     exciter_removed(mechanic, db, clock, channel="A")
     installation = Job(mechanic, db, clock, "exciter-installation", channel="A")
