@@ -273,3 +273,13 @@ def test_a_stored_revision_is_reread_without_the_data_rules_a_new_file_is_held_t
     with pytest.raises(ProcedureInvalid):
         parse_procedure(text, "exciter-removal.yaml")
     assert procedure_of_revision("stored-under-earlier-rules", text).id == "exciter-removal"
+
+
+def test_a_required_test_voltage_needs_the_reading_to_record_its_test_voltage():
+    from webapp.domain.procedures import Reading
+
+    with pytest.raises(ValueError, match="test_voltage"):
+        Reading(id="ir", kind="reading", text="IR", value="number", unit="Mohm",
+                limits={"min": 200}, test_voltage="1000 V")
+    Reading(id="ir", kind="reading", text="IR", value="number", unit="Mohm",
+            limits={"min": 200}, test_voltage="1000 V", conditions=["test_voltage"])

@@ -140,6 +140,23 @@ def test_insulation_resistance_keeps_its_test_conditions(mechanic, db, clock):
     assert job.post(missing).status_code in (409, 422)  # already done, or missing conditions
 
 
+@pytest.mark.parametrize(("value", "unit"), [("500", "V"), ("2.5", "kV"), ("940", "V")])
+def test_insulation_at_another_test_voltage_is_refused_with_the_reason(mechanic, db, clock,
+                                                                     value, unit):
+    # The demo step sets 1000 V (invented demo data); the station holds the tester to it
+    # within ±5 % (station rule): 500 V, 2.5 kV and 940 V are refused, 950 V-1050 V pass.
+    job = Job(mechanic, db, clock, "ignition-lead-inspection")
+    job.walk_to("insulation-resistance")
+    conditions = {"ambient_temperature": {"value": "18", "unit": "degC"},
+                  "humidity": {"value": "45"}}
+    refused = job.refused(_event("insulation-resistance", "reading_recorded", value="900",
+                                 unit="Mohm", test_voltage={"value": value, "unit": unit},
+                                 **conditions), "wrong_test_voltage")
+    assert "1000 V" in refused["reason"]
+    job.ok(_event("insulation-resistance", "reading_recorded", value="900", unit="Mohm",
+                  test_voltage={"value": "1.05", "unit": "kV"}, **conditions))
+
+
 def test_insulation_without_its_conditions_is_bad_input(mechanic, db, clock):
     job = Job(mechanic, db, clock, "ignition-lead-inspection")
     job.walk_to("insulation-resistance")

@@ -244,6 +244,9 @@ class Reading(_Step):
     conditions: list[Literal["test_voltage", "ambient_temperature", "humidity"]] = Field(
         default_factory=list)
     wear: bool = False
+    # The test voltage the approved data sets (insulation resistance): a reading taken at
+    # another is refused.
+    test_voltage: Voltage | None = None
 
     @model_validator(mode="after")
     def _number_has_unit_and_limits(self) -> Reading:
@@ -253,6 +256,9 @@ class Reading(_Step):
             if self.limits is None:
                 raise _field_error("limits", "a number reading needs its limits "
                                    "(min, max or both)")
+        if self.test_voltage is not None and "test_voltage" not in self.conditions:
+            raise _field_error("test_voltage", "a required test voltage needs the reading to "
+                               "record its test voltage: add test_voltage to conditions")
         return self
 
 

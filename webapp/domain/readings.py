@@ -20,7 +20,7 @@ import pint
 from . import sparks
 from .errors import RuleRefusal
 from .procedures import Reading, SparkCount, Torque
-from .units import DIMENSIONS, UnitProblem, parse_unit, registry, seconds
+from .units import DIMENSIONS, UnitProblem, parse_quantity, parse_unit, registry, seconds
 
 Verdict = Literal["within", "near limit", "out of limits"]
 VERDICT_SYMBOL = {"within": "✓", "near limit": "▲", "out of limits": "✗"}
@@ -168,6 +168,21 @@ def adapter_setting(required: float, wrench_length: float, extension: float) -> 
     return required * wrench_length / (wrench_length + extension)
 
 
+TEST_VOLTAGE_TOLERANCE = 0.05  # station rule: the tester set to the data's voltage, ±5 %
+
+
+def _check_test_voltage(step: Reading, recorded_v: float) -> None:
+    """An insulation reading depends on the voltage it was taken at: one taken at another
+    voltage than the approved data's is not a reading of this step."""
+    assert step.test_voltage is not None
+    required = parse_quantity(str(step.test_voltage), "voltage").to("volt").magnitude
+    if abs(recorded_v - required) > TEST_VOLTAGE_TOLERANCE * required:
+        raise RuleRefusal("wrong_test_voltage", f"This reading is taken at {required:g} V "
+                          f"(the approved data's test voltage); {recorded_v:g} V was recorded. "
+                          f"Set the tester to {required:g} V and test again.",
+                          required_v=required, recorded_v=recorded_v)
+
+
 def evaluate_reading(step: Reading, data: Mapping[str, Any]) -> dict[str, Any]:
     """Check a reading's data and return what the station stores with it (the verdict too)."""
     if step.value == "text":
@@ -190,6 +205,8 @@ def evaluate_reading(step: Reading, data: Mapping[str, Any]) -> dict[str, Any]:
                               "margin": judged.margin}
     for condition in step.conditions:
         stored[condition] = _condition(condition, data.get(condition))
+    if step.test_voltage is not None:
+        _check_test_voltage(step, stored["test_voltage"]["converted"])
     if step.wear:
         stored["usage"] = _usage(data.get("usage"))
     return stored
