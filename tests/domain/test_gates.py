@@ -1,7 +1,7 @@
 """The safety gates as pure rules: lockout/tagout, the discharge wait, the duty cycle, the
 pre-energising gate, alone and through a job's events (no app, no database).
 
-Sources, as CHECKS.md gives them:
+Sources:
 - Order of energy control: preparation → shutdown → isolation → lock/tag applied → stored
   energy relieved → isolation verified, in that order: 29 CFR 1910.147(d)(1)–(6).
 - Release: area inspected, people clear and told, each device removed by the person who

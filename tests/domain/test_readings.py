@@ -1,11 +1,11 @@
 """Readings with units and limits: conversions, refusals, verdicts, torque, findings, sparks.
 
 Pure unit tests of webapp.domain.readings (no app, no database). Every expected value says
-where it comes from, with the status CHECKS.md gives it:
+where it comes from, with its status:
 
 - Torque: 1 lbf·in = 0.1129848 N·m, 1 lbf·ft = 1.355818 N·m, 12 lbf·in = 1 lbf·ft exactly —
   NIST SP 811 Appendix B.9, verified in a secondary copy.
-- 1 kgf·cm = 0.0980665 N·m — NIST SP 811 Appendix B.9 as quoted in DOMAIN.md §3 (exact:
+- 1 kgf·cm = 0.0980665 N·m — NIST SP 811 Appendix B.9 (exact:
   1 kgf = 9.80665 N by definition of standard gravity).
 - 1 lbf = 4.4482216152605 N; 1 in = 0.0254 m exactly — NIST SP 811 / international yard and
   pound, textbook. 1 in = 25.4 mm exactly; 1 thou = 0.0254 mm — NIST SP 811, textbook.
@@ -42,7 +42,7 @@ TODAY = date(2026, 3, 16)  # a fixed day for the calibration checks
     # NIST SP 811 Appendix B.9, verified in a secondary copy: 12 lbf·in = 1 lbf·ft exactly
     (12, "lbf*in", "lbf*ft", 1.0, EXACT),
     (1, "lbf*ft", "lbf*in", 12.0, EXACT),
-    # NIST SP 811 Appendix B.9 (DOMAIN.md §3): 1 kgf·cm = 0.0980665 N·m, exact by definition
+    # NIST SP 811 Appendix B.9: 1 kgf·cm = 0.0980665 N·m, exact by definition
     (1, "kgf*cm", "N*m", 0.0980665, EXACT),
     # NIST SP 811, textbook: 1 in = 25.4 mm exactly
     (1, "in", "mm", 25.4, EXACT),
@@ -603,7 +603,8 @@ def _timed(count, window=30):
 
 
 def test_a_timed_count_of_36_in_30_s_is_72_per_minute_good_to_2():
-    # DOMAIN.md §3: N / T × 60 = 36 / 30 × 60 = 72/min; resolution 60 / 30 = ±2/min.
+    # A rate by its definition (common practice, no source): N / T × 60 = 36 / 30 × 60
+    # = 72/min; resolution 60 / 30 = ±2/min.
     stored = readings.evaluate_spark_count(COUNT_A, _timed(36), {})
     assert stored["rate"] == 72.0
     assert stored["resolution"] == 2.0
@@ -623,7 +624,7 @@ def test_a_60_s_count_is_good_to_one_per_minute():
 
 
 def test_evenly_spaced_taps_three_quarters_of_a_second_apart_are_80_per_minute():
-    # DOMAIN.md §3: rate = 60 / median interval = 60 / 0.75 = 80/min.
+    # common practice, no source: rate = 60 / median interval = 60 / 0.75 = 80/min.
     taps = [0.0, 0.75, 1.5, 2.25, 3.0, 3.75, 4.5]
     stored = readings.evaluate_spark_count(COUNT_A, {"method": "taps", "taps": taps}, {})
     assert stored["rate"] == pytest.approx(80.0, rel=EXACT)

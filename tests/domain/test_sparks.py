@@ -1,6 +1,6 @@
 """Spark rate by ear: taps, timed counts, verdicts and the two-channel check, by hand arithmetic.
 
-Formulas (DOMAIN.md §3): rate = 60 / median tap interval; double tap < 0.5 × median;
+Formulas (common practice, no source): rate = 60 / median tap interval; double tap < 0.5 × median;
 missed snap > 1.5 × median; timed count N / T × 60, resolution ±60/T; combined ≈ A + B,
 beat period 1/|fA − fB|. numpy is the outside reference for median and diff.
 

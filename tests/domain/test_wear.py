@@ -2,7 +2,7 @@
 
 References: numpy.polyfit and scipy.stats.theilslopes computed here, independently of
 the module; hand computations written beside each check. The demo plug's readings, the
-1.20 mm limit and the 200 FH interval are demo data, invented (DOMAIN.md section 6).
+1.20 mm limit and the 200 FH interval are demo data, invented (demo_scenarios/bramblecoast.yaml).
 """
 
 from __future__ import annotations

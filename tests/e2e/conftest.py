@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import threading
+import time
 from datetime import UTC, datetime
 
 import pytest
@@ -36,6 +37,17 @@ def log_in(page, base_url: str, username: str, password: str) -> None:
     page.fill("#password", password)
     page.click("[data-testid=login]")
     page.wait_for_url(f"{base_url}/fleet")
+
+
+def wait_until(page, predicate: str, timeout_s: float = 10.0) -> None:
+    """Poll a predicate (sync or async: `page.evaluate` awaits its promise and returns the
+    value) until it is true; fail after `timeout_s`. Never give an async predicate to
+    `page.wait_for_function`: its promise is truthy, so that wait returns at once."""
+    deadline = time.monotonic() + timeout_s
+    while not page.evaluate(predicate):
+        if time.monotonic() > deadline:
+            raise AssertionError(f"still false after {timeout_s} s: {predicate}")
+        page.wait_for_timeout(50)
 
 
 def tap(page, selector: str) -> None:

@@ -23,6 +23,8 @@ from tests.https_station import serving_https
 from webapp.records.identity import SERVER_CERT_FILE
 from webapp.station.authority import authority_folder
 
+from .conftest import wait_until
+
 LAN_NAME = "station.hangar.test"  # .test is reserved for testing (RFC 2606)
 WORKER_IN_CHARGE = ("() => navigator.serviceWorker.controller !== null && "
                     "navigator.serviceWorker.controller.state === 'activated'")
@@ -55,8 +57,7 @@ def test_over_https_by_a_lan_name_the_tablet_gets_the_worker_and_offline_pages(
             page.wait_for_url(f"{base}/fleet")
             page.wait_for_function(WORKER_IN_CHARGE, polling=50)
             page.reload()  # through the worker now, which keeps a copy of the page
-            page.wait_for_function("async () => !!(await caches.match(location.href))",
-                                   polling=50)
+            wait_until(page, "async () => !!(await caches.match(location.href))")
             context.set_offline(True)
             page.reload()
             expect(page.get_by_test_id("who")).to_have_text("Aino Varga")  # the kept copy

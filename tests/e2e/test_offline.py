@@ -3,16 +3,21 @@ station once and in order, and what the station refuses is shown, never dropped.
 
 from __future__ import annotations
 
+import time
+
+import pytest
 from playwright.sync_api import expect
 
 from webapp import store
 from webapp.store import jobs as job_store
 
-from .conftest import open_removal_to_warning, tap
+from .conftest import open_removal_to_warning, tap, wait_until
 from .test_tablet_grade import VIEWPORTS, _audit
 
-OUTBOX_EMPTY = "async () => (await window.sparkwardOutbox.entries()).length === 0"
-PAGE_SAVED = "async () => !!(await caches.match(location.href))"
+# Async predicates: polled with `wait_until` (page.evaluate awaits them), never given to
+# page.wait_for_function (whose truthy promise would end the wait at once).
+OUTBOX_EMPTY = ("async () => (await window.sparkwardOutbox.entries()).length === 0")
+PAGE_SAVED = ("async () => !!(await caches.match(location.href))")
 WORKER_IN_CHARGE = ("() => navigator.serviceWorker.controller !== null && "
                     "navigator.serviceWorker.controller.state === 'activated'")
 
@@ -69,7 +74,7 @@ def test_a_step_done_offline_waits_on_the_tablet_then_reaches_the_station_once(
     context, network, page = _removal_on_a_tablet(browser, live_server, "tablet-landscape")
     page.wait_for_function(WORKER_IN_CHARGE, polling=50)
     page.reload()  # now through the worker, which keeps a copy of the job page
-    page.wait_for_function(PAGE_SAVED, polling=50)
+    wait_until(page, PAGE_SAVED)
     job_id, event_id = _job_and_event(page)
     count = page.get_by_test_id("outbox-count")
     step = page.get_by_test_id("step")
@@ -104,7 +109,7 @@ def test_a_step_done_offline_waits_on_the_tablet_then_reaches_the_station_once(
 
     network.restore()
     expect(step).to_have_attribute("data-step-id", "breakers")  # the station's next step
-    page.wait_for_function(OUTBOX_EMPTY, polling=50)
+    wait_until(page, OUTBOX_EMPTY)
     expect(count).to_be_hidden()
     expect(page.get_by_test_id("outbox-notice")).to_be_hidden()
     stored = _stored(db_path, job_id, event_id)
@@ -135,7 +140,7 @@ def test_an_entry_delivered_twice_is_stored_once(browser, live_server, db_path):
     assert entry["event_id"] == event_id
 
     page.reload()  # sent again on load: the station answers that it has it already
-    page.wait_for_function(OUTBOX_EMPTY, polling=50)
+    wait_until(page, OUTBOX_EMPTY)
     expect(count).to_be_hidden()
     expect(page.get_by_test_id("step")).to_have_attribute("data-step-id", "breakers")
 
@@ -148,7 +153,7 @@ def test_an_entry_delivered_twice_is_stored_once(browser, live_server, db_path):
         expect(tab.get_by_test_id("outbox-count")).to_have_text(
             "1 entry waiting to reach the station")
     context.set_offline(False)
-    other.wait_for_function(OUTBOX_EMPTY, polling=50)
+    wait_until(other, OUTBOX_EMPTY)
     assert other.evaluate("window.sparkwardOutbox.refusals()") == []  # a duplicate is no refusal
     expect(page.get_by_test_id("outbox-count")).to_be_hidden()
     assert len(_stored(db_path, job_id, event_id)) == 1
@@ -175,7 +180,7 @@ def test_an_entry_the_station_refuses_on_replay_is_listed_with_its_reason(
     refused = page.get_by_test_id("outbox-refused")
     expect(refused).to_be_visible()
     expect(refused).to_contain_text("Not accepted by the station")
-    page.wait_for_function(OUTBOX_EMPTY, polling=50)
+    wait_until(page, OUTBOX_EMPTY)
     expect(count).to_be_hidden()
     expect(page.get_by_test_id("tagged-IGN-A")).to_be_visible()  # the first one went in
     db = store.connect(db_path)
@@ -193,9 +198,20 @@ def test_an_entry_the_station_refuses_on_replay_is_listed_with_its_reason(
     expect(page.get_by_test_id("refused-reason")).to_have_text(reason)
     page.click("[data-testid=dismiss-refused]")
     expect(refused).to_be_hidden()
-    page.wait_for_function(
-        "async () => (await window.sparkwardOutbox.refusals()).length === 0", polling=50)
+    wait_until(page, "async () => (await window.sparkwardOutbox.refusals()).length === 0")
     page.reload()
     expect(page.get_by_test_id("step")).to_be_visible()
     expect(refused).to_be_hidden()
+    context.close()
+
+
+def test_waiting_on_an_async_predicate_really_waits_and_can_fail(browser):
+    context = browser.new_context()
+    page = context.new_page()
+    page.set_content("<p>nothing to wait for</p>")
+    started = time.monotonic()
+    with pytest.raises(AssertionError, match="still false"):
+        wait_until(page, "async () => false", timeout_s=0.5)
+    assert time.monotonic() - started >= 0.5
+    wait_until(page, "async () => (await Promise.resolve(2)) === 2", timeout_s=0.5)
     context.close()

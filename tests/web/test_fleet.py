@@ -2,7 +2,7 @@
 and a wear reading recorded through a job showing up as a new point.
 
 The plug histories, the 1.20 mm limit and the 200 FH interval are demo data, invented
-(demo_scenarios/bramblecoast.yaml, tasks/igniter-plug-replacement.yaml, DOMAIN.md section 6).
+(demo_scenarios/bramblecoast.yaml, tasks/igniter-plug-replacement.yaml).
 """
 
 from __future__ import annotations

@@ -79,7 +79,7 @@ def test_14_cfr_43_9_a_four_elements_of_the_maintenance_record(app, db, clock, p
     assert "Step 38: Certifying" in text
     assert text.count("Signature box:") == 3
     assert "printed name, authorisation number and its kind" in text
-    # The header: aircraft, engine serial and position, channel (DOMAIN.md section 4).
+    # The header: aircraft, engine serial and position, channel (common practice, no source).
     for shown in ("DEMO-101", "QT6-10231", "Engine position 1", "Ignition channel B"):
         assert shown in text
 
@@ -150,7 +150,7 @@ def test_21_cfr_11_10_readings_gates_hashes_and_pages_in_readable_form(
                      r"Tomas Reyes, BCA-M-0152 .*; consented by the owner, Aino Varga", text)
     assert "exciter input disconnected (power off)" in text
     assert "Wait served 2:00" in text
-    # Parts at work and as recorded (DOMAIN.md section 4: P/N and S/N removed and fitted).
+    # Parts at work and as recorded (common practice, no source: P/N and S/N removed and fitted).
     assert "XIP-2207" in text and "XP-4402" in text
     # The wear chart of the plug gauged on the job is drawn (its limit label is SVG text).
     assert "limit 1.20 mm" in text and "Igniter plug wear · XIP-2207 S/N XP-4402" in text
@@ -159,7 +159,8 @@ def test_21_cfr_11_10_readings_gates_hashes_and_pages_in_readable_form(
     assert f"Page {len(reader.pages)} of {len(reader.pages)}" in pages[-1]
     record_id = re.search(r"Record (SW-\d{5}-\d{3}-[0-9A-F]{8})", pages[0]).group(1)
     assert all(record_id in page for page in pages)
-    # DESIGN.md "Safety": the approved data and regulations govern; computations are advisory.
+    # The safety notice every record carries: the approved data and regulations govern;
+    # computations are advisory (common practice, no source).
     assert "computations are advisory" in text and "WARNING" in text and "NOTE" in text
 
 

@@ -12,12 +12,12 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-# Published thresholds the estimate is classified against (see CHECKS.md).
+# Published thresholds the estimate is classified against (each names its source below).
 SHOCK_HAZARD_VOLTS = 100.0        # capacitor hazard class: >= 100 V and >= 10 J
 SHOCK_HAZARD_JOULES = 10.0        # (DOE classification, LBNL ESM Table 2.2.13)
-ACCESSIBLE_CHARGE_COULOMBS = 45e-6  # IEC 61010-1 6.3.1 c): 45 uC between 450 V and 15 kV
+ACCESSIBLE_CHARGE_COULOMBS = 45e-6  # IEC 60335-1 8.1.4: 45 uC between 450 V and 15 kV
 ACCESSIBLE_CHARGE_BAND_VOLTS = (450.0, 15_000.0)
-HIGH_VOLTAGE_ENERGY_JOULES = 0.350  # IEC 61010-1: 350 mJ above 15 kV
+HIGH_VOLTAGE_ENERGY_JOULES = 0.350  # IEC 60335-1 8.1.4: 350 mJ above 15 kV
 MACHINERY_RESIDUAL_VOLTS = 60.0   # IEC 60204-1 6.2.4: > 60 V must fall to <= 60 V in 5 s
 MACHINERY_DISCHARGE_SECONDS = 5.0
 MACHINERY_EXEMPT_COULOMBS = 60e-6  # ... parts holding <= 60 uC are exempt
@@ -80,7 +80,7 @@ class HazardClass:
     """How a charged capacitor compares with the published thresholds."""
 
     shock_hazard: bool          # >= 100 V and >= 10 J
-    over_accessible_charge: bool  # above IEC 61010-1's accessible limit for its voltage
+    over_accessible_charge: bool  # above IEC 60335-1's accessible limit for its voltage
     machinery_rule_met: bool    # IEC 60204-1: <= 60 V within 5 s (or exempt by charge)
 
 

@@ -26,8 +26,8 @@ PLUG_PROCEDURE = "igniter-plug-replacement"
 # Jobs whose number readings say something about the exciter of their channel.
 EXCITER_READING_PROCEDURES = ("exciter-installation", "ignition-functional-check")
 USAGE_LABEL = "FH"  # the usage measure is engine hours: the inspection interval is set in them
-DEFAULT_LIMIT_MM = 1.20       # demo data, invented (DOMAIN.md section 6)
-DEFAULT_INTERVAL_FH = 200.0   # demo data, invented (DOMAIN.md section 6)
+DEFAULT_LIMIT_MM = 1.20       # demo data, invented (the demo plug procedure's limit)
+DEFAULT_INTERVAL_FH = 200.0   # demo data, invented
 URGENCY = {wear.REPLACE_NOW: 0, wear.BRING_FORWARD: 1, wear.OK: 2, wear.NOT_ENOUGH: 3}
 FLAGGED = (wear.REPLACE_NOW, wear.BRING_FORWARD)
 
