@@ -291,7 +291,8 @@ def test_shock_hazard_class(capacitance, voltage, hazard):
     assert classify(capacitance, voltage, 1e3).shock_hazard is hazard
 
 
-# Accessible charge: 45 µC between 450 V and 15 kV; 350 mJ above 15 kV — IEC 60335-1 §8.1.4 (verified in a secondary copy).
+# Accessible charge: 45 µC between 450 V and 15 kV; 350 mJ above 15 kV — IEC 60335-1 §8.1.4
+# (verified in a secondary copy).
 @pytest.mark.parametrize(("capacitance", "voltage", "over"), [
     (46e-9, 1000.0, True),      # 46e-9 · 1000 = 46 µC > 45 µC
     (44e-9, 1000.0, False),     # 44e-9 · 1000 = 44 µC ≤ 45 µC
