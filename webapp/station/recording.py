@@ -164,8 +164,10 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
 def _circumstances(db: store.Database, job: Job, kind: str, step_id: str | None,
                    data: dict[str, Any], device_time: str | None, person: Person,
                    now: datetime) -> Circumstances:
-    """What the rules need to know beyond the job's own log (the engine's tags, who is who)."""
-    tags = (engine_tags(db, job.row["engine_id"])
+    """What the rules need to know beyond the job's own log (the engine's state and tags, who
+    is who); the engine's state is read once, from its kept value."""
+    on_engine = _engine_circumstances(db, job, kind, step_id, data)
+    tags = (dict(on_engine["engine"].tags)
             if needs_engine_tags(job.state, kind, step_id) else {})
     roles_of = _named_person(db, data) if kind in gates.CONSENT_KINDS else {}
     return Circumstances(now=now, device_now=_device_time(device_time), person_id=person.id,
@@ -174,7 +176,7 @@ def _circumstances(db: store.Database, job: Job, kind: str, step_id: str | None,
                          roles=person.roles, roles_of=roles_of,
                          authorisations=(tuple(authorisations.held_by(db, person.id))
                                          if kind == "signed" else ()),
-                         **_engine_circumstances(db, job, kind, step_id, data))
+                         **on_engine)
 
 
 def _engine_circumstances(db: store.Database, job: Job, kind: str, step_id: str | None,

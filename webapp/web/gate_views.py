@@ -111,8 +111,8 @@ def _mechanics(db: store.Database) -> list[tuple[int, str]]:
 def gate_context(db: store.Database, job: recording.Job, now: datetime) -> dict[str, Any]:
     """Everything the step screen's gate panels need, for the job as it stands now."""
     state = job.state
-    tags = recording.engine_tags(db, job.row["engine_id"])
     engine = engines.current(db, job.row["engine_id"])
+    tags = dict(engine.tags)
     tag_list = _tag_views(db, tags, job.row["id"])
     by_breaker: dict[str, list[TagView]] = {}
     for view in tag_list:

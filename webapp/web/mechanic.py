@@ -43,10 +43,11 @@ def engine(engine_id: int) -> Any:
         abort(404)
     openable = recording.openable_procedures(db(), found)
     open_here = [j for j in job_store.jobs(db(), status="open") if j["engine_id"] == engine_id]
-    tags = recording.engine_tags(db(), engine_id)
+    state = engines.current(db(), engine_id)
+    tags = state.tags
     names = people.names_by_id(db(), {t.owner_id for t in tags.values()})
     return render_template("mechanic/engine.html", engine=found, openable=openable,
-                           state=engines.current(db(), engine_id), part_kinds=PART_KINDS,
+                           state=state, part_kinds=PART_KINDS,
                            open_here=open_here, tags=sorted(tags.values(),
                                                             key=lambda t: t.breaker),
                            names=names)
