@@ -355,6 +355,27 @@ def test_an_adapter_reading_judges_the_applied_torque_not_the_wrench_setting():
     assert stored["verdict"] == "within"
 
 
+def _lubricated_step() -> Torque:
+    # Demo data, invented: a lubricant factor of 0.8 on the plug's 250-300 lbf·in.
+    return _torque_step().model_copy(update={"lubricant_factor": 0.8})
+
+
+@pytest.mark.parametrize(("value", "adapter", "applied", "verdict"), [
+    (220.0, None, 275.0, "within"),                  # set to 275 × 0.8: 275 as the data means
+    (275.0, None, 343.75, "out of limits"),          # the factor forgotten: 275 / 0.8
+    # The page's setting with an adapter, 275 × 0.8 × 12 / 14 (FAA AC 43.13-1B para 7-40,
+    # from memory, for L/(L+E)), judged back by the station as 275: one formula both ways.
+    (275.0 * 0.8 * 12 / 14, {"wrench_length": 12, "extension": 2}, 275.0, "within"),
+])
+def test_the_station_applies_the_lubricant_factor_the_page_applies_to_the_setting(
+        value, adapter, applied, verdict):
+    data = _torque_data(value=value) if adapter is None else _torque_data(value=value,
+                                                                           adapter=adapter)
+    stored = readings.evaluate_torque(_lubricated_step(), data, TODAY)
+    assert stored["applied"] == pytest.approx(applied, rel=EXACT)
+    assert stored["verdict"] == verdict and stored["lubricant_factor"] == 0.8
+
+
 def test_an_uncorrected_setting_through_an_adapter_over_torques_the_plug():
     # Set to 275 with a 2 in extension on a 12 in wrench: 275 × 14 / 12 = 320.83 lbf·in applied.
     stored = readings.evaluate_torque(

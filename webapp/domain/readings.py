@@ -262,9 +262,15 @@ def evaluate_torque(step: Torque, data: Mapping[str, Any], today: date) -> dict[
         raise RuleRefusal("wrench_out_of_calibration", f"Wrench {wrench.strip()} was due for "
                           f"calibration on {due.isoformat()}: use a wrench in calibration.")
     measured = measure("value", data.get("value"), data.get("unit"), step.unit, "torque")
-    applied = measured.converted
+    # The data's torque is for its stated condition; where it gives a lubricant factor the
+    # wrench is set to required × factor, so what the limits judge is the setting ÷ factor
+    # (the same factor the page applies to the setting it shows; one formula, both ways).
+    factor = step.lubricant_factor or 1.0
+    applied = measured.converted / factor
     stored: dict[str, Any] = {**measured.as_data(), "wrench_id": wrench.strip(),
                               "calibration_due": due.isoformat()}
+    if step.lubricant_factor is not None:
+        stored["lubricant_factor"] = step.lubricant_factor
     adapter = data.get("adapter")
     if adapter is not None:
         if not step.adapter:
@@ -274,7 +280,7 @@ def evaluate_torque(step: Torque, data: Mapping[str, Any], today: date) -> dict[
         length = _number("wrench_length", adapter.get("wrench_length"))
         extension = _number("extension", adapter.get("extension"))
         setting_factor = adapter_setting(1.0, length, extension)
-        applied = measured.converted / setting_factor  # the wrench read low by L/(L+E)
+        applied = measured.converted / setting_factor / factor  # read low by L/(L+E)
         stored["adapter"] = {"wrench_length": length, "extension": extension,
                              "applied": applied}
     judged = verdict(applied, step.limits.min, step.limits.max, None)
