@@ -79,12 +79,7 @@ def _release(state: JobState, at: Circumstances) -> dict[str, Any]:
     if at.engine is None:
         raise RuleRefusal("engine_unknown", "The engine's state could not be read: no release "
                           "to service is given without it.")
-    procedure = state.procedure
-    effects = release.passed_channel_checks(procedure.kind, state.readings)
-    work = (f"job {at.job_id}: {procedure.title}, shop procedure revision "
-            f"{state.revision[:12] or 'unknown'} (from {procedure.source.document}, "
-            f"{procedure.source.section}, {procedure.source.revision})")
-    statement = release.release_statement(at.engine, work, at.job_id, effects)
+    statement, effects = release.job_statement(state, at.engine, at.job_id)
     said = {"release": statement.as_data(), "engine": effects}
     if not statement.released:
         said["meaning"] = "Certified: work complete, not released to service"
@@ -109,11 +104,8 @@ def job_progress(state: JobState) -> str:
     """Where a job stands, in the words of the job list: in work, returned, waiting for
     inspection, waiting for certification, released, closed (not released)."""
     if state.status == "complete":
-        certified = [e for e in state.completed.values()
-                     if e.get("kind") == "signed" and "release" in e.get("data", {})]
-        if certified and certified[-1]["data"]["release"].get("released"):
-            return "released"
-        return "closed, not released"
+        given = release.given_release(state)
+        return "released" if given is not None and given.released else "closed, not released"
     upcoming = state.next_step
     if upcoming is not None and isinstance(upcoming.step, Sign) and not state.awaiting_finding:
         if upcoming.step.role == "inspector":

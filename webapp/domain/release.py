@@ -12,9 +12,12 @@ from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from .engine import CHANNELS, EngineState, apply_engine_event
+
+if TYPE_CHECKING:
+    from .execution import JobState
 
 RELEASED = "Released to service"
 NOT_RELEASED = "Not released to service"
@@ -83,3 +86,23 @@ def release_statement(engine: EngineState, work: str, job_id: int,
     limitations = tuple(f"open item {i.reference} (job {i.job_id}): {i.text}; limit {i.limit}"
                         for i in after.open_items)
     return ReleaseStatement(not reasons, work, tuple(reasons), limitations)
+
+
+def job_statement(state: JobState, engine: EngineState, job_id: int
+                  ) -> tuple[ReleaseStatement, list[dict[str, Any]]]:
+    """What certifying this job now states, and the engine effects the certification has:
+    the one composition the certification, the supervisor's preview and the printed record
+    all use."""
+    procedure = state.procedure
+    effects = passed_channel_checks(procedure.kind, state.readings)
+    work = (f"job {job_id}: {procedure.title}, shop procedure revision "
+            f"{state.revision[:12] or 'unknown'} (from {procedure.source.document}, "
+            f"{procedure.source.section}, {procedure.source.revision})")
+    return release_statement(engine, work, job_id, effects), effects
+
+
+def given_release(state: JobState) -> ReleaseStatement | None:
+    """The statement the job's certifying signature gave, once it is certified."""
+    given = [e["data"]["release"] for e in state.completed.values()
+             if e.get("kind") == "signed" and "release" in e.get("data", {})]
+    return ReleaseStatement.from_data(given[-1]) if given else None

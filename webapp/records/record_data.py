@@ -194,9 +194,7 @@ def gather(db: Database, job_id: int, now: datetime,
         wear_charts=wear_charts(db, row, state),
         performers=performers(events, row, state, who),
         sign_blocks=sign_blocks, release=release,
-        release_lines=release_lines(db, row["engine_id"], job_id, state, (
-            f"job {job_id}: {procedure.title} ({row['procedure_id']}), shop revision "
-            f"{row['revision_number']}")),
+        release_lines=release_lines(db, row["engine_id"], job_id, state),
         limitations=[f"Deferred at step {r.step_number}: {r.finding} (reference {r.reference})"
                      for r in readings if r.disposition.startswith(DISPOSITION_WORDS["deferred"])],
         after_completion=([] if procedure.after_completion == NONE

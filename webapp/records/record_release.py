@@ -11,7 +11,7 @@ from dataclasses import dataclass
 
 from ..domain.execution import JobState
 from ..domain.procedures import Sign
-from ..domain.release import ReleaseStatement, passed_channel_checks, release_statement
+from ..domain.release import ReleaseStatement, given_release, job_statement
 from ..store import Database, engines
 
 
@@ -21,15 +21,12 @@ class ReleaseLines:
     given: bool          # True: as the certifying signature gave it; False: as it stands
 
 
-def release_lines(db: Database, engine_id: int, job_id: int, state: JobState,
-                  work: str) -> ReleaseLines | None:
+def release_lines(db: Database, engine_id: int, job_id: int,
+                  state: JobState) -> ReleaseLines | None:
     """None when the procedure has no certifying signature."""
-    certifying = [s for s in state.applicable if isinstance(s, Sign) and s.role == "certifying"]
-    if not certifying:
+    if not any(isinstance(s, Sign) and s.role == "certifying" for s in state.applicable):
         return None
-    signed = state.completed.get(certifying[-1].id)
-    if signed is not None and "release" in signed.get("data", {}):
-        return ReleaseLines(ReleaseStatement.from_data(signed["data"]["release"]), True)
-    effects = passed_channel_checks(state.procedure.kind, state.readings)
-    return ReleaseLines(release_statement(engines.current(db, engine_id), work, job_id,
-                                          effects), False)
+    given = given_release(state)
+    if given is not None:
+        return ReleaseLines(given, True)
+    return ReleaseLines(job_statement(state, engines.current(db, engine_id), job_id)[0], False)

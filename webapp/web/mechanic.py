@@ -12,6 +12,7 @@ from flask import Blueprint, abort, redirect, render_template, request, url_for
 from ..domain.engine import PART_KINDS
 from ..domain.gates import ON_LIMIT_WARNING_S
 from ..domain.readings import InputProblem
+from ..domain.release import given_release
 from ..station import recording
 from ..store import engines, people
 from ..store import fleet as fleet_store
@@ -76,7 +77,7 @@ def _job_page(job_id: int, error: str | None = None, status: int = 200,
                             names=names, error=error, gate=gate_context(db(), job, now()),
                             warning_s=ON_LIMIT_WARNING_S, problem=problem,
                             entered=entered or {}, today=now().date().isoformat(),
-                            station_now=now(),
+                            station_now=now(), given_release=given_release(job.state),
                             sign=sign_view(db(), job.state, job.state.next_step, person(),
                                            now().date()))
 

@@ -8,7 +8,7 @@ from typing import Any
 from flask import Blueprint, Response, abort, redirect, render_template, request, url_for
 
 from ..domain.checks import job_progress
-from ..domain.release import passed_channel_checks, release_statement
+from ..domain.release import given_release, job_statement
 from ..domain.signoff import awaiting_review
 from ..station import recording
 from ..store import engines, people, signers
@@ -44,12 +44,6 @@ def _attention(state: Any) -> tuple[int, int]:
     return (-flagged, 0)
 
 
-def release_preview(state: Any, engine: Any, job_id: int) -> Any:
-    """What certifying the job now would state (released, or why not)."""
-    effects = passed_channel_checks(state.procedure.kind, state.readings)
-    return release_statement(engine, f"job {job_id}", job_id, effects)
-
-
 @bp.get("/review")
 @requires("supervisor")
 def review_queue() -> Any:
@@ -61,8 +55,8 @@ def review_queue() -> Any:
                        if r.get("verdict") == "out of limits" or r.get("finding")]
             engine = engines.current(db(), row["engine_id"])
             waiting.append({"job": row, "state": job.state, "flagged": flagged,
-                            "engine": engine, "release": release_preview(job.state, engine,
-                                                                         row["id"])})
+                            "engine": engine,
+                            "release": job_statement(job.state, engine, row["id"])[0]})
     waiting.sort(key=lambda w: (-len(w["flagged"]), w["job"]["id"]))
     return render_template("supervisor/review_queue.html", waiting=waiting)
 
@@ -74,10 +68,9 @@ def _review_page(job_id: int, error: str | None = None, status: int = 200) -> An
     record = record_html(db(), job_id, now(), signatures=recording.signatures_of(job.state),
                          embedded=True, record_revision=recording.record_revision(job.state))
     certifying = job.state.next_step if awaiting_review(job.state) else None
-    preview = (release_preview(job.state, engines.current(db(), job.row["engine_id"]), job_id)
+    preview = (job_statement(job.state, engines.current(db(), job.row["engine_id"]), job_id)[0]
                if certifying else None)
-    given = next((e["data"]["release"] for e in job.state.completed.values()
-                  if e.get("kind") == "signed" and "release" in e.get("data", {})), None)
+    given = given_release(job.state)
     return render_template("supervisor/review.html", job=job.row, state=job.state,
                            preview=preview, given=given, progress=job_progress(job.state),
                            record=record, certifying=certifying, error=error,
