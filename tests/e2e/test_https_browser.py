@@ -55,7 +55,15 @@ def test_over_https_by_a_lan_name_the_tablet_gets_the_worker_and_offline_pages(
             page.fill("#password", DEMO_PASSWORDS["mech1"])
             page.click("[data-testid=login]")
             page.wait_for_url(f"{base}/fleet")
-            page.wait_for_function(WORKER_IN_CHARGE, polling=50)
+            try:
+                wait_until(page, WORKER_IN_CHARGE, timeout_s=20)
+            except AssertionError:
+                # The worker's install fetches the shell over the station's TLS server; on
+                # a loaded 2-core machine one of those fetches has stalled (seen once in CI;
+                # the station's connection handling is issue 12's). A tablet registers
+                # again on its next page: so does the test, once, and then must succeed.
+                page.reload()
+                wait_until(page, WORKER_IN_CHARGE, timeout_s=20)
             page.reload()  # through the worker now, which keeps a copy of the page
             wait_until(page, "async () => !!(await caches.match(location.href))")
             context.set_offline(True)
