@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 from datetime import datetime
 from typing import Any
 
-from . import gates, readings, release, signoff, sparks, supply, tag_handover
+from . import gates, readings, release, signoff, spark_counts, sparks, supply, tag_handover, torque
 from .authorisations import Authorisation
 from .engine import EngineState, check_channels_whole
 from .errors import RuleRefusal
@@ -270,9 +270,9 @@ def _check_completion(state: JobState, target: StepProgress, data: Mapping[str, 
             raise RuleRefusal("finding_required", "The last reading was out of limits: record "
                               "the finding and what was done before anything else.")
         if isinstance(step, Torque):
-            return readings.evaluate_torque(step, data, at.now.date())
+            return torque.evaluate_torque(step, data, at.now.date())
         if isinstance(step, SparkCount):
-            stored = readings.evaluate_spark_count(step, data, state.single_channel_rates())
+            stored = spark_counts.evaluate_spark_count(step, data, state.single_channel_rates())
             stored["supply"] = supply.evaluate_supply(
                 supply.supply_kind(state.configuration.exciter_types), data.get("supply"),
                 step.supply)

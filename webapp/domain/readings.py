@@ -12,15 +12,13 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass
-from datetime import date
 from typing import Any, Literal
 
 import pint
 
-from . import sparks
 from .errors import RuleRefusal
-from .procedures import Reading, SparkCount, Torque
-from .units import DIMENSIONS, UnitProblem, parse_quantity, parse_unit, registry, seconds
+from .procedures import Reading
+from .units import DIMENSIONS, UnitProblem, parse_quantity, parse_unit, registry
 
 Verdict = Literal["within", "near limit", "out of limits"]
 VERDICT_SYMBOL = {"within": "✓", "near limit": "▲", "out of limits": "✗"}
@@ -74,7 +72,7 @@ def dimension_of(unit_text: str) -> str:
     return str(unit.dimensionality)
 
 
-def _number(field: str, raw: Any) -> float:
+def read_number(field: str, raw: Any) -> float:
     if isinstance(raw, bool) or raw is None:
         raise InputProblem(field, "Enter a number.")
     if isinstance(raw, str):
@@ -111,7 +109,7 @@ class Measured:
 def measure(field: str, raw_value: Any, raw_unit: Any, procedure_unit: str,
             dimension: str | None = None) -> Measured:
     """Read a number and its unit, check the unit's dimension and the magnitude, convert."""
-    value = _number(field, raw_value)
+    value = read_number(field, raw_value)
     if not isinstance(raw_unit, str) or not raw_unit.strip():
         raise InputProblem(f"{field}_unit", "Choose the unit your tool shows.")
     dimension = dimension or dimension_of(procedure_unit)
@@ -157,15 +155,6 @@ def verdict(value: float, low: float | None, high: float | None,
     else:
         result = "within"
     return LimitVerdict(result, VERDICT_SYMBOL[result], margin)
-
-
-def adapter_setting(required: float, wrench_length: float, extension: float) -> float:
-    """The wrench setting for a required torque with an extension: T_set = T_req·L/(L+E)."""
-    if wrench_length <= 0:
-        raise InputProblem("wrench_length", "The wrench length must be above zero.")
-    if extension < 0:
-        raise InputProblem("extension", "The adapter's extension is zero or more.")
-    return required * wrench_length / (wrench_length + extension)
 
 
 TEST_VOLTAGE_TOLERANCE = 0.05  # station rule: the tester set to the data's voltage, ±5 %
@@ -220,7 +209,7 @@ def _usage(raw: Any) -> dict[str, Any]:
     usage: dict[str, Any] = {}
     for name, whole in (("engine_hours", False), ("starts", True),
                         ("continuous_ignition_hours", False)):
-        value = _number(name, raw.get(name))
+        value = read_number(name, raw.get(name))
         if value < 0 or value > 200_000:
             raise InputProblem(name, f"{value:g} is not a plausible figure for "
                                + name.replace("_", " ") + ".")
@@ -239,53 +228,12 @@ def _condition(name: str, raw: Any) -> dict[str, Any]:
     if not isinstance(raw, Mapping):
         raise InputProblem(name, "Record the " + name.replace("_", " ") + " with the reading.")
     if name == "humidity":
-        value = _number(name, raw.get("value"))
+        value = read_number(name, raw.get("value"))
         if not 0 <= value <= 100:
             raise InputProblem(name, "Relative humidity is between 0 and 100 %RH.")
         return {"value": value, "unit": "%RH"}
     unit, dimension = _CONDITION_UNITS[name]
     return measure(name, raw.get("value"), raw.get("unit"), unit, dimension).as_data()
-
-
-def evaluate_torque(step: Torque, data: Mapping[str, Any], today: date) -> dict[str, Any]:
-    """Torque as applied (wrench setting corrected for an adapter), with its wrench."""
-    wrench = data.get("wrench_id")
-    if not isinstance(wrench, str) or not wrench.strip():
-        raise InputProblem("wrench_id", "Enter the torque wrench's ID.")
-    due_text = data.get("calibration_due")
-    try:
-        due = date.fromisoformat(str(due_text))
-    except ValueError:
-        raise InputProblem("calibration_due", "Enter the wrench's calibration due date "
-                           "(YYYY-MM-DD).") from None
-    if due < today:
-        raise RuleRefusal("wrench_out_of_calibration", f"Wrench {wrench.strip()} was due for "
-                          f"calibration on {due.isoformat()}: use a wrench in calibration.")
-    measured = measure("value", data.get("value"), data.get("unit"), step.unit, "torque")
-    # The data's torque is for its stated condition; where it gives a lubricant factor the
-    # wrench is set to required × factor, so what the limits judge is the setting ÷ factor
-    # (the same factor the page applies to the setting it shows; one formula, both ways).
-    factor = step.lubricant_factor or 1.0
-    applied = measured.converted / factor
-    stored: dict[str, Any] = {**measured.as_data(), "wrench_id": wrench.strip(),
-                              "calibration_due": due.isoformat()}
-    if step.lubricant_factor is not None:
-        stored["lubricant_factor"] = step.lubricant_factor
-    adapter = data.get("adapter")
-    if adapter is not None:
-        if not step.adapter:
-            raise InputProblem("adapter", "This step's data gives no adapter.")
-        if not isinstance(adapter, Mapping):
-            raise InputProblem("adapter", "Give the wrench length and the adapter's extension.")
-        length = _number("wrench_length", adapter.get("wrench_length"))
-        extension = _number("extension", adapter.get("extension"))
-        setting_factor = adapter_setting(1.0, length, extension)
-        applied = measured.converted / setting_factor / factor  # read low by L/(L+E)
-        stored["adapter"] = {"wrench_length": length, "extension": extension,
-                             "applied": applied}
-    judged = verdict(applied, step.limits.min, step.limits.max, None)
-    stored.update(verdict=judged.verdict, margin=judged.margin, applied=applied)
-    return stored
 
 
 def evaluate_finding(data: Mapping[str, Any]) -> dict[str, Any]:
@@ -311,66 +259,4 @@ def evaluate_finding(data: Mapping[str, Any]) -> dict[str, Any]:
         # A deferred defect is an open item of the engine until a later job closes it.
         stored["engine"] = [{"effect": "defer", "text": stored["text"],
                              "reference": stored["reference"], "limit": stored["limit"]}]
-    return stored
-
-
-def evaluate_spark_count(step: SparkCount, data: Mapping[str, Any],
-                         single_rates: Mapping[str, tuple[float, float]]) -> dict[str, Any]:
-    """A spark count by taps or over a timed window: rate, resolution, verdict and, for both
-    channels together, the check against A + B. `single_rates` are this job's latest A and B
-    results (rate, resolution). A mistyped count is an InputProblem; limits are the step's."""
-    method = data.get("method")
-    try:
-        if method == "taps":
-            taps = data.get("taps")
-            if not isinstance(taps, list):
-                raise InputProblem("taps", "Tap once for each snap you hear.")
-            tapped = sparks.spark_rate_from_taps(taps, one_unit=step.channel != "both")
-            rate, resolution = tapped.rate_per_min, 0.0
-            stored: dict[str, Any] = {
-                "method": "taps", "taps": [float(t) for t in taps], "rate": rate,
-                "median_interval_s": tapped.median_interval_s,
-                "double_taps": list(tapped.double_taps),
-                "missed": [list(m) for m in tapped.missed],
-                "inferred_missed": tapped.inferred_missed, "rate_method": tapped.method,
-                "counted_sparks": tapped.counted_sparks, "window_s": tapped.window_s}
-        elif method == "timed":
-            window = data.get("window_s")
-            allowed = {seconds(str(step.window)), 30.0, 60.0}
-            if not isinstance(window, (int, float)) or float(window) not in allowed:
-                raise InputProblem("window_s", "Count over a 30 s or 60 s window.")
-            count = data.get("count")
-            if isinstance(count, str) and count.strip().isdigit():
-                count = int(count.strip())
-            if not isinstance(count, int) or isinstance(count, bool):
-                raise InputProblem("count", "Enter the number of snaps you counted.")
-            timed = sparks.spark_rate_from_count(count, float(window))
-            rate, resolution = timed.rate_per_min, timed.resolution_per_min
-            stored = {"method": "timed", "count": count, "window_s": float(window),
-                      "rate": rate}
-        else:
-            raise InputProblem("method", "Tap the snaps, or count them over a timed window.")
-    except RuleRefusal as refusal:  # a count that cannot be: fix the entry, nothing is kept
-        field = "taps" if method == "taps" else "count"
-        raise InputProblem(field, refusal.reason) from None
-    low, high = step.limits.min, step.limits.max
-    judged = sparks.rate_verdict(rate, low if low is not None else 0.0,
-                                 high if high is not None else math.inf, resolution)
-    stored.update(resolution=resolution, channel=step.channel, verdict=judged.verdict,
-                  margin=judged.margin)
-    if step.channel == "both":
-        if "A" not in single_rates or "B" not in single_rates:
-            raise RuleRefusal("single_counts_missing", "Count channel A and channel B on their "
-                              "own first: the combined count is checked against them.")
-        (rate_a, res_a), (rate_b, res_b) = single_rates["A"], single_rates["B"]
-        check = sparks.two_channel_check(rate_a, rate_b, rate, step.both_tolerance or 0.0,
-                                         max(resolution, res_a, res_b))
-        stored["both_check"] = {"result": check.result, "expected": check.expected,
-                                "deviation": check.deviation, "message": check.message,
-                                "silent_channel": check.silent_channel,
-                                "beat_period_s": check.beat_period_s}
-        if check.result in ("inconsistent", "one unit not firing"):
-            stored["verdict"] = "out of limits"
-        # Otherwise the combined rate keeps its own verdict against the step's limits: a
-        # combined count below the step's minimum is out of limits, whatever A and B were.
     return stored

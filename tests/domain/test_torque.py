@@ -1,0 +1,185 @@
+"""Readings with units and limits: conversions, refusals, verdicts, torque, findings, sparks.
+
+Pure unit tests of webapp.domain.readings (no app, no database). Every expected value says
+where it comes from, with its status:
+
+- Torque: 1 lbf·in = 0.1129848 N·m, 1 lbf·ft = 1.355818 N·m, 12 lbf·in = 1 lbf·ft exactly —
+  NIST SP 811 Appendix B.9, verified in a secondary copy.
+- 1 kgf·cm = 0.0980665 N·m — NIST SP 811 Appendix B.9 (exact:
+  1 kgf = 9.80665 N by definition of standard gravity).
+- 1 lbf = 4.4482216152605 N; 1 in = 0.0254 m exactly — NIST SP 811 / international yard and
+  pound, textbook. 1 in = 25.4 mm exactly; 1 thou = 0.0254 mm — NIST SP 811, textbook.
+- Temperature: t/°C = (t/°F − 32) / 1.8 — definition of the scale, textbook.
+- Adapter: T_set = T_req·L/(L+E) — FAA AC 43.13-1B para 7-40, from memory.
+- Spark counts, limits and tolerances below are demo data, invented.
+"""
+
+from __future__ import annotations
+
+from datetime import date, timedelta
+
+import pytest
+
+from webapp.domain import torque
+from webapp.domain.errors import RuleRefusal
+from webapp.domain.procedures import Torque
+from webapp.domain.readings import InputProblem
+
+REL = 1e-6          # against the published factors, which NIST rounds to 7 significant figures
+EXACT = 1e-12       # exact by definition: only float rounding may separate the two
+INCH_M = 0.0254     # 1 in = 0.0254 m exactly — NIST SP 811 / international yard and pound, textbook
+TODAY = date(2026, 3, 16)  # a fixed day for the calibration checks
+
+
+def test_an_adapter_lowers_the_wrench_setting_by_l_over_l_plus_e():
+    # FAA AC 43.13-1B para 7-40, from memory: T_set = T_req·L/(L+E).
+    # 275 × 12 / (12 + 2) = 3300 / 14 = 235.714 285 7… lbf·in
+    assert torque.adapter_setting(275.0, 12.0, 2.0) == pytest.approx(3300 / 14, rel=EXACT)
+    assert torque.adapter_setting(275.0, 12.0, 2.0) == pytest.approx(235.7142857, rel=REL)
+
+
+def test_no_extension_leaves_the_required_torque():
+    assert torque.adapter_setting(275.0, 12.0, 0.0) == 275.0
+
+
+@pytest.mark.parametrize("length", [0.0, -12.0])
+def test_a_wrench_length_of_zero_or_less_is_refused(length):
+    with pytest.raises(InputProblem) as excinfo:
+        torque.adapter_setting(275.0, length, 2.0)
+    assert excinfo.value.field == "wrench_length"
+
+
+def test_a_negative_extension_is_refused_at_the_extension_field():
+    with pytest.raises(InputProblem) as excinfo:
+        torque.adapter_setting(275.0, 12.0, -2.0)
+    assert excinfo.value.field == "extension"
+
+
+# --- 5. torque with its wrench and adapter ----------------------------------------------------
+
+def _torque_step(adapter: bool = True) -> Torque:
+    # Demo data, invented: limits, lubricant and wording of a plug torque step.
+    return Torque.model_validate({
+        "id": "torque-plug", "kind": "torque", "text": "Torque the igniter plug.",
+        "unit": "lbf*in", "limits": {"min": 250, "max": 300},
+        "lubricant": "anti-seize compound (demo)", "adapter": adapter})
+
+
+def _torque_data(**overrides) -> dict:
+    data = {"value": 275, "unit": "lbf*in", "wrench_id": "TW-07",
+            "calibration_due": TODAY.isoformat()}
+    data.update(overrides)
+    return data
+
+
+def test_a_wrench_due_for_calibration_yesterday_is_refused():
+    yesterday = (TODAY - timedelta(days=1)).isoformat()
+    with pytest.raises(RuleRefusal) as excinfo:
+        torque.evaluate_torque(_torque_step(), _torque_data(calibration_due=yesterday), TODAY)
+    assert excinfo.value.rule == "wrench_out_of_calibration"
+
+
+def test_a_wrench_due_today_is_still_in_calibration():
+    stored = torque.evaluate_torque(_torque_step(), _torque_data(wrench_id="  TW-07 "), TODAY)
+    assert stored["wrench_id"] == "TW-07"
+    assert stored["calibration_due"] == TODAY.isoformat()
+    assert stored["applied"] == 275.0
+    assert stored["verdict"] == "within"
+    assert stored["margin"] == 25.0
+    assert "adapter" not in stored
+
+
+def test_a_torque_in_newton_metres_is_judged_in_the_step_unit():
+    # 31.07 N·m / 0.1129848 N·m per lbf·in (NIST SP 811 B.9) = 274.99… lbf·in
+    stored = torque.evaluate_torque(_torque_step(), _torque_data(value=31.07, unit="N*m"),
+                                      TODAY)
+    assert stored["applied"] == pytest.approx(31.07 / 0.1129848, rel=REL)
+    assert stored["verdict"] == "within"
+
+
+@pytest.mark.parametrize("value", [245, 305])
+def test_a_torque_outside_the_step_limits_is_out_of_limits(value):
+    stored = torque.evaluate_torque(_torque_step(), _torque_data(value=value), TODAY)
+    assert stored["verdict"] == "out of limits"
+    assert stored["margin"] == -5.0
+
+
+@pytest.mark.parametrize("wrench", [None, "", "   ", 7])
+def test_a_missing_wrench_id_is_refused_at_its_field(wrench):
+    with pytest.raises(InputProblem) as excinfo:
+        torque.evaluate_torque(_torque_step(), _torque_data(wrench_id=wrench), TODAY)
+    assert excinfo.value.field == "wrench_id"
+
+
+@pytest.mark.parametrize("due", [None, "", "next year", "2026-13-01", "2026-02-30"])
+def test_a_calibration_date_that_is_not_a_date_is_refused_at_its_field(due):
+    with pytest.raises(InputProblem) as excinfo:
+        torque.evaluate_torque(_torque_step(), _torque_data(calibration_due=due), TODAY)
+    assert excinfo.value.field == "calibration_due"
+
+
+def test_an_adapter_reading_judges_the_applied_torque_not_the_wrench_setting():
+    # FAA AC 43.13-1B para 7-40, from memory: applied = setting·(L+E)/L.
+    setting = 275.0 * 12 / 14    # the corrected setting for 275 lbf·in, L = 12 in, E = 2 in
+    stored = torque.evaluate_torque(
+        _torque_step(), _torque_data(value=setting,
+                                     adapter={"wrench_length": 12, "extension": 2}), TODAY)
+    assert stored["applied"] == pytest.approx(275.0, rel=EXACT)
+    assert stored["adapter"] == {"wrench_length": 12.0, "extension": 2.0,
+                                 "applied": pytest.approx(275.0, rel=EXACT)}
+    assert stored["value"] == pytest.approx(setting, rel=EXACT)   # as the wrench was set
+    assert stored["verdict"] == "within"
+
+
+def _lubricated_step() -> Torque:
+    # Demo data, invented: a lubricant factor of 0.8 on the plug's 250-300 lbf·in.
+    return _torque_step().model_copy(update={"lubricant_factor": 0.8})
+
+
+@pytest.mark.parametrize(("value", "adapter", "applied", "verdict"), [
+    (220.0, None, 275.0, "within"),                  # set to 275 × 0.8: 275 as the data means
+    (275.0, None, 343.75, "out of limits"),          # the factor forgotten: 275 / 0.8
+    # The page's setting with an adapter, 275 × 0.8 × 12 / 14 (FAA AC 43.13-1B para 7-40,
+    # from memory, for L/(L+E)), judged back by the station as 275: one formula both ways.
+    (275.0 * 0.8 * 12 / 14, {"wrench_length": 12, "extension": 2}, 275.0, "within"),
+])
+def test_the_station_applies_the_lubricant_factor_the_page_applies_to_the_setting(
+        value, adapter, applied, verdict):
+    data = _torque_data(value=value) if adapter is None else _torque_data(value=value,
+                                                                           adapter=adapter)
+    stored = torque.evaluate_torque(_lubricated_step(), data, TODAY)
+    assert stored["applied"] == pytest.approx(applied, rel=EXACT)
+    assert stored["verdict"] == verdict and stored["lubricant_factor"] == 0.8
+
+
+def test_an_uncorrected_setting_through_an_adapter_over_torques_the_plug():
+    # Set to 275 with a 2 in extension on a 12 in wrench: 275 × 14 / 12 = 320.83 lbf·in applied.
+    stored = torque.evaluate_torque(
+        _torque_step(), _torque_data(value=275,
+                                     adapter={"wrench_length": 12, "extension": 2}), TODAY)
+    assert stored["applied"] == pytest.approx(275 * 14 / 12, rel=EXACT)
+    assert stored["verdict"] == "out of limits"
+
+
+def test_an_adapter_on_a_step_without_one_is_refused():
+    with pytest.raises(InputProblem) as excinfo:
+        torque.evaluate_torque(
+            _torque_step(adapter=False),
+            _torque_data(adapter={"wrench_length": 12, "extension": 2}), TODAY)
+    assert excinfo.value.field == "adapter"
+
+
+@pytest.mark.parametrize(("adapter", "field"), [
+    ("12 in", "adapter"),
+    ({"extension": 2}, "wrench_length"),
+    ({"wrench_length": 12}, "extension"),
+    ({"wrench_length": 0, "extension": 2}, "wrench_length"),
+    ({"wrench_length": "NaN", "extension": 2}, "wrench_length"),
+])
+def test_an_adapter_without_a_usable_length_and_extension_is_refused(adapter, field):
+    with pytest.raises(InputProblem) as excinfo:
+        torque.evaluate_torque(_torque_step(), _torque_data(adapter=adapter), TODAY)
+    assert excinfo.value.field == field
+
+
+# --- 6. readings: text, pass/fail, number with conditions, wear --------------------------------

@@ -1,0 +1,214 @@
+"""The steps of a procedure: one model per step kind, and the `Step` union the procedure
+file is read into."""
+
+from __future__ import annotations
+
+from typing import Annotated, Literal
+
+from pydantic import Field, model_validator
+
+from .procedure_types import (
+    ADVISORY_KINDS,
+    AnyUnit,
+    Capacitance,
+    Connection,
+    Duration,
+    DutyEntry,
+    Id,
+    Limits,
+    Resistance,
+    StepCondition,
+    Text,
+    TorqueUnit,
+    Voltage,
+    _field_error,
+    _Strict,
+)
+
+
+class _Step(_Strict):
+    id: Id
+    text: Text
+    detail: str | None = None
+    when: StepCondition | None = None
+
+    @property
+    def is_advisory(self) -> bool:
+        return self.kind in ADVISORY_KINDS  # type: ignore[attr-defined]
+
+
+class Advisory(_Step):
+    """A WARNING (people), CAUTION (equipment) or NOTE; `guards` names the step it
+    applies to (by default the next step that is not itself an advisory)."""
+
+    kind: Literal["note", "caution", "warning"]
+    guards: Id | None = None
+
+
+class Check(_Step):
+    """An action to do and tick. `power` marks the step that disconnects (or reconnects) the
+    exciter's input; `before_energising` makes it part of the gate before any ignition run;
+    `ignition_off` is the selector-off step that ends an ignition run."""
+
+    kind: Literal["check"]
+    items: list[Text] | None = None
+    power: Literal["removed", "restored"] | None = None
+    before_energising: bool = False
+    ignition_off: bool = False  # ticking it records every energised exciter switched off
+    # What ticking it does to the engine's channel: a connection opened (the channel is not
+    # whole until some job restores it) or put back.
+    disturbs: list[Connection] = Field(default_factory=list)
+    restores: list[Connection] = Field(default_factory=list)
+
+
+class Breaker(_Strict):
+    id: Text
+    label: Text
+
+
+class Lockout(_Step):
+    """Hang a tag on each listed breaker (apply), or take them off (release). A release step
+    may name the shop's documented absent-owner procedure; without it only owners untag.
+    An apply step with `confirm_existing` is met by tags found hanging: writing a hanging
+    tag's number confirms it instead of being refused as a number in use."""
+
+    kind: Literal["lockout"]
+    breakers: list[Breaker] = Field(min_length=1)
+    action: Literal["apply", "release"] = "apply"
+    absent_owner: Text | None = None
+    confirm_existing: bool = False
+
+    @model_validator(mode="after")
+    def _absent_owner_only_on_release(self) -> Lockout:
+        if self.absent_owner is not None and self.action != "release":
+            raise _field_error("absent_owner", "an absent-owner path belongs on a release step")
+        if self.confirm_existing and self.action != "apply":
+            raise _field_error("confirm_existing", "confirming tags found hanging belongs on "
+                               "an apply step")
+        return self
+
+
+class Capacitor(_Strict):
+    """The exciter's storage circuit, when the approved data gives it."""
+
+    capacitance: Capacitance
+    charge_voltage: Voltage
+    bleed_resistance: Resistance
+    safe_voltage: Voltage
+
+
+class DischargeWait(_Step):
+    """The wait after the exciter's input is disconnected. `minimum_reason` says why the
+    approved data allows a minimum shorter than the station's floor (see procedure_sanity)."""
+
+    kind: Literal["discharge_wait"]
+    minimum: Duration
+    minimum_reason: Text | None = None
+    capacitor: Capacitor | None = None
+
+
+class Reading(_Step):
+    """A value to record. Number readings carry their unit and limits; `conditions` are
+    recorded with the value (insulation tests); `wear: true` ties a plug's erosion to the
+    plug's serial number and its usage."""
+
+    kind: Literal["reading"]
+    value: Literal["number", "text", "pass_fail"]
+    unit: AnyUnit | None = None
+    limits: Limits | None = None
+    near_margin: float | None = Field(default=None, ge=0)
+    conditions: list[Literal["test_voltage", "ambient_temperature", "humidity"]] = Field(
+        default_factory=list)
+    wear: bool = False
+    # The test voltage the approved data sets (insulation resistance): a reading taken at
+    # another is refused.
+    test_voltage: Voltage | None = None
+
+    @model_validator(mode="after")
+    def _number_has_unit_and_limits(self) -> Reading:
+        if self.value == "number":
+            if self.unit is None:
+                raise _field_error("unit", "a number reading needs its unit")
+            if self.limits is None:
+                raise _field_error("limits", "a number reading needs its limits "
+                                   "(min, max or both)")
+        if self.test_voltage is not None and "test_voltage" not in self.conditions:
+            raise _field_error("test_voltage", "a required test voltage needs the reading to "
+                               "record its test voltage: add test_voltage to conditions")
+        return self
+
+
+class SupplyLimits(_Strict):
+    """The exciter supply a count is valid at, as the approved data gives it (volts; hertz
+    for an AC supply). Absent, the station's defaults for a 28 V DC or 115 V 400 Hz bus."""
+
+    dc_volts: Limits | None = None
+    ac_volts: Limits | None = None
+    ac_hertz: Limits | None = None
+
+
+class SparkCount(_Step):
+    kind: Literal["spark_count"]
+    channel: Literal["A", "B", "both"]
+    window: Duration = "30 s"
+    limits: Limits
+    both_tolerance: float | None = Field(default=None, ge=0)
+    supply: SupplyLimits | None = None
+
+
+class DutyCycle(_Strict):
+    """One of: an on/off pattern, a max on-time with a mandatory off-time, or continuous."""
+
+    pattern: list[DutyEntry] | None = Field(default=None, min_length=1)
+    max_on: Duration | None = None
+    min_off: Duration | None = None
+    continuous: bool = False
+
+    @model_validator(mode="after")
+    def _one_way(self) -> DutyCycle:
+        ways = [self.pattern is not None, self.max_on is not None, self.continuous]
+        if sum(ways) != 1:
+            raise ValueError("give exactly one of pattern, max_on (with min_off) or continuous")
+        if (self.max_on is None) != (self.min_off is None):
+            raise ValueError("max_on and min_off go together")
+        return self
+
+
+class IgnitionRun(_Step):
+    kind: Literal["ignition_run"]
+    channel: Literal["A", "B", "both"]
+    duty_cycle: DutyCycle
+
+
+class Torque(_Step):
+    kind: Literal["torque"]
+    unit: TorqueUnit
+    limits: Limits
+    lubricant: Text
+    lubricant_factor: float | None = Field(default=None, gt=0)
+    adapter: bool = False
+
+
+class PartChange(_Step):
+    """A part taken off (`remove`) or put on (`install`) in the job's channel, recorded as
+    typed fields: part and serial numbers; for a removed part its status, reason and tag;
+    for a fitted one its release certificate and condition; and the engine's usage then.
+    The station checks them against what the engine has fitted and what the position may
+    take."""
+
+    kind: Literal["part"]
+    action: Literal["remove", "install"]
+    part: Literal["exciter", "lead", "plug"]
+
+
+class Sign(_Step):
+    kind: Literal["sign"]
+    role: Literal["performer", "inspector", "certifying"]
+
+
+Step = Annotated[
+    Advisory | Check | Lockout | DischargeWait | Reading | SparkCount | IgnitionRun | Torque
+    | PartChange | Sign,
+    Field(discriminator="kind"),
+]
+
