@@ -88,10 +88,14 @@
     document.querySelectorAll("[data-adapter]").forEach(function (box) {
       var length = number(box.querySelector("[name=wrench_length]").value);
       var extension = number(box.querySelector("[name=extension]").value);
+      var angle = number(box.querySelector("[name=angle]").value);
       var out = box.querySelector("[data-testid=adapter-setting]");
-      if (length === null || extension === null || length <= 0 || extension < 0) return;
-      var setting = Number(box.dataset.target) * Number(box.dataset.factor) * length /
-        (length + extension);
+      if (length === null || extension === null || angle === null || length <= 0 ||
+          extension < 0 || angle < 0 || angle > 180) return;
+      // The station's formula (webapp/domain/torque.py wrench_setting): L / (L + E·cos θ).
+      var arm = length + extension * Math.cos(angle * Math.PI / 180);
+      if (arm <= 0.25 * length) { out.textContent = "The adapter reaches back over the handle."; return; }
+      var setting = Number(box.dataset.target) * Number(box.dataset.factor) * length / arm;
       out.textContent = "Set the wrench to " + shown(setting) + " " + box.dataset.unit +
         " for " + shown(Number(box.dataset.target)) + " " + box.dataset.unit + " at the plug.";
     });

@@ -5,7 +5,7 @@
 "use strict";
 
 // Bump when SHELL or this file changes: the new worker fills fresh caches, the old go.
-const VERSION = "v4";
+const VERSION = "v5";
 const SHELL_CACHE = "sparkward-shell-" + VERSION;
 const PAGES_CACHE = "sparkward-pages-" + VERSION;
 const OFFLINE_PAGE = "/offline";  // rendered by the station, cached at install

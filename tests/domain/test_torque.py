@@ -18,7 +18,9 @@ from __future__ import annotations
 
 from datetime import date, timedelta
 
+import numpy as np
 import pytest
+from pydantic import ValidationError
 
 from webapp.domain import torque
 from webapp.domain.errors import RuleRefusal
@@ -122,13 +124,15 @@ def test_an_adapter_reading_judges_the_applied_torque_not_the_wrench_setting():
     # FAA AC 43.13-1B para 7-40, from memory: applied = setting·(L+E)/L.
     setting = 275.0 * 12 / 14    # the corrected setting for 275 lbf·in, L = 12 in, E = 2 in
     stored = torque.evaluate_torque(
-        _torque_step(), _torque_data(value=setting,
-                                     adapter={"wrench_length": 12, "extension": 2}), TODAY)
+        _torque_step(), _torque_data(value=setting, adapter=IN_LINE), TODAY)
     assert stored["applied"] == pytest.approx(275.0, rel=EXACT)
-    assert stored["adapter"] == {"wrench_length": 12.0, "extension": 2.0,
+    assert stored["adapter"] == {"wrench_length": 12.0, "extension": 2.0, "angle": 0.0,
                                  "applied": pytest.approx(275.0, rel=EXACT)}
     assert stored["value"] == pytest.approx(setting, rel=EXACT)   # as the wrench was set
     assert stored["verdict"] == "within"
+
+
+IN_LINE = {"wrench_length": 12, "extension": 2, "angle": 0}
 
 
 def _lubricated_step() -> Torque:
@@ -141,7 +145,7 @@ def _lubricated_step() -> Torque:
     (275.0, None, 343.75, "out of limits"),          # the factor forgotten: 275 / 0.8
     # The page's setting with an adapter, 275 × 0.8 × 12 / 14 (FAA AC 43.13-1B para 7-40,
     # from memory, for L/(L+E)), judged back by the station as 275: one formula both ways.
-    (275.0 * 0.8 * 12 / 14, {"wrench_length": 12, "extension": 2}, 275.0, "within"),
+    (275.0 * 0.8 * 12 / 14, IN_LINE, 275.0, "within"),
 ])
 def test_the_station_applies_the_lubricant_factor_the_page_applies_to_the_setting(
         value, adapter, applied, verdict):
@@ -155,8 +159,7 @@ def test_the_station_applies_the_lubricant_factor_the_page_applies_to_the_settin
 def test_an_uncorrected_setting_through_an_adapter_over_torques_the_plug():
     # Set to 275 with a 2 in extension on a 12 in wrench: 275 × 14 / 12 = 320.83 lbf·in applied.
     stored = torque.evaluate_torque(
-        _torque_step(), _torque_data(value=275,
-                                     adapter={"wrench_length": 12, "extension": 2}), TODAY)
+        _torque_step(), _torque_data(value=275, adapter=IN_LINE), TODAY)
     assert stored["applied"] == pytest.approx(275 * 14 / 12, rel=EXACT)
     assert stored["verdict"] == "out of limits"
 
@@ -165,16 +168,21 @@ def test_an_adapter_on_a_step_without_one_is_refused():
     with pytest.raises(InputProblem) as excinfo:
         torque.evaluate_torque(
             _torque_step(adapter=False),
-            _torque_data(adapter={"wrench_length": 12, "extension": 2}), TODAY)
+            _torque_data(adapter=IN_LINE), TODAY)
     assert excinfo.value.field == "adapter"
 
 
 @pytest.mark.parametrize(("adapter", "field"), [
     ("12 in", "adapter"),
-    ({"extension": 2}, "wrench_length"),
-    ({"wrench_length": 12}, "extension"),
-    ({"wrench_length": 0, "extension": 2}, "wrench_length"),
-    ({"wrench_length": "NaN", "extension": 2}, "wrench_length"),
+    ({"extension": 2, "angle": 0}, "wrench_length"),
+    ({"wrench_length": 12, "angle": 0}, "extension"),
+    ({"wrench_length": 12, "extension": 2}, "angle"),
+    ({"wrench_length": 0, "extension": 2, "angle": 0}, "wrench_length"),
+    ({"wrench_length": "NaN", "extension": 2, "angle": 0}, "wrench_length"),
+    ({"wrench_length": 12, "extension": 2, "angle": 181}, "angle"),
+    ({"wrench_length": 12, "extension": 2, "angle": -5}, "angle"),
+    # Pointing back along the handle: L + E·cos θ = 12 − 10 = 2 in, under a quarter of L.
+    ({"wrench_length": 12, "extension": 10, "angle": 180}, "angle"),
 ])
 def test_an_adapter_without_a_usable_length_and_extension_is_refused(adapter, field):
     with pytest.raises(InputProblem) as excinfo:
@@ -183,3 +191,126 @@ def test_an_adapter_without_a_usable_length_and_extension_is_refused(adapter, fi
 
 
 # --- 6. readings: text, pass/fail, number with conditions, wear --------------------------------
+
+
+# --- 7. an adapter at an angle; in-line only where the data says so ---------------------------
+
+def _moment_about_fastener(force: float, length: float, extension: float,
+                           angle_deg: float) -> float:
+    """Physics, independent of the module: the moment about the fastener of a force square to
+    the handle at the grip, as the z part of the cross product r × F (numpy), r from the
+    fastener to the grip. The drive is at the origin, the handle along −x, the adapter at
+    θ from +x."""
+    theta = np.radians(angle_deg)
+    fastener = np.array([extension * np.cos(theta), extension * np.sin(theta), 0.0])
+    grip = np.array([-length, 0.0, 0.0])
+    pull = np.array([0.0, -force, 0.0])   # square to the handle
+    return float(abs(np.cross(grip - fastener, pull)[2]))
+
+
+@pytest.mark.parametrize("angle", [0.0, 30.0, 45.0, 60.0, 90.0, 120.0, 150.0])
+def test_the_setting_at_an_angle_gives_the_required_moment_at_the_fastener(angle):
+    # Statics (textbook): the wrench clicks at F·L = setting; the fastener sees r × F.
+    required, length, extension = 275.0, 12.0, 2.0
+    setting = torque.wrench_setting(required, length, extension, angle)
+    force = setting / length
+    assert _moment_about_fastener(force, length, extension, angle) == pytest.approx(
+        required, rel=1e-12)
+    assert torque.applied_torque(setting, 1.0, (length, extension, angle)) == pytest.approx(
+        required, rel=1e-12)
+
+
+def test_square_to_the_wrench_an_adapter_changes_nothing_and_in_line_it_is_l_over_l_plus_e():
+    # cos 90° = 0: the effective extension E·cos θ vanishes (textbook trigonometry).
+    assert torque.wrench_setting(275.0, 12.0, 2.0, 90.0) == pytest.approx(275.0, rel=1e-12)
+    assert torque.wrench_setting(275.0, 12.0, 2.0, 0.0) == pytest.approx(275 * 12 / 14,
+                                                                          rel=EXACT)
+    # cos 60° = 1/2 exactly: 275 × 12 / (12 + 1) = 253.846… lbf·in
+    assert torque.wrench_setting(275.0, 12.0, 2.0, 60.0) == pytest.approx(3300 / 13, rel=1e-12)
+
+
+def test_an_angled_reading_is_judged_with_the_effective_extension():
+    # Set as if in line (275 × 12/14 = 235.71) but fitted at 90°: the plug gets 235.71 only,
+    # below the 250 minimum, so it is out of limits, not within.
+    stored = torque.evaluate_torque(
+        _torque_step(), _torque_data(value=275 * 12 / 14, adapter={**IN_LINE, "angle": 90}),
+        TODAY)
+    assert stored["applied"] == pytest.approx(275 * 12 / 14, rel=EXACT)
+    assert stored["verdict"] == "out of limits"
+    assert stored["adapter"]["angle"] == 90.0
+
+
+def test_a_step_that_needs_the_adapter_in_line_refuses_an_angle():
+    step = _torque_step().model_copy(update={"adapter_in_line": True})
+    with pytest.raises(RuleRefusal) as excinfo:
+        torque.evaluate_torque(step, _torque_data(adapter={**IN_LINE, "angle": 45}), TODAY)
+    assert excinfo.value.rule == "adapter_not_in_line"
+    assert "45°" in excinfo.value.reason
+    stored = torque.evaluate_torque(step, _torque_data(value=275 * 12 / 14, adapter=IN_LINE),
+                                    TODAY)
+    assert stored["verdict"] == "within"
+
+
+def test_an_in_line_requirement_without_an_adapter_is_refused_in_the_procedure():
+    with pytest.raises(ValidationError, match="in-line adapter needs adapter"):
+        _torque_step(adapter=False).model_validate(
+            {**_torque_step(adapter=False).model_dump(), "adapter_in_line": True})
+
+
+# --- 8. one reading per fastener --------------------------------------------------------------
+
+BOLTS = ["bolt 1", "bolt 2", "bolt 3", "bolt 4"]   # demo names, invented
+
+
+def _bolted() -> Torque:
+    return _torque_step(adapter=False).model_copy(update={"fasteners": BOLTS})
+
+
+def _entry(fastener: str, verdict: str, disposition: str | None = None) -> dict:
+    return {"step": "torque-plug", "fastener": fastener, "verdict": verdict,
+            "finding": {"disposition": disposition} if disposition else None}
+
+
+def test_each_fastener_gets_its_own_reading_and_verdict():
+    first = torque.evaluate_torque(_bolted(), _torque_data(value=275, fastener="bolt 1"), TODAY)
+    second = torque.evaluate_torque(_bolted(), _torque_data(value=320, fastener="bolt 2"), TODAY,
+                                    {"bolt 1"})
+    assert (first["fastener"], first["verdict"]) == ("bolt 1", "within")
+    assert (second["fastener"], second["verdict"]) == ("bolt 2", "out of limits")
+
+
+@pytest.mark.parametrize("fastener", [None, "", "bolt 9", 2])
+def test_a_reading_that_does_not_name_one_of_the_step_s_fasteners_is_refused(fastener):
+    with pytest.raises(InputProblem) as excinfo:
+        torque.evaluate_torque(_bolted(), _torque_data(fastener=fastener), TODAY, {"bolt 1"})
+    assert excinfo.value.field == "fastener"
+    assert "bolt 2; bolt 3; bolt 4" in excinfo.value.message   # what is left to torque
+
+
+def test_a_fastener_already_torqued_within_limits_is_refused_rather_than_torqued_again():
+    with pytest.raises(RuleRefusal) as excinfo:
+        torque.evaluate_torque(_bolted(), _torque_data(fastener="bolt 1"), TODAY, {"bolt 1"})
+    assert excinfo.value.rule == "fastener_done"
+
+
+def test_a_fastener_on_a_one_fastener_step_is_refused():
+    with pytest.raises(InputProblem) as excinfo:
+        torque.evaluate_torque(_torque_step(), _torque_data(fastener="bolt 1"), TODAY)
+    assert excinfo.value.field == "fastener"
+
+
+def test_a_fastener_stands_within_limits_or_deferred_and_its_latest_reading_counts():
+    readings = [_entry("bolt 1", "within"), _entry("bolt 2", "out of limits", "replaced"),
+                _entry("bolt 3", "out of limits", "deferred"), _entry("bolt 4", "within"),
+                _entry("bolt 4", "out of limits")]   # re-torqued and found out: it waits
+    assert torque.accepted_fasteners(_bolted(), readings) == {"bolt 1", "bolt 3"}
+    readings.append(_entry("bolt 2", "near limit"))
+    assert torque.accepted_fasteners(_bolted(), readings) == {"bolt 1", "bolt 2", "bolt 3"}
+
+
+def test_a_procedure_names_each_fastener_once_and_two_or_more():
+    base = _torque_step(adapter=False).model_dump()
+    with pytest.raises(ValidationError, match="own name"):
+        Torque.model_validate({**base, "fasteners": ["bolt 1", "bolt 1"]})
+    with pytest.raises(ValidationError, match="two fasteners or more"):
+        Torque.model_validate({**base, "fasteners": ["bolt 1"]})

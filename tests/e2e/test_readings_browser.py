@@ -1,4 +1,5 @@
-"""Readings in real Chromium: tap-counting a channel, and a torque in lbf·in shown in N·m."""
+"""Readings in real Chromium: tap-counting a channel, a torque in lbf·in shown in N·m for
+each named bolt, and the adapter's wrench setting at an angle as the station computes it."""
 
 from __future__ import annotations
 
@@ -7,7 +8,8 @@ from pathlib import Path
 
 from playwright.sync_api import expect
 
-from tests.web.jobs import exciter_removed
+from tests.web.jobs import Job, exciter_removed
+from webapp.domain import torque
 
 from .conftest import fill_part, log_in, tap
 from .test_tablet_grade import _audit
@@ -96,12 +98,19 @@ def test_torque_in_lbf_in_shows_n_m(browser, live_server, station_api, station_c
     expect(step).to_have_attribute("data-step-kind", "torque")
     _audit(page, "torque on a phone")
 
-    page.fill("[data-testid=reading-value]", "37")
-    # NIST SP 811 B.9: 37 lbf·in × 0.1129848 = 4.180 N·m
-    expect(page.get_by_test_id("converted")).to_contain_text("4.18 N·m")
-    page.fill("[data-testid=wrench-id]", "TW-017")
-    page.fill("[data-testid=calibration-due]", "2099-01-31")
-    tap(page, "[data-testid=record-reading]")
+    # Four bolts, each recorded and judged on its own; the list says which are done.
+    for number in range(1, 5):
+        expect(page.get_by_test_id(f"fastener-{number}")).to_contain_text("to torque")
+        expect(page.get_by_test_id("input-fastener")).to_have_value(
+            page.get_by_test_id(f"fastener-{number}").inner_text().split(":")[0])
+        page.fill("[data-testid=reading-value]", "37")
+        # NIST SP 811 B.9: 37 lbf·in × 0.1129848 = 4.180 N·m
+        expect(page.get_by_test_id("converted")).to_contain_text("4.18 N·m")
+        page.fill("[data-testid=wrench-id]", "TW-017")
+        page.fill("[data-testid=calibration-due]", "2099-01-31")
+        tap(page, "[data-testid=record-reading]")
+        if number < 4:
+            expect(page.get_by_test_id(f"fastener-{number}")).to_contain_text("✓ within")
     expect(step).to_have_attribute("data-step-id", "bonding-resistance")
     recorded = page.get_by_test_id("progress-mounting-torque")
     expect(recorded).to_contain_text("37 lbf·in")
@@ -131,4 +140,27 @@ def test_fleet_wear_page_flags_the_fast_plug_with_its_chart(browser, live_server
     assert chart.locator("circle, path, rect").count() >= 4
     _audit(page, "fleet wear")
     page.screenshot(path=str(ARTIFACTS / "fleet-wear.png"), full_page=True)
+    context.close()
+
+
+def test_the_page_shows_the_wrench_setting_the_station_computes_at_each_angle(
+        browser, live_server, station_api, station_clock):
+    job = Job(station_api("mech1"), station_api.db, station_clock, "igniter-plug-replacement")
+    job.walk_to("plug-torque")
+    context = browser.new_context(viewport={"width": 1024, "height": 768}, has_touch=True)
+    page = context.new_page()
+    log_in(page, live_server, "mech1", "demo-mech1")
+    page.goto(f"{live_server}/jobs/{job.id}")
+    expect(page.get_by_test_id("step")).to_have_attribute("data-step-id", "plug-torque")
+    page.fill("[data-testid=wrench-length]", "12")
+    page.fill("[data-testid=extension]", "2")
+    setting = page.get_by_test_id("adapter-setting")
+    # One formula: what the page shows is the domain's wrench_setting, to 4 figures, for the
+    # step's 275 lbf·in mid-limit target (250–300, demo data). By hand: 0° 3300/14 = 235.7;
+    # 60° 3300/13 = 253.8; 90° 275; 120° 3300/11 = 300 (cos 60° = ½, cos 120° = −½).
+    for angle, by_hand in (("0", "235.7"), ("60", "253.8"), ("90", "275"), ("120", "300")):
+        page.fill("[data-testid=adapter-angle]", angle)
+        expected = torque.wrench_setting(275.0, 12.0, 2.0, float(angle))
+        assert f"{float(f'{expected:.4g}'):g}" == by_hand
+        expect(setting).to_contain_text(f"Set the wrench to {by_hand} lbf·in")
     context.close()

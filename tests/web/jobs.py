@@ -84,8 +84,11 @@ class Job:
 
     def _demo_reading(self, step_id):
         """The demo's in-limits reading for a step (the one the demo jobs record)."""
-        return demo_jobs.reading_data(recording.load_job(self.db, self.id).state
-                                      .step(step_id).step)
+        state = recording.load_job(self.db, self.id).state
+        return demo_jobs.reading_data(state.step(step_id).step, state)
+
+    def step_status(self, step_id):
+        return next(s["status"] for s in self.state()["steps"] if s["id"] == step_id)
 
     def walk_to(self, step_id, tags=("T-1", "T-2")):
         """Complete the simple steps in order up to (not including) `step_id`."""
@@ -108,7 +111,9 @@ class Job:
                 self.ok(_event(step["id"], "part_recorded", **demo_jobs.part_data(
                     self.db, self.id, job.state.step(step["id"]).step)))
             elif step["kind"] in ("reading", "torque"):
-                self.ok(_event(step["id"], "reading_recorded", **self._demo_reading(step["id"])))
+                while self.step_status(step["id"]) != "done":   # a torque: each fastener
+                    self.ok(_event(step["id"], "reading_recorded",
+                                   **self._demo_reading(step["id"])))
             elif step["kind"] == "ignition_run":
                 self.clock.advance(1500)  # past any duty-cycle off period (23 min at most)
                 self.ok(_event(step["id"], "energised"))

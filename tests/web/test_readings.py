@@ -22,10 +22,22 @@ def installation(mechanic, db, clock):
     return job
 
 
-def torque(value, unit="lbf*in", **extra):
+# The demo bracket's four bolts, each torqued and judged on its own (tasks/ demo data).
+BOLTS = ["Bolt 1, upper forward", "Bolt 2, lower aft", "Bolt 3, upper aft",
+         "Bolt 4, lower forward"]
+
+
+def torque(value, unit="lbf*in", fastener=BOLTS[0], **extra):
     body = {"value": value, "unit": unit, "wrench_id": "TW-017",
-            "calibration_due": "2027-06-30", **extra}
+            "calibration_due": "2027-06-30", "fastener": fastener, **extra}
     return _event("mounting-torque", "reading_recorded", **body)
+
+
+def the_other_bolts(job):
+    """Bolts 2 to 4 at 37 lbf·in (within 35–40): the step is done when each bolt stands."""
+    for bolt in BOLTS[1:]:
+        assert "mounting-torque" not in job.state()["done"]
+        job.ok(torque("37", fastener=bolt))
 
 
 def counts(job):
@@ -38,7 +50,8 @@ def test_torque_in_n_m_is_converted_and_judged(installation):
     assert reading["value"] == 4.2 and reading["unit"] == "N*m"
     assert reading["converted"] == pytest.approx(4.2 / LBF_IN_IN_N_M, rel=1e-6)
     assert reading["verdict"] == "within"
-    assert reading["wrench_id"] == "TW-017"
+    assert reading["wrench_id"] == "TW-017" and reading["fastener"] == BOLTS[0]
+    the_other_bolts(installation)
     assert "mounting-torque" in installation.state()["done"]
 
 
@@ -93,6 +106,7 @@ def test_out_of_limits_blocks_until_dispositioned_and_keeps_every_attempt(instal
     assert [r["attempt"] for r in readings] == [1, 2]
     assert readings[0]["converted"] == 45 and readings[0]["verdict"] == "out of limits"
     assert readings[0]["finding"]["disposition"] == "re-tested"
+    the_other_bolts(installation)
     assert "mounting-torque" in installation.state()["done"]
 
 
@@ -100,7 +114,9 @@ def test_a_deferral_with_its_reference_lets_the_job_go_on(installation):
     installation.ok(torque("45"))
     installation.ok(_event("mounting-torque", "finding", text="bracket thread damaged",
                            disposition="deferred", reference="DD-2026-117",
-                           limit="25 FH or 2027-01-15"))
+                           limit="25 engine hours or 2027-01-15"))
+    assert installation.state()["next_step"] == "mounting-torque"   # three bolts to go
+    the_other_bolts(installation)
     assert installation.state()["next_step"] == "bonding-resistance"
 
 
@@ -116,7 +132,7 @@ def test_adapter_correction_judges_the_torque_applied(mechanic, db, clock):
     # E = 2 in, a wrench set to 235.7 lbf·in applies 235.7·14/12 = 275 lbf·in (limits 250–300).
     body = _event("plug-torque", "reading_recorded", value="235.7", unit="lbf*in",
                   wrench_id="TW-021", calibration_due="2027-01-31",
-                  adapter={"wrench_length": "12", "extension": "2"})
+                  adapter={"wrench_length": "12", "extension": "2", "angle": "0"})
     job.ok(body)
     reading = job.state()["readings"][-1]
     assert reading["applied"] == pytest.approx(235.7 * 14 / 12, rel=1e-9)
@@ -334,6 +350,7 @@ def test_a_replaced_or_repaired_finding_needs_the_re_test_reading(installation, 
         html = record_html(db, installation.id, clock(), embedded=True)
     assert f"{disposition}; re-test reading not yet recorded" in html
     installation.ok(torque("38"))
+    the_other_bolts(installation)
     assert installation.state()["next_step"] == "bonding-resistance"
     with app.app_context():
         html = record_html(db, installation.id, clock(), embedded=True)

@@ -270,7 +270,8 @@ def _check_completion(state: JobState, target: StepProgress, data: Mapping[str, 
             raise RuleRefusal("finding_required", "The last reading was out of limits: record "
                               "the finding and what was done before anything else.")
         if isinstance(step, Torque):
-            return torque.evaluate_torque(step, data, at.now.date())
+            return torque.evaluate_torque(step, data, at.now.date(),
+                                          torque.accepted_fasteners(step, state.readings))
         if isinstance(step, SparkCount):
             stored = spark_counts.evaluate_spark_count(step, data, state.single_channel_rates())
             stored["supply"] = supply.evaluate_supply(

@@ -14,7 +14,7 @@ from datetime import datetime
 from functools import cached_property
 from typing import Any, Literal
 
-from . import gates
+from . import gates, torque
 from .errors import RuleRefusal
 from .gates import ChannelClock, PowerOff
 from .procedures import (
@@ -25,6 +25,7 @@ from .procedures import (
     Procedure,
     Sign,
     Step,
+    Torque,
     advisories_for,
 )
 
@@ -304,7 +305,15 @@ def _with_reading(state: JobState, step: Step, event: Mapping[str, Any]) -> JobS
     if event["data"].get("verdict") in NEEDS_FINDING:
         return replace(state, readings=readings,
                        awaiting_finding={**state.awaiting_finding, step.id: event})
+    if not _all_fasteners_done(step, readings):
+        return replace(state, readings=readings)
     return replace(state, readings=readings, completed={**state.completed, step.id: event})
+
+
+def _all_fasteners_done(step: Step, readings: tuple[Mapping[str, Any], ...]) -> bool:
+    """A torque step that names its fasteners is done when each has a reading that stands."""
+    return (not isinstance(step, Torque) or not step.fasteners
+            or torque.accepted_fasteners(step, readings) >= set(step.fasteners))
 
 
 def _with_finding(state: JobState, step: Step, event: Mapping[str, Any]) -> JobState:
@@ -317,9 +326,11 @@ def _with_finding(state: JobState, step: Step, event: Mapping[str, Any]) -> JobS
             break
     waiting = {k: v for k, v in state.awaiting_finding.items() if k != step.id}
     completed = dict(state.completed)
-    if event["data"].get("disposition") == "deferred" or step.kind == "part":
+    if ((event["data"].get("disposition") == "deferred" or step.kind == "part")
+            and _all_fasteners_done(step, tuple(readings))):
         # A deferral, or a part that did not match, is on the record with its finding; a
-        # reading replaced, repaired or re-tested waits for the new reading of the step.
+        # reading replaced, repaired or re-tested waits for the new reading of the step (a
+        # torque step's other fasteners wait for theirs).
         completed[step.id] = event
     return replace(state, readings=tuple(readings), awaiting_finding=waiting,
                    completed=completed)

@@ -181,12 +181,29 @@ class IgnitionRun(_Step):
 
 
 class Torque(_Step):
+    """A torque to apply and record. `fasteners` names each fastener the step torques (each
+    gets its own reading and verdict); `adapter` lets the wrench work through a crowfoot or
+    extension at an angle, `adapter_in_line` where the data allows it only in line."""
+
     kind: Literal["torque"]
     unit: TorqueUnit
     limits: Limits
     lubricant: Text
     lubricant_factor: float | None = Field(default=None, gt=0)
     adapter: bool = False
+    adapter_in_line: bool = False
+    fasteners: list[Text] = Field(default_factory=list, max_length=24)
+
+    @model_validator(mode="after")
+    def _fasteners_and_adapter(self) -> Torque:
+        if len(set(self.fasteners)) != len(self.fasteners):
+            raise _field_error("fasteners", "each fastener needs its own name")
+        if len(self.fasteners) == 1:
+            raise _field_error("fasteners", "name two fasteners or more, or leave the list "
+                               "out for one")
+        if self.adapter_in_line and not self.adapter:
+            raise _field_error("adapter_in_line", "an in-line adapter needs adapter: true")
+        return self
 
 
 class PartChange(_Step):

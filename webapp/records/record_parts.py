@@ -49,7 +49,8 @@ def tool_entries(state: JobState, numbers: Mapping[str, int], who: People) -> li
             continue
         adapter = r.get("adapter")
         adapter_text = (f"adapter: wrench length {adapter['wrench_length']:g}, extension "
-                        f"{adapter['extension']:g}; torque applied {adapter['applied']:.4g} "
+                        f"{adapter['extension']:g} at {adapter.get('angle', 0):g}° to the "
+                        f"wrench; torque applied {adapter['applied']:.4g} "
                         f"{unit_label(r['procedure_unit'])}" if isinstance(adapter, Mapping)
                         else "no adapter")
         lines.append(Entry(f"torque wrench {r['wrench_id']}, calibration due "

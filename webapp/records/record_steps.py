@@ -152,7 +152,8 @@ def _short_name(step_id: str) -> str:
 
 def _retest_words(r: Mapping[str, Any], state: JobState, done: str) -> str:
     """"re-tested" is printed only with the re-test reading that backs it, and its value."""
-    later = [x for x in state.readings if x["step"] == r["step"] and x["attempt"] > r["attempt"]]
+    later = [x for x in state.readings if x["step"] == r["step"] and x["attempt"] > r["attempt"]
+             and x.get("fastener") == r.get("fastener")]
     if not later:
         return f"{done}; re-test reading not yet recorded"
     entered, converted = _entered(later[0])
@@ -167,7 +168,8 @@ def reading_line(r: Mapping[str, Any], state: JobState, numbers: Mapping[str, in
                  who: People) -> ReadingLine:
     entered, converted = _entered(r)
     verdict = r.get("verdict", "")
-    line = ReadingLine(numbers.get(r["step"], 0), _short_name(r["step"]), r["attempt"],
+    name = _short_name(r["step"]) + (f": {r['fastener']}" if r.get("fastener") else "")
+    line = ReadingLine(numbers.get(r["step"], 0), name, r["attempt"],
                        entered, converted, _limits(step_of(state, r["step"])), verdict,
                        VERDICT_SYMBOL.get(verdict, ""), "; ".join(_conditions(r)),
                        who(r.get("person_id")), station_time(r.get("received_at")))

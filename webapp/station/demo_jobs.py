@@ -16,6 +16,8 @@ from datetime import datetime, timedelta
 from typing import Any
 
 from .. import store
+from ..domain import torque
+from ..domain.execution import JobState
 from ..domain.procedures import (
     Advisory,
     Check,
@@ -50,8 +52,9 @@ class WalkRefused(RuntimeError):
     """The station refused an entry of the walk: the demo data and the procedure disagree."""
 
 
-def reading_data(step: Reading | Torque) -> dict[str, Any]:
-    """A demo reading inside the step's limits, in the step's own unit."""
+def reading_data(step: Reading | Torque, state: JobState | None = None) -> dict[str, Any]:
+    """A demo reading inside the step's limits, in the step's own unit (for a torque step
+    that names its fasteners, the first one `state` has not yet accepted)."""
     if isinstance(step, Reading) and step.value == "text":
         return {"text": "XEX-1001-03 / XE-9001 (demo)"}
     if isinstance(step, Reading) and step.value == "pass_fail":
@@ -63,6 +66,9 @@ def reading_data(step: Reading | Torque) -> dict[str, Any]:
     data: dict[str, Any] = {"value": f"{value:g}", "unit": step.unit}
     if isinstance(step, Torque):
         data.update(wrench_id="TW-017", calibration_due="2027-06-30")
+        if step.fasteners:
+            done = torque.accepted_fasteners(step, state.readings if state else ())
+            data["fastener"] = next(f for f in step.fasteners if f not in done)
         return data
     for condition in step.conditions:
         data[condition] = ({"value": "45"} if condition == "humidity" else
@@ -146,7 +152,8 @@ def walk(db: store.Database, job_id: int, *, by: Person, now: datetime,
             record("reading_recorded", step.id, deferral.pop("reading"))
             record("finding", step.id, {**deferral, "disposition": "deferred"})
         elif isinstance(step, (Reading, Torque)):
-            record("reading_recorded", step.id, reading_data(step))
+            record("reading_recorded", step.id,
+                   reading_data(step, recording.load_job(db, job_id).state))
         elif isinstance(step, PartChange):
             record("part_recorded", step.id, part_data(db, job_id, step))
         elif isinstance(step, IgnitionRun):

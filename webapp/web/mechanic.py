@@ -159,14 +159,14 @@ def _count_data(form: Any) -> dict[str, Any]:
 def _reading_data(form: Any) -> dict[str, Any]:
     """A reading form's fields as the event's data (the station checks and converts them)."""
     data: dict[str, Any] = {k: form[k] for k in ("text", "result", "value", "unit", "wrench_id",
-                                                  "calibration_due") if k in form}
+                                                  "calibration_due", "fastener") if k in form}
     for condition in ("test_voltage", "ambient_temperature", "humidity"):
         if f"{condition}_value" in form:
             data[condition] = {"value": form[f"{condition}_value"],
                                "unit": form.get(f"{condition}_unit", "%RH")}
     if form.get("wrench_length") or form.get("extension"):
         data["adapter"] = {"wrench_length": form.get("wrench_length", ""),
-                           "extension": form.get("extension", "")}
+                           "extension": form.get("extension", ""), "angle": form.get("angle", "")}
     if "engine_hours" in form:
         data["usage"] = {k: form.get(k, "") for k in ("engine_hours", "starts",
                                                        "continuous_ignition_hours")}

@@ -2,8 +2,14 @@
 
 from __future__ import annotations
 
+from collections.abc import Mapping
+from typing import Any
+
 from flask import Flask
 
+from ..domain import torque
+from ..domain.execution import JobState
+from ..domain.procedures import Torque
 from ..domain.readings import VERDICT_SYMBOL
 from ..shown import (
     conversion_table,
@@ -19,4 +25,14 @@ def register(app: Flask) -> None:
     app.jinja_env.globals.update(unit_choices=unit_choices, unit_label=unit_label,
                                  limits_text=limits_text, si_text=si_text, si_factor=si_factor,
                                  conversion_table=conversion_table,
-                                 verdict_symbol=lambda v: VERDICT_SYMBOL.get(v, ""))
+                                 verdict_symbol=lambda v: VERDICT_SYMBOL.get(v, ""),
+                                 fastener_rows=fastener_rows)
+
+
+def fastener_rows(step: Torque, state: JobState) -> list[dict[str, Any]]:
+    """Each fastener of a torque step with its latest reading and whether it stands."""
+    done = torque.accepted_fasteners(step, state.readings)
+    latest: dict[str, Mapping[str, Any]] = {r["fastener"]: r for r in state.readings
+                                           if r["step"] == step.id and r.get("fastener")}
+    return [{"name": name, "reading": latest.get(name), "done": name in done}
+            for name in step.fasteners]
