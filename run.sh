@@ -44,8 +44,10 @@ case "${1:-}" in
     ;;
   test)
     shift
-    # pdftoppm (poppler-utils): the sign-off browser test renders the record to PNG.
-    apt_install chromium poppler-utils
+    # pdftoppm (poppler-utils): the sign-off browser test renders the record to PNG;
+    # pdfsig (poppler-utils) with an NSS trust store (certutil, libnss3-tools) checks the
+    # signatures with a validator that is not ours.
+    apt_install chromium poppler-utils libnss3-tools
     python_env
     export CHROMIUM_PATH=${CHROMIUM_PATH:-/usr/bin/chromium}
     "$VENV/bin/sparkward" tasks check

@@ -188,14 +188,24 @@ def _sign(pdf: bytes, signer: signers.Signer, field_name: str, meaning: str,
         raise RecordUnreadable(f"The record could not be read as a PDF: {exc}") from exc
     if existing.get(field_name) is not None:
         raise ValueError(f"The record is already signed in the field {field_name!r}.")
-    for name, box in reserve.items():
+    order = list(reserve)
+    for position, (name, box) in enumerate(reserve.items()):
         if name in existing:
             raise ValueError(f"The record already has a signature field named {name!r}.")
+        # Signing a box locks it and every box before it in the record's order: what a
+        # signature vouches for cannot be re-signed or cleared under it.
+        lock = fields.FieldMDPSpec(fields.FieldMDPAction.INCLUDE, order[:position + 1])
         fields.append_signature_field(writer, fields.SigFieldSpec(
-            sig_field_name=name, on_page=box.page, box=box.rect))  # type: ignore[arg-type]
+            sig_field_name=name, on_page=box.page, box=box.rect,  # type: ignore[arg-type]
+            field_mdp_spec=lock))
+    # The revision's first signature certifies it (ISO 32000-1 12.8.2.2, DocMDP): from then on
+    # only filling the reserved signature fields is allowed (P = 2); a change to the page's
+    # content is a forbidden change in any validator that honours certification.
+    first = not any(value is not None for value in existing.values())
     meta = signers.PdfSignatureMetadata(
         field_name=field_name, md_algorithm="sha256", subfilter=fields.SigSeedSubFilter.PADES,
-        reason=meaning, name=signer_name, location=location)
+        reason=meaning, name=signer_name, location=location, certify=first,
+        docmdp_permissions=fields.MDPPerm.FILL_FORMS)
     visible = field_name in existing or field_name in reserve
     pdf_signer = _StationClockSigner(meta, signer, signing_time=signed_at,
                                      stamp_style=_stamp_style() if visible else None)
