@@ -253,7 +253,10 @@ def verify(pdf_file: Path, db_path: Path | None) -> None:
                    f"{r.meaning}, {r.signed_at:%Y-%m-%d %H:%M:%S %Z}: "
                    f"{'intact' if r.intact else 'NOT INTACT'}, "
                    f"{'trusted' if r.trusted else 'NOT TRUSTED'}"
-                   + (", CHANGED AFTERWARDS" if r.modified_after else ""))
+                   + (", CHANGED AFTERWARDS" if r.modified_after else "")
+                   + (f", time-stamped {r.time_stamped_at:%Y-%m-%d %H:%M:%S %Z}"
+                      if r.time_stamp_ok else ", TIME-STAMP DOES NOT VERIFY"
+                      if r.time_stamp_ok is False else ", no time-stamp"))
     for name in result.unsigned:
         click.echo(f"  {name}: signature box still empty (not signed on this revision)")
     for note in result.notes:

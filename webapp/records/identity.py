@@ -29,6 +29,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 from datetime import datetime, timedelta
 from pathlib import Path
+from typing import Any
 
 from argon2.low_level import Type, hash_secret_raw
 from asn1crypto import keys as asn1_keys
@@ -67,6 +68,7 @@ class PinProblem(ValueError):
 class StationAuthority:
     cert: x509.Certificate
     key: ec.EllipticCurvePrivateKey
+    time_stamps: Any = None   # the station's time-stamp unit (timestamping.TimeStampUnit)
 
 
 @dataclass(frozen=True)

@@ -39,6 +39,7 @@ from pyhanko.pdf_utils.reader import PdfFileReader
 from pyhanko.pdf_utils.text import TextBoxStyle
 from pyhanko.sign import fields, signers
 from pyhanko.sign.diff_analysis import ModificationLevel
+from pyhanko.sign.timestamps.api import TimeStamper
 from pyhanko.sign.validation import validate_pdf_signature
 from pyhanko.sign.validation.pdf_embedded import EmbeddedPdfSignature
 from pyhanko.sign.validation.status import SignatureCoverageLevel
@@ -97,6 +98,15 @@ class SignatureReport:
     modified_after: bool
     summary: str
     certificate_sha256: str = ""  # of the signer's certificate (DER), to look the signer up
+    # The RFC 3161 signature time-stamp: its time, and whether its token is intact, valid and
+    # trusted (None: the signature carries none, so its time is the signer's word only).
+    time_stamped_at: datetime | None = None
+    time_stamp_ok: bool | None = None
+
+    @property
+    def good(self) -> bool:
+        return (self.intact and self.valid and self.trusted and not self.modified_after
+                and self.time_stamp_ok is not False)
 
 
 def _off_thread(fn: Callable[..., T], *args: Any) -> T:
@@ -179,7 +189,8 @@ class _StationClockSigner(signers.PdfSigner):
 
 def _sign(pdf: bytes, signer: signers.Signer, field_name: str, meaning: str,
           signer_name: str, location: str | None, stamp: str | None,
-          reserve: Mapping[str, StampBox], signed_at: datetime | None = None) -> bytes:
+          reserve: Mapping[str, StampBox], signed_at: datetime | None = None,
+          timestamper: TimeStamper | None = None) -> bytes:
     try:
         writer = IncrementalPdfFileWriter(io.BytesIO(pdf))
         # name -> the signature in it, None for an empty (reserved) field
@@ -208,7 +219,8 @@ def _sign(pdf: bytes, signer: signers.Signer, field_name: str, meaning: str,
         docmdp_permissions=fields.MDPPerm.FILL_FORMS)
     visible = field_name in existing or field_name in reserve
     pdf_signer = _StationClockSigner(meta, signer, signing_time=signed_at,
-                                     stamp_style=_stamp_style() if visible else None)
+                                     stamp_style=_stamp_style() if visible else None,
+                                     timestamper=timestamper)
     out = pdf_signer.sign_pdf(writer, appearance_text_params={"stamp": stamp or meaning})
     return out.getvalue()
 
@@ -216,7 +228,8 @@ def _sign(pdf: bytes, signer: signers.Signer, field_name: str, meaning: str,
 def sign_record(pdf: bytes, signer: signers.Signer, *, field_name: str, meaning: str,
                 signer_name: str, location: str | None = None, stamp: str | None = None,
                 reserve: Mapping[str, StampBox] | None = None,
-                signed_at: datetime | None = None) -> bytes:
+                signed_at: datetime | None = None,
+                timestamper: TimeStamper | None = None) -> bytes:
     """Add one PAdES signature as an incremental update and return the new PDF bytes.
 
     Incremental, so an earlier signature (the performer's) stays valid when a later one
@@ -225,10 +238,11 @@ def sign_record(pdf: bytes, signer: signers.Signer, *, field_name: str, meaning:
     whose field is one of them, or one reserved earlier, shows `stamp` in its box. A field
     name with no box gets an invisible signature. A field already signed is refused with
     ValueError: two signatures under one name would make the record ambiguous.
-    `signed_at` is the signing time the signature states (default: now).
+    `signed_at` is the signing time the signature states (default: now); `timestamper`
+    adds an RFC 3161 signature time-stamp (PAdES B-T), the station's own unit's.
     """
     return _off_thread(_sign, pdf, signer, field_name, meaning, signer_name, location,
-                       stamp, dict(reserve or {}), signed_at)
+                       stamp, dict(reserve or {}), signed_at, timestamper)
 
 
 def _as_asn1(cert: crypto_x509.Certificate | asn1_x509.Certificate) -> asn1_x509.Certificate:
@@ -259,9 +273,14 @@ def _summary(r: SignatureReport) -> str:
         (r.intact and not r.valid, "the signature does not verify"),
         (r.valid and not r.trusted, "the certificate is not trusted by this station"),
         (r.modified_after, "the record was changed after this signature"),
+        (r.time_stamp_ok is False, "its time-stamp does not verify"),
     ) if bad]
     verdict = "intact, valid and trusted" if not problems else "NOT GOOD: " + "; ".join(problems)
-    return f"{r.meaning or 'Signed'} by {who} at {when}: {verdict}."
+    stamped = ("; time-stamped at " + r.time_stamped_at.isoformat(timespec="seconds")
+               if r.time_stamped_at is not None and r.time_stamp_ok
+               else "; no time-stamp: the time is the signer's word only"
+               if r.time_stamp_ok is None else "")
+    return f"{r.meaning or 'Signed'} by {who} at {when}{stamped}: {verdict}."
 
 
 def _report(sig: EmbeddedPdfSignature, context: ValidationContext) -> SignatureReport:
@@ -282,6 +301,10 @@ def _report(sig: EmbeddedPdfSignature, context: ValidationContext) -> SignatureR
         # Unknown level or a failed DocMDP check counts as modified: fail closed.
         modified_after=level not in _ACCEPTABLE or status.docmdp_ok is False,
         summary="", certificate_sha256=hashlib.sha256(sig.signer_cert.dump()).hexdigest())
+    stamp = status.timestamp_validity
+    if stamp is not None:
+        report = replace(report, time_stamped_at=stamp.timestamp,
+                         time_stamp_ok=bool(stamp.intact and stamp.valid and stamp.trusted))
     return replace(report, summary=_summary(report))
 
 
@@ -346,7 +369,7 @@ def verify_record(pdf: bytes, trust_root: crypto_x509.Certificate | asn1_x509.Ce
 
 def all_good(reports: Iterable[SignatureReport]) -> bool:
     """True only if there is at least one signature and every one is intact, valid,
-    trusted and unmodified: an unsigned record is not a good signed record."""
+    trusted, unmodified and, where time-stamped, its time-stamp verifies: an unsigned
+    record is not a good signed record."""
     reports = list(reports)
-    return bool(reports) and all(r.intact and r.valid and r.trusted and not r.modified_after
-                                 for r in reports)
+    return bool(reports) and all(r.good for r in reports)

@@ -74,7 +74,10 @@ def _revocation_notes(reports: list[SignatureReport], revoked: Mapping[str, date
         if ended is None:
             continue
         when = ended.isoformat(timespec="seconds")
-        if r.signed_at is None or r.signed_at >= ended:
+        # A verified time-stamp says when the signature existed; without one, the signer's
+        # own claim is all there is.
+        made = r.time_stamped_at if r.time_stamp_ok else r.signed_at
+        if made is None or made >= ended:
             problems.append(f"signature '{r.field_name}' is dated after {r.signer}'s signing "
                             f"access was revoked ({when}): this station did not make it")
         else:
@@ -99,8 +102,7 @@ def check_record(pdf: bytes, trust_root: x509.Certificate, events_of_job: Any,
 
 def _check_chain(pdf: bytes, reports: list[SignatureReport],
                  events_of_job: Any) -> RecordCheck:
-    problems = [f"signature '{r.field_name}': {r.summary}" for r in reports
-                if not (r.intact and r.valid and r.trusted) or r.modified_after]
+    problems = [f"signature '{r.field_name}': {r.summary}" for r in reports if not r.good]
     if not reports:
         problems.append("the file carries no signature")
     record_id = record_id_of(pdf)

@@ -11,12 +11,13 @@ import secrets
 import socket
 import threading
 from collections.abc import Iterable
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from datetime import datetime
 from pathlib import Path
 
 from cryptography import x509
 
+from ..records import timestamping
 from ..records.identity import (
     CERT_FILE,
     SERVER_CERT_FILE,
@@ -65,6 +66,11 @@ def station_authority(db_path: str | Path, station_name: str, now: datetime) -> 
         else:
             authority = create_authority(station_name, now)
             save_authority(authority, folder, passphrase)
+        unit = timestamping.load_unit(folder, passphrase)
+        if unit is None:   # a new station, or one from before the unit existed
+            unit = timestamping.issue_time_stamp_unit(authority, station_name)
+            timestamping.save_unit(unit, folder, passphrase)
+        authority = replace(authority, time_stamps=unit)
         _CACHE[key] = authority
         return authority
 

@@ -198,6 +198,7 @@ def _engine_circumstances(db: store.Database, job: Job, kind: str, step_id: str 
 class _UnlockedSigner:
     pyhanko_signer: Any
     manifestation: dict[str, Any]
+    timestamper: Any = None   # the station's time-stamp unit, at the signing's instant
 
 
 PIN_MAX_FAILURES = 5
@@ -227,9 +228,12 @@ def _unlock_signer(db: store.Database, person: Person, pin: str,
     except identity.WrongPin:
         raise RuleRefusal("wrong_pin", "That PIN does not unlock your signing key.") from None
     fingerprint = enrolment.certificate.fingerprint(hashes.SHA256()).hex()
+    from ..records.timestamping import StationTimeStamper
+    timestamper = (StationTimeStamper(authority.time_stamps, authority.cert, now)
+                   if authority.time_stamps is not None else None)
     return _UnlockedSigner(pyhanko_signer, {
         "signer_name": person.full_name, "authorisation": person.authorisation,
-        "certificate_sha256": fingerprint})
+        "certificate_sha256": fingerprint}, timestamper)
 
 
 def signatures_of(state: JobState) -> list[dict[str, Any]]:
@@ -324,7 +328,8 @@ def _sign_record(db: store.Database, job_id: int, state: JobState, event: dict[s
         stamp = _stamp_text(event["data"], now)
     signed = sign_record(printed.pdf, signer.pyhanko_signer, field_name=field_name,
                          meaning=meaning, signer_name=event["data"]["signer_name"],
-                         stamp=stamp, reserve=printed.boxes, signed_at=now)
+                         stamp=stamp, reserve=printed.boxes, signed_at=now,
+                         timestamper=signer.timestamper)
     signers.add_record(db, job_id=job_id, revision=printed.revision, pdf=signed,
                        chain_hash=event["hash"], signatures=printed.signatures + 1, now=now,
                        supersedes=printed.supersedes)
