@@ -11,7 +11,8 @@ from datetime import datetime
 from typing import Any
 
 from .. import store
-from ..domain import gates
+from ..domain import exciter_rows, gates
+from ..domain.engine import EngineState
 from ..domain.execution import JobState
 from ..domain.gates import ChannelClock, Consent, DischargeRequirement, Tag
 from ..domain.procedures import DischargeWait, DutyCycle, IgnitionRun, Lockout, PartChange
@@ -76,8 +77,11 @@ def duty_text(cycle: DutyCycle) -> str:
     return " / ".join(cycle.pattern or [])
 
 
-def _discharge(step: DischargeWait, state: JobState, now: datetime) -> DischargeView:
-    requirement = gates.discharge_requirement(step)
+def _discharge(step: DischargeWait, state: JobState, now: datetime,
+               engine: EngineState | None) -> DischargeView:
+    channels = [state.configuration.channel] if state.configuration.channel else ["A", "B"]
+    fitted = exciter_rows.fitted_exciters(engine, state.configuration.components, channels)
+    requirement = gates.discharge_requirement(step, [f.part_number for f in fitted])
     if state.power_off is None:
         return DischargeView(requirement, requirement.required_s, 0.0, None, None, None)
     elapsed = (now - state.power_off.station).total_seconds()
@@ -132,7 +136,7 @@ def gate_context(db: store.Database, job: recording.Job, now: datetime) -> dict[
     if isinstance(step, Lockout):
         context["lockout_missing"] = gates.lockout_complete(step, tags, job.row["id"])
     elif isinstance(step, DischargeWait):
-        context["discharge"] = _discharge(step, state, now)
+        context["discharge"] = _discharge(step, state, now, engine)
     elif isinstance(step, IgnitionRun):
         channels = ("A", "B") if step.channel == "both" else (step.channel,)
         views = [_channel(c, engine.clock_for(c), now) for c in channels]
