@@ -15,7 +15,14 @@ from ..domain import exciter_rows, gates
 from ..domain.engine import EngineState
 from ..domain.execution import JobState
 from ..domain.gates import ChannelClock, Consent, DischargeRequirement, Tag
-from ..domain.procedures import DischargeWait, DutyCycle, IgnitionRun, Lockout, PartChange
+from ..domain.procedures import (
+    DischargeWait,
+    DutyCycle,
+    IgnitionRun,
+    Lockout,
+    PartChange,
+    SparkCount,
+)
 from ..station import recording
 from ..store import engines, people
 
@@ -129,7 +136,8 @@ def gate_context(db: store.Database, job: recording.Job, now: datetime) -> dict[
                      if clock.runs],
         "engine": engine, "run_blocked": {}, "part": None,
         "open_gate_steps": state.open_gate_steps(), "discharge": None,
-        "run_channels": [], "run_wait": 0.0, "duty_text": "",
+        "run_channels": [], "run_wait": 0.0, "duty_text": "", "count_limits": None,
+        "count_exciters": [],
     }
     current = state.next_step
     step = current.step if current else None
@@ -144,6 +152,13 @@ def gate_context(db: store.Database, job: recording.Job, now: datetime) -> dict[
                        run_wait=max((v.off_remaining for v in views), default=0.0),
                        run_blocked={c: engine.not_whole(c) for c in channels
                                     if engine.not_whole(c)})
+    elif isinstance(step, SparkCount):
+        # The row of the step's limits the station will judge against, and where it is from.
+        channels = ("A", "B") if step.channel == "both" else (step.channel,)
+        fitted = exciter_rows.fitted_exciters(engine, state.configuration.components, channels)
+        context["count_limits"] = exciter_rows.limits_for(step.limits,
+                                                          [f.part_number for f in fitted])
+        context["count_exciters"] = fitted
     elif isinstance(step, PartChange):
         channel = state.configuration.channel or "A"
         context["part"] = {"position": engine.position(step.part, channel),

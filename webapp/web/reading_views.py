@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from flask import Flask
 
+from ..domain.procedures import EXCITER_MODES
 from ..domain.readings import VERDICT_SYMBOL
 from ..shown import (
     conversion_table,
@@ -18,5 +19,5 @@ from ..shown import (
 def register(app: Flask) -> None:
     app.jinja_env.globals.update(unit_choices=unit_choices, unit_label=unit_label,
                                  limits_text=limits_text, si_text=si_text, si_factor=si_factor,
-                                 conversion_table=conversion_table,
+                                 conversion_table=conversion_table, modes=EXCITER_MODES,
                                  verdict_symbol=lambda v: VERDICT_SYMBOL.get(v, ""))
