@@ -6,8 +6,8 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
 from typing import Any
 
-from ..domain.execution import JobState, StepProgress
 from ..domain.exciter_rows import limits_for
+from ..domain.execution import JobState, StepProgress
 from ..domain.procedures import EXCITER_MODES, Check, Lockout, Reading, SparkCount, Step, Torque
 from ..domain.readings import VERDICT_SYMBOL
 from ..shown import limits_text, unit_label
