@@ -35,15 +35,16 @@ def type_supply(exciter_type: str, given: SupplyLimits | None) -> tuple[TypeSupp
     type, else its limits for every type of that supply, else the station's default."""
     entry = getattr(given, exciter_type, None) if given is not None else None
     if isinstance(entry, TypeSupply):
-        hertz = entry.hertz or (given.ac_hertz if given else None) or DEFAULT_AC_HERTZ
-        return (TypeSupply(volts=entry.volts, hertz=hertz if exciter_type == "ac" else None),
+        entry_hz = entry.hertz or (given.ac_hertz if given else None) or DEFAULT_AC_HERTZ
+        return (TypeSupply(volts=entry.volts, hertz=entry_hz if exciter_type == "ac" else None),
                 f"procedure, {exciter_type} units")
     if exciter_type == "ac":
-        volts, hertz = (given.ac_volts, given.ac_hertz) if given else (None, None)
-        return (TypeSupply(volts=volts or DEFAULT_AC_VOLTS, hertz=hertz or DEFAULT_AC_HERTZ),
-                "procedure" if volts else STATION_DEFAULT)
-    volts = given.dc_volts if given else None
-    return TypeSupply(volts=volts or DEFAULT_DC_VOLTS), "procedure" if volts else STATION_DEFAULT
+        ac_volts, ac_hz = (given.ac_volts, given.ac_hertz) if given else (None, None)
+        return (TypeSupply(volts=ac_volts or DEFAULT_AC_VOLTS, hertz=ac_hz or DEFAULT_AC_HERTZ),
+                "procedure" if ac_volts else STATION_DEFAULT)
+    dc_volts = given.dc_volts if given else None
+    return (TypeSupply(volts=dc_volts or DEFAULT_DC_VOLTS),
+            "procedure" if dc_volts else STATION_DEFAULT)
 
 
 def _figure(raw: Mapping[str, Any], name: str, said: str) -> float:
