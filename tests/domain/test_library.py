@@ -59,8 +59,16 @@ def test_steps_differ_by_exciter_and_by_plug_type(library):
 def test_functional_check_counts_each_channel_and_both(library):
     check = library["ignition-functional-check"]
     assert check.channel == "all"
-    channels = [s.channel for s in check.steps if isinstance(s, SparkCount)]
-    assert sorted(channels) == ["A", "B", "both"]
+    for exciter in ("dc", "transistorised", "ac"):
+        counts = [s for s in check.steps_for([exciter], ["air-gap"]) if isinstance(s, SparkCount)]
+        assert sorted(s.channel for s in counts) == ["A", "B", "both"]
+        assert all(s.mode is None for s in counts)
+    # A combination unit: each channel and both, in each of its two modes.
+    counts = [s for s in check.steps_for(["combination"], ["air-gap"])
+              if isinstance(s, SparkCount)]
+    assert sorted((s.channel, s.mode or "") for s in counts) == [
+        ("A", "continuous"), ("A", "start"), ("B", "continuous"), ("B", "start"),
+        ("both", "continuous"), ("both", "start")]
     both = next(s for s in check.steps if isinstance(s, SparkCount) and s.channel == "both")
     assert both.both_tolerance is not None
 

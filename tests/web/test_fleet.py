@@ -53,7 +53,7 @@ def test_page_lists_every_installed_plug_and_exciter(mechanic, db):
         "select serial from components where kind = 'plug' and engine_id is not null")]
     exciters = [r["serial"] for r in db.query(
         "select serial from components where kind = 'exciter' and engine_id is not null")]
-    assert len(plugs) == 12 and len(exciters) == 12  # demo: 3 aircraft × 2 engines × 2 channels
+    assert len(plugs) == 16 and len(exciters) == 16  # demo: 4 aircraft × 2 engines × 2 channels
     assert sorted(re.findall(r'data-testid="plug-([^"]+)"', html)) == sorted(plugs)
     assert sorted(re.findall(r'data-testid="exciter-([^"]+)"', html)) == sorted(exciters)
     # Every plug has exactly one chart on the page (flagged ones under Needs attention).

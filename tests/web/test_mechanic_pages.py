@@ -24,9 +24,9 @@ def _open_from_engine_page(mech, engine_id=1, procedure="exciter-removal", chann
 
 def test_fleet_page_lists_aircraft_and_engines(mechanic):
     html = mechanic.get("/fleet").get_data(as_text=True)
-    for registration in ("DEMO-101", "DEMO-102", "DEMO-103"):
+    for registration in ("DEMO-101", "DEMO-102", "DEMO-103", "DEMO-104"):
         assert registration in html
-    assert html.count('data-testid="engine-') == 6
+    assert html.count('data-testid="engine-') == 8
 
 
 def test_engine_page_offers_only_effective_procedures(mechanic):

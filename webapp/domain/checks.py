@@ -14,7 +14,18 @@ from dataclasses import dataclass, field
 from datetime import datetime
 from typing import Any
 
-from . import gates, readings, release, signoff, spark_counts, sparks, supply, tag_handover, torque
+from . import (
+    exciter_rows,
+    gates,
+    readings,
+    release,
+    signoff,
+    spark_counts,
+    sparks,
+    supply,
+    tag_handover,
+    torque,
+)
 from .authorisations import Authorisation
 from .engine import EngineState, check_channels_whole
 from .errors import RuleRefusal
@@ -273,10 +284,18 @@ def _check_completion(state: JobState, target: StepProgress, data: Mapping[str, 
             return torque.evaluate_torque(step, data, at.now.date(),
                                           torque.accepted_fasteners(step, state.readings))
         if isinstance(step, SparkCount):
-            stored = spark_counts.evaluate_spark_count(step, data, state.single_channel_rates())
+            # The row of the step's limits for the exciters fitted now, and their types'
+            # supply limits: judged against what is on the engine, not what was.
+            fitted = exciter_rows.fitted_exciters(
+                at.engine, state.configuration.components,
+                ("A", "B") if step.channel == "both" else (step.channel,))
+            chosen = exciter_rows.limits_for(step.limits, [f.part_number for f in fitted])
+            stored = spark_counts.evaluate_spark_count(
+                step, data, state.single_channel_rates(step.mode), chosen)
+            stored["exciters"] = {f.channel: f.part_number for f in fitted}
             stored["supply"] = supply.evaluate_supply(
-                supply.supply_kind(state.configuration.exciter_types), data.get("supply"),
-                step.supply)
+                [f.type for f in fitted if f.type] or state.configuration.exciter_types,
+                data.get("supply"), step.supply)
             if not stored["supply"]["within"]:
                 # A count at a supply outside its limits proves nothing about the unit.
                 stored["verdict"] = "out of limits"
@@ -303,8 +322,12 @@ def _check_completion(state: JobState, target: StepProgress, data: Mapping[str, 
             raise RuleRefusal("tags_still_on", "Tags still hang on " + ", ".join(missing)
                               + "; each comes off by its owner first.", breakers=missing)
     elif isinstance(step, DischargeWait):
-        gates.check_discharge_served(gates.discharge_requirement(step), state.power_off,
-                                     at.now, at.device_now)
+        fitted = exciter_rows.fitted_exciters(at.engine, state.configuration.components,
+                                              _job_channels(state))
+        need = gates.discharge_requirement(step, [f.part_number for f in fitted])
+        gates.check_discharge_served(need, state.power_off, at.now, at.device_now)
+        if need.capacitor_from:
+            return {**data, "capacitor_from": need.capacitor_from}
     elif isinstance(step, IgnitionRun):
         return _check_energise(state, step, data, at)
     elif isinstance(step, PartChange):

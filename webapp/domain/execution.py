@@ -164,11 +164,14 @@ class JobState:
     def advisories_for(self, step_id: str) -> list[Advisory]:
         return advisories_for(list(self.applicable), step_id)
 
-    def single_channel_rates(self) -> dict[str, tuple[float, float]]:
-        """The latest spark rate (and its resolution) counted on channel A and on B alone."""
+    def single_channel_rates(self, mode: str | None = None) -> dict[str, tuple[float, float]]:
+        """The latest spark rate (and its resolution) counted on channel A and on B alone, in
+        a combination unit's `mode` (or with no mode): counts of one mode are compared only
+        with counts of the same mode."""
         rates: dict[str, tuple[float, float]] = {}
         for r in self.readings:
-            if r["kind"] == "spark_count" and r.get("channel") in ("A", "B"):
+            if r["kind"] == "spark_count" and r.get("channel") in ("A", "B") \
+                    and r.get("mode") == mode:
                 rates[r["channel"]] = (r["rate"], r.get("resolution", 0.0))
         return rates
 

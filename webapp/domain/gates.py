@@ -15,6 +15,7 @@ from typing import Any
 
 from . import energy
 from .errors import RuleRefusal
+from .exciter_rows import capacitor_rows
 from .procedures import DischargeWait, DutyCycle, Lockout
 from .units import parse_quantity, seconds
 
@@ -179,6 +180,9 @@ class DischargeRequirement:
     charge_voltage_v: float | None = None
     bleed_resistance_ohm: float | None = None
     safe_voltage_v: float | None = None
+    capacitor_from: str = ""   # the capacitor data's row: "default", a part number, ...
+    charge_voltage: str = ""   # as the data writes them, for the record
+    safe_voltage: str = ""
 
     @property
     def required_s(self) -> float:
@@ -198,17 +202,23 @@ class DischargeRequirement:
                                     self.capacitance_f, max(elapsed_s, 0.0))
 
 
-def discharge_requirement(step: DischargeWait) -> DischargeRequirement:
-    """The larger of the data's minimum and t = RC·ln(V0/Vsafe); missing data never shortens it."""
+def discharge_requirement(step: DischargeWait,
+                          part_numbers: Sequence[str | None] = ()) -> DischargeRequirement:
+    """The larger of the data's minimum and t = RC·ln(V0/Vsafe) for the capacitor data's row
+    of the fitted exciters' part numbers (every row, when one is not known: the longest
+    bleed-down wins); missing data never shortens it."""
     minimum = seconds(str(step.minimum))
-    cap = step.capacitor
-    if cap is None:
-        return DischargeRequirement(minimum, None)
-    c = parse_quantity(str(cap.capacitance), "capacitance").to("farad").magnitude
-    v0 = parse_quantity(str(cap.charge_voltage), "voltage").to("volt").magnitude
-    r = parse_quantity(str(cap.bleed_resistance), "resistance").to("ohm").magnitude
-    vs = parse_quantity(str(cap.safe_voltage), "voltage").to("volt").magnitude
-    return DischargeRequirement(minimum, energy.time_to_voltage(v0, vs, r, c), c, v0, r, vs)
+    found = DischargeRequirement(minimum, None)
+    for cap, source in capacitor_rows(step.capacitor, part_numbers):
+        c = parse_quantity(str(cap.capacitance), "capacitance").to("farad").magnitude
+        v0 = parse_quantity(str(cap.charge_voltage), "voltage").to("volt").magnitude
+        r = parse_quantity(str(cap.bleed_resistance), "resistance").to("ohm").magnitude
+        vs = parse_quantity(str(cap.safe_voltage), "voltage").to("volt").magnitude
+        row = DischargeRequirement(minimum, energy.time_to_voltage(v0, vs, r, c), c, v0, r, vs,
+                                   source, str(cap.charge_voltage), str(cap.safe_voltage))
+        if found.computed_s is None or (row.computed_s or 0.0) > found.computed_s:
+            found = row
+    return found
 
 
 @dataclass(frozen=True)

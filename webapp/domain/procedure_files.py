@@ -29,6 +29,7 @@ from .procedures import (
     IgnitionRun,
     PartChange,
     Procedure,
+    Step,
     StepCondition,
     guarded_step,
 )
@@ -162,6 +163,8 @@ def _structural_problems(err: ValidationError, raw: dict[str, Any],
             loc = loc[2:]
             if loc and loc[0] in STEP_KINDS:  # the discriminator's own level
                 loc = loc[1:]
+            # A table-or-row field's own level ("_table", "_row") is no field to fix.
+            loc = [part for part in loc if not str(part).startswith("_")]
         field = ".".join(str(part) for part in loc) or None
         template = _MESSAGES.get(error["type"])
         if template:
@@ -195,7 +198,8 @@ def _order_problems(procedure: Procedure, file: str) -> Iterator[ProcedureProble
             yield ProcedureProblem(file, f"a {step.kind.upper()} must stand before the step it "
                                    f"guards, but '{target.id}' is step {index[target.id]}",
                                    number, step.id, "guards")
-        elif target.when is not None and step.when != target.when:
+        elif (target.when is not None and step.when != target.when
+              and not _alternatives_cover(procedure, step, target)):
             yield ProcedureProblem(file, f"guards '{target.id}', which applies only 'when' "
                                    f"{_when_text(target.when)}: give this {step.kind.upper()} "
                                    "the same 'when'", number, step.id, "when")
@@ -211,6 +215,28 @@ def _order_problems(procedure: Procedure, file: str) -> Iterator[ProcedureProble
                                        f"{earlier.kind.upper()} that guards the same step",
                                        later_number, later.id, "kind")
         run = []
+
+
+def _alternatives_cover(procedure: Procedure, advisory: Advisory, target: Step) -> bool:
+    """Whether the steps of the target's kind standing right after it are alternatives by
+    exciter type (a count for single-mode units, a count per mode of combination units)
+    that together cover every exciter type the advisory applies to: in each configuration
+    the advisory then guards the first of them that applies."""
+    steps = procedure.steps
+    start = steps.index(target)
+    covered: set[str] = set()
+    for step in steps[start:]:
+        if isinstance(step, Advisory):
+            continue
+        if step.kind != target.kind or step.when is None or step.when.plug_types is not None \
+                or step.when.exciter_types is None:
+            break
+        covered |= set(step.when.exciter_types)
+    wanted = (advisory.when.exciter_types if advisory.when is not None
+              and advisory.when.plug_types is None else None)
+    if advisory.when is not None and wanted is None:
+        return False
+    return set(wanted or procedure.effectivity.exciter_types) <= covered
 
 
 def _gate_problems(procedure: Procedure, file: str) -> Iterator[ProcedureProblem]:

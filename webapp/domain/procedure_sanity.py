@@ -10,12 +10,23 @@ form, and adds the file's name to each problem. Where a check cannot be sure, it
 from __future__ import annotations
 
 import math
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from typing import NamedTuple
 
 from . import energy
 from .gates import discharge_requirement
-from .procedures import DischargeWait, IgnitionRun, Limits, Procedure, Step
+from .procedures import (
+    EXCITER_MODES,
+    Capacitor,
+    CapacitorTable,
+    DischargeWait,
+    IgnitionRun,
+    Limits,
+    LimitsTable,
+    Procedure,
+    SparkCount,
+    Step,
+)
 from .units import parse_quantity, seconds
 
 # Any discharge wait lasts at least this long, unless the step gives `minimum_reason`.
@@ -55,9 +66,16 @@ def data_problems(procedure: Procedure) -> Iterator[DataProblem]:
             yield from _discharge_problems(step, number)
         elif isinstance(step, IgnitionRun):
             yield from _duty_cycle_problems(step, number)
+        if isinstance(step, SparkCount) and step.mode is not None:
+            yield from _mode_problems(procedure, step, number)
         limits = getattr(step, "limits", None)
         if isinstance(limits, Limits):
             yield from _limits_problems(step, limits, number)
+        elif isinstance(limits, LimitsTable):
+            yield from _limits_problems(step, limits.default, number, "limits.default")
+            for part_number, row in limits.by_part_number.items():
+                yield from _limits_problems(step, row, number,
+                                            f"limits.by_part_number.{part_number}")
 
 
 # --- discharge wait -----------------------------------------------------------------------
@@ -85,32 +103,45 @@ def _discharge_problems(step: DischargeWait, number: int) -> Iterator[DataProble
                       f"{DISCHARGE_FLOOR_S:g} s every discharge wait lasts: wait at least one "
                       "minute after disconnecting the input, or, if the approved data says "
                       "less, give its words in 'minimum_reason'")
-    cap = step.capacitor
-    if cap is None:
-        return
+    capacitor = step.capacitor
+    rows: list[tuple[Capacitor, str]] = []
+    if isinstance(capacitor, Capacitor):
+        rows = [(capacitor, "capacitor")]
+    elif isinstance(capacitor, CapacitorTable):
+        rows = [(capacitor.default, "capacitor.default"),
+                *((row, f"capacitor.by_part_number.{p}")
+                  for p, row in capacitor.by_part_number.items())]
+    for cap, where in rows:
+        yield from _capacitor_problems(step, cap, where, minimum_s, problem)
+
+
+def _capacitor_problems(step: DischargeWait, cap: Capacitor, where: str, minimum_s: float,
+                        problem: Callable[[str, str], DataProblem]) -> Iterator[DataProblem]:
+    """One row of capacitor data: physical ranges, a safe voltage below the charge, and a
+    minimum wait no shorter than its bleed-down."""
     for name, (dimension, unit, low, high, shown) in CIRCUIT_RANGES.items():
         value = getattr(cap, name)
         if not low <= _si(value, dimension, unit) <= high:
-            yield problem(f"capacitor.{name}", f"'{value}' is outside what an ignition "
+            yield problem(f"{where}.{name}", f"'{value}' is outside what an ignition "
                           f"exciter's storage circuit can be ({shown}): check the number "
                           "and its unit against the approved data")
     charge_v = _si(cap.charge_voltage, "voltage", "volt")
     safe_v = _si(cap.safe_voltage, "voltage", "volt")
     if safe_v > SAFE_VOLTAGE_MAX_V:
-        yield problem("capacitor.safe_voltage", f"'{cap.safe_voltage}' is above "
+        yield problem(f"{where}.safe_voltage", f"'{cap.safe_voltage}' is above "
                       f"{SAFE_VOLTAGE_MAX_V:g} V, the highest residual voltage counted as "
                       "safe (IEC 60204-1 §6.2.4)")
     if safe_v >= charge_v:
-        yield problem("capacitor.safe_voltage", f"'{cap.safe_voltage}' is not below the "
+        yield problem(f"{where}.safe_voltage", f"'{cap.safe_voltage}' is not below the "
                       f"charge voltage '{cap.charge_voltage}': the bleed-down cannot be "
                       "worked out; check both values")
         return
-    bleed_s = discharge_requirement(step).computed_s or 0.0
-    if minimum_s < bleed_s:
+    bleed_s = discharge_requirement(step.model_copy(update={"capacitor": cap})).computed_s
+    if minimum_s < (bleed_s or 0.0):
         yield problem("minimum", f"'{step.minimum}' ({minimum_s:g} s) is shorter than the "
-                      "bleed-down to the safe voltage, RC·ln(V0/Vsafe) = "
-                      f"{_seconds_text(bleed_s)}: make the minimum at least "
-                      f"{_seconds_text(bleed_s)}, or check the capacitor data")
+                      f"bleed-down to the safe voltage ({where}), RC·ln(V0/Vsafe) = "
+                      f"{_seconds_text(bleed_s or 0.0)}: make the minimum at least "
+                      f"{_seconds_text(bleed_s or 0.0)}, or check the capacitor data")
 
 
 # --- duty cycle ---------------------------------------------------------------------------
@@ -141,7 +172,8 @@ def _duty_cycle_problems(step: IgnitionRun, number: int) -> Iterator[DataProblem
 
 # --- limits -------------------------------------------------------------------------------
 
-def _limits_problems(step: Step, limits: Limits, number: int) -> Iterator[DataProblem]:
+def _limits_problems(step: Step, limits: Limits, number: int,
+                     where: str = "limits") -> Iterator[DataProblem]:
     """Bounds are finite and min lies below max (min above max is refused by `Limits`)."""
     finite = True
     for name in ("min", "max"):
@@ -150,8 +182,22 @@ def _limits_problems(step: Step, limits: Limits, number: int) -> Iterator[DataPr
             finite = False
             yield DataProblem(f"{value} is not a finite number: write the approved data's "
                               "limit, or leave this bound out", number, step.id,
-                              f"limits.{name}")
+                              f"{where}.{name}")
     if finite and limits.min is not None and limits.min == limits.max:
         yield DataProblem(f"min and max are both {limits.min:g}: no measured value can be "
                           "shown to lie within them; give the range the approved data "
-                          "allows, min below max", number, step.id, "limits")
+                          "allows, min below max", number, step.id, where)
+
+
+# --- combination units ----------------------------------------------------------------------
+
+def _mode_problems(procedure: Procedure, step: SparkCount, number: int
+                   ) -> Iterator[DataProblem]:
+    """A combination unit is tested in each of its modes: a channel counted in one mode is
+    counted in the other too."""
+    modes = {s.mode for s in procedure.steps
+             if isinstance(s, SparkCount) and s.channel == step.channel and s.mode is not None}
+    for missing in sorted(set(EXCITER_MODES) - modes):
+        yield DataProblem(f"channel {step.channel} is counted in the {step.mode} mode but "
+                          f"not in the {missing} mode: a combination unit is tested in "
+                          "each of its modes", number, step.id, "mode")

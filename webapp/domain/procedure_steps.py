@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from typing import Annotated, Literal
 
-from pydantic import Field, model_validator
+from pydantic import Discriminator, Field, Tag, model_validator
 
 from .procedure_types import (
     ADVISORY_KINDS,
@@ -14,10 +14,14 @@ from .procedure_types import (
     Connection,
     Duration,
     DutyEntry,
+    Energy,
+    ExciterMode,
     Id,
     Limits,
+    PartNumber,
     Resistance,
     StepCondition,
+    StepLimits,
     Text,
     TorqueUnit,
     Voltage,
@@ -97,6 +101,25 @@ class Capacitor(_Strict):
     safe_voltage: Voltage
 
 
+class CapacitorTable(_Strict):
+    """Capacitor data that varies by the fitted exciter's part number: a row per part
+    number, and the `default` row for any other."""
+
+    default: Capacitor
+    by_part_number: dict[PartNumber, Capacitor] = Field(min_length=1)
+
+
+def _capacitor_form(value: object) -> str:
+    is_table = isinstance(value, dict) and "default" in value
+    return "_table" if is_table or isinstance(value, CapacitorTable) else "_row"
+
+
+CapacitorData = Annotated[
+    Annotated[Capacitor, Tag("_row")] | Annotated[CapacitorTable, Tag("_table")],
+    Discriminator(_capacitor_form),
+]
+
+
 class DischargeWait(_Step):
     """The wait after the exciter's input is disconnected. `minimum_reason` says why the
     approved data allows a minimum shorter than the station's floor (see procedure_sanity)."""
@@ -104,7 +127,7 @@ class DischargeWait(_Step):
     kind: Literal["discharge_wait"]
     minimum: Duration
     minimum_reason: Text | None = None
-    capacitor: Capacitor | None = None
+    capacitor: CapacitorData | None = None
 
 
 class Reading(_Step):
@@ -138,22 +161,65 @@ class Reading(_Step):
         return self
 
 
+class TypeSupply(_Strict):
+    """One exciter type's supply limits: volts, and hertz for an AC supply."""
+
+    volts: Limits
+    hertz: Limits | None = None
+
+
 class SupplyLimits(_Strict):
     """The exciter supply a count is valid at, as the approved data gives it (volts; hertz
-    for an AC supply). Absent, the station's defaults for a 28 V DC or 115 V 400 Hz bus."""
+    for an AC supply): for every type (`dc_volts`, `ac_volts`, `ac_hertz`) or per exciter
+    type (`dc` for DC trembler units, whose rate follows the supply voltage;
+    `transistorised`; `combination`; `ac`), the per-type entry first. Absent, the station's
+    defaults for a 28 V DC or 115 V 400 Hz bus."""
 
     dc_volts: Limits | None = None
     ac_volts: Limits | None = None
     ac_hertz: Limits | None = None
+    dc: TypeSupply | None = None
+    transistorised: TypeSupply | None = None
+    combination: TypeSupply | None = None
+    ac: TypeSupply | None = None
+
+    @model_validator(mode="after")
+    def _hertz_only_for_ac(self) -> SupplyLimits:
+        for name in ("dc", "transistorised", "combination"):
+            entry = getattr(self, name)
+            if entry is not None and entry.hertz is not None:
+                raise _field_error(f"{name}.hertz", "a DC-supplied exciter has no supply "
+                                   "frequency: give hertz only under ac")
+        return self
 
 
 class SparkCount(_Step):
+    """A spark count on a channel (or both). `limits` may be a table by exciter part number.
+    `mode` is the mode of a combination unit the count is made in (start or continuous),
+    with that mode's `rated_energy` from the parts data; a step with a mode is for
+    combination units only."""
+
     kind: Literal["spark_count"]
     channel: Literal["A", "B", "both"]
     window: Duration = "30 s"
-    limits: Limits
+    limits: StepLimits
     both_tolerance: float | None = Field(default=None, ge=0)
     supply: SupplyLimits | None = None
+    mode: ExciterMode | None = None
+    rated_energy: Energy | None = None
+
+    @model_validator(mode="after")
+    def _mode_belongs_to_combination_units(self) -> SparkCount:
+        if self.mode is None:
+            if self.rated_energy is not None:
+                raise _field_error("rated_energy", "an energy rating belongs to a mode: give "
+                                   "the step's mode too")
+            return self
+        types = self.when.exciter_types if self.when is not None else None
+        if types != ["combination"]:
+            raise _field_error("when", "a count in a mode is for combination units only: "
+                               "give it when: exciter_types: [combination]")
+        return self
 
 
 class DutyCycle(_Strict):

@@ -6,7 +6,15 @@ from __future__ import annotations
 from collections.abc import Iterable
 from typing import Annotated, Literal
 
-from pydantic import AfterValidator, BaseModel, ConfigDict, Field, model_validator
+from pydantic import (
+    AfterValidator,
+    BaseModel,
+    ConfigDict,
+    Discriminator,
+    Field,
+    Tag,
+    model_validator,
+)
 from pydantic_core import PydanticCustomError
 
 from .units import UnitProblem, parse_quantity, parse_unit
@@ -19,13 +27,19 @@ STEP_KINDS = (
 # input, and the high-tension lead at either end (two jobs may each have one end open).
 Connection = Literal["input", "lead_at_exciter", "lead_at_plug"]
 ADVISORY_KINDS = ("warning", "caution", "note")  # in the order they must stand
-EXCITER_TYPES = ("dc", "transistorised", "ac")
+# "combination": one unit with a high-energy start mode and a low-energy continuous mode,
+# each with its own energy rating and limits; its counts name the mode they were made in.
+EXCITER_TYPES = ("dc", "transistorised", "ac", "combination")
+EXCITER_MODES = {"start": "high-energy start", "continuous": "low-energy continuous"}
 PLUG_TYPES = ("air-gap", "surface-discharge")
 PROCEDURE_KINDS = ("removal", "installation", "inspection", "functional check")
 
 Id = Annotated[str, Field(pattern=r"^[a-z0-9][a-z0-9-]*$", max_length=60)]
 Text = Annotated[str, Field(min_length=1)]
-ExciterType = Literal["dc", "transistorised", "ac"]
+ExciterType = Literal["dc", "transistorised", "ac", "combination"]
+ExciterMode = Literal["start", "continuous"]
+# An exciter part number as the parts data writes it ("XEX-1001-03").
+PartNumber = Annotated[str, Field(pattern=r"^[A-Za-z0-9][A-Za-z0-9./-]*$", max_length=40)]
 PlugType = Literal["air-gap", "surface-discharge"]
 
 
@@ -85,6 +99,19 @@ Duration = Annotated[str | int | float, _quantity_of("time")]
 Capacitance = Annotated[str | int | float, _quantity_of("capacitance")]
 Voltage = Annotated[str | int | float, _quantity_of("voltage")]
 Resistance = Annotated[str | int | float, _quantity_of("resistance")]
+
+
+def _check_energy(value: str | int | float) -> str:
+    """An energy rating in joules ("12 J", "2 J"): torque shares the dimension, so the unit
+    itself must be a joule."""
+    checked = _check_quantity(value, "energy")
+    unit = str(parse_quantity(value, "energy").units)
+    if not unit.endswith("joule"):
+        raise ValueError(f"'{value}' must be written in joules (J)")
+    return checked
+
+
+Energy = Annotated[str | int | float, AfterValidator(_check_energy)]
 AnyUnit = Annotated[str, AfterValidator(_check_unit)]
 TorqueUnit = Annotated[str, AfterValidator(lambda v: _check_unit(v, "torque"))]
 
@@ -121,3 +148,25 @@ class Limits(_Strict):
 
 
 # --- steps --------------------------------------------------------------------------------
+
+
+class LimitsTable(_Strict):
+    """Limits that vary by the fitted exciter's part number, as the approved data gives
+    them: a row per part number, and the `default` row for any other."""
+
+    default: Limits
+    by_part_number: dict[PartNumber, Limits] = Field(min_length=1)
+
+
+def table_or_row(value: object) -> str:
+    """Which form a step's data is in: a table by part number (it has a `default`) or one
+    row. The tags start with "_" so a problem's field leaves them out."""
+    is_table = isinstance(value, dict) and "default" in value
+    return "_table" if is_table or hasattr(value, "by_part_number") else "_row"
+
+
+# A step's limits: one row, or a table by exciter part number.
+StepLimits = Annotated[
+    Annotated[Limits, Tag("_row")] | Annotated[LimitsTable, Tag("_table")],
+    Discriminator(table_or_row),
+]

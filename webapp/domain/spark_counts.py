@@ -9,16 +9,44 @@ from typing import Any
 
 from . import sparks
 from .errors import RuleRefusal
-from .procedures import SparkCount
+from .exciter_rows import ChosenLimits, limits_for
+from .procedures import EXCITER_MODES, SparkCount
 from .readings import InputProblem
 from .units import seconds
 
 
+def check_mode(step: SparkCount, data: Mapping[str, Any]) -> str | None:
+    """The mode a count says it was made in must be the step's: a combination unit's start
+    and continuous modes each have their own limits, so a count in the other mode, or one
+    that does not say, cannot be judged here. A step without a mode takes no mode."""
+    said = data.get("mode")
+    said = said.strip() if isinstance(said, str) else said
+    if step.mode is None:
+        if said not in (None, ""):
+            raise InputProblem("mode", "This count is not made in a mode of a combination "
+                               "unit: leave the mode out.")
+        return None
+    wanted = EXCITER_MODES[step.mode]
+    if said in (None, ""):
+        raise InputProblem("mode", f"Say the mode the unit was counted in: this step is "
+                           f"for the {wanted} mode.")
+    if said != step.mode:
+        other = EXCITER_MODES.get(str(said), f"'{said}'")
+        raise InputProblem("mode", f"This step counts the {wanted} mode, not the {other} "
+                           "mode: select the step's mode and count again.")
+    return step.mode
+
+
 def evaluate_spark_count(step: SparkCount, data: Mapping[str, Any],
-                         single_rates: Mapping[str, tuple[float, float]]) -> dict[str, Any]:
+                         single_rates: Mapping[str, tuple[float, float]],
+                         chosen: ChosenLimits | None = None) -> dict[str, Any]:
     """A spark count by taps or over a timed window: rate, resolution, verdict and, for both
     channels together, the check against A + B. `single_rates` are this job's latest A and B
-    results (rate, resolution). A mistyped count is an InputProblem; limits are the step's."""
+    results in the step's mode (rate, resolution). A mistyped count or a wrong mode is an
+    InputProblem; limits are `chosen` (the step's row for the fitted exciters), else the
+    step's own (a table's narrowest row)."""
+    mode = check_mode(step, data)
+    chosen = chosen or limits_for(step.limits, ())
     method = data.get("method")
     try:
         if method == "taps":
@@ -53,15 +81,17 @@ def evaluate_spark_count(step: SparkCount, data: Mapping[str, Any],
     except RuleRefusal as refusal:  # a count that cannot be: fix the entry, nothing is kept
         field = "taps" if method == "taps" else "count"
         raise InputProblem(field, refusal.reason) from None
-    low, high = step.limits.min, step.limits.max
+    low, high = chosen.limits.min, chosen.limits.max
     judged = sparks.rate_verdict(rate, low if low is not None else 0.0,
                                  high if high is not None else math.inf, resolution)
     stored.update(resolution=resolution, channel=step.channel, verdict=judged.verdict,
-                  margin=judged.margin)
+                  margin=judged.margin, mode=mode, **chosen.as_data())
     if step.channel == "both":
         if "A" not in single_rates or "B" not in single_rates:
+            in_mode = f" in the {EXCITER_MODES[mode]} mode" if mode else ""
             raise RuleRefusal("single_counts_missing", "Count channel A and channel B on their "
-                              "own first: the combined count is checked against them.")
+                              f"own{in_mode} first: the combined count is checked against "
+                              "them.")
         (rate_a, res_a), (rate_b, res_b) = single_rates["A"], single_rates["B"]
         check = sparks.two_channel_check(rate_a, rate_b, rate, step.both_tolerance or 0.0,
                                          max(resolution, res_a, res_b))

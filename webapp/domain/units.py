@@ -17,6 +17,7 @@ DIMENSIONS: dict[str, str] = {
     "current": "[current]",
     "capacitance": "[current] ** 2 * [time] ** 4 / [mass] / [length] ** 2",
     "time": "[time]",
+    "energy": "[mass] * [length] ** 2 / [time] ** 2",
     "temperature": "[temperature]",
     "dimensionless": "dimensionless",
 }

@@ -7,7 +7,7 @@ from dataclasses import dataclass
 from datetime import datetime
 from typing import Any
 
-from ..domain import gates
+from ..domain import exciter_rows, gates
 from ..domain.execution import JobState
 from ..domain.procedures import Check, DischargeWait, IgnitionRun, Lockout
 from ..store import Database
@@ -176,7 +176,9 @@ def discharge_lines(state: JobState, numbers: Mapping[str, int],
     for step in state.applicable:
         if not isinstance(step, DischargeWait):
             continue
-        need = gates.discharge_requirement(step)
+        channels = [state.configuration.channel] if state.configuration.channel else ["A", "B"]
+        fitted = exciter_rows.fitted_exciters(None, state.configuration.components, channels)
+        need = gates.discharge_requirement(step, [f.part_number for f in fitted])
         event = state.completed.get(step.id)
         served = "—"
         if event is not None and power_off is not None:
@@ -185,9 +187,10 @@ def discharge_lines(state: JobState, numbers: Mapping[str, int],
             served = gates.mmss(seconds)
         computed = "—"
         if need.computed_s is not None:
+            row = ("" if need.capacitor_from in ("", exciter_rows.NOT_A_TABLE)
+                   else f", capacitor data for {need.capacitor_from}")
             computed = (f"{gates.mmss(need.computed_s)} (bleed-down from "
-                        f"{step.capacitor.charge_voltage if step.capacitor else ''} to "
-                        f"{step.capacitor.safe_voltage if step.capacitor else ''}; advisory)")
+                        f"{need.charge_voltage} to {need.safe_voltage}{row}; advisory)")
         energy = f"{need.energy_j:.1f} J at full charge" if need.energy_j is not None else "—"
         lines.append(DischargeLine(
             numbers[step.id], gates.mmss(need.required_s), gates.mmss(need.minimum_s),

@@ -6,8 +6,9 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
 from typing import Any
 
+from ..domain.exciter_rows import limits_for
 from ..domain.execution import JobState, StepProgress
-from ..domain.procedures import Check, Lockout, Reading, SparkCount, Step, Torque
+from ..domain.procedures import EXCITER_MODES, Check, Lockout, Reading, SparkCount, Step, Torque
 from ..domain.readings import VERDICT_SYMBOL
 from ..shown import limits_text, unit_label
 from .record_entries import People, Who, station_time, step_of
@@ -136,7 +137,9 @@ def _limits(step: Step | None) -> str:
     if isinstance(step, (Reading, Torque)) and step.limits is not None:
         return limits_text(step)
     if isinstance(step, SparkCount):
-        low, high = step.limits.min, step.limits.max
+        # A count stored before limits were kept with it: the step's own (narrowest) row.
+        judged = limits_for(step.limits, ()).limits
+        low, high = judged.min, judged.max
         if low is not None and high is not None:
             return f"{low:g} to {high:g} per minute"
         return f"at least {low:g} per minute" if low is not None else f"at most {high:g} per minute"
@@ -164,13 +167,37 @@ def _retest_words(r: Mapping[str, Any], state: JobState, done: str) -> str:
     return f"{head}: attempt {later[0]['attempt']}, {said}"
 
 
+def _count_limits(r: Mapping[str, Any]) -> str | None:
+    """A spark count's limits as the station judged it (stored with the count), with the
+    row they came from and the mode it was counted in."""
+    limits = r.get("limits")
+    if r.get("kind") != "spark_count" or not isinstance(limits, Mapping):
+        return None
+    low, high = limits.get("min"), limits.get("max")
+    said = (f"{low:g} to {high:g} per minute" if low is not None and high is not None
+            else f"at least {low:g} per minute" if low is not None
+            else f"at most {high:g} per minute")
+    source = r.get("limits_from")
+    if source == "default":
+        said += " (default row: no row for the fitted exciter's part number)"
+    elif source == "procedure":
+        said += " (procedure)"
+    elif source:
+        said += (f" (row for part number {source})" if source in (r.get("exciters") or {})
+                 .values() else f" ({source})")
+    if r.get("mode"):
+        said = f"{EXCITER_MODES[r['mode']]} mode: {said}"
+    return said
+
+
 def reading_line(r: Mapping[str, Any], state: JobState, numbers: Mapping[str, int],
                  who: People) -> ReadingLine:
     entered, converted = _entered(r)
     verdict = r.get("verdict", "")
     name = _short_name(r["step"]) + (f": {r['fastener']}" if r.get("fastener") else "")
+    limits = _count_limits(r) or _limits(step_of(state, r["step"]))
     line = ReadingLine(numbers.get(r["step"], 0), name, r["attempt"],
-                       entered, converted, _limits(step_of(state, r["step"])), verdict,
+                       entered, converted, limits, verdict,
                        VERDICT_SYMBOL.get(verdict, ""), "; ".join(_conditions(r)),
                        who(r.get("person_id")), station_time(r.get("received_at")))
     finding = r.get("finding")
@@ -205,4 +232,13 @@ def _conditions(r: Mapping[str, Any]) -> list[str]:
         said.append(f"wrench {r['wrench_id']}, calibration due {r['calibration_due']}")
     if isinstance(r.get("both_check"), Mapping):
         said.append(f"A + B check: {r['both_check'].get('result')}")
+    if isinstance(r.get("exciters"), Mapping):
+        said.append("exciter " + ", ".join(f"{c} {p or 'not known'}"
+                                           for c, p in sorted(r["exciters"].items())))
+    supply = r.get("supply")
+    if isinstance(supply, Mapping) and isinstance(supply.get("voltage_limits"), Mapping):
+        lim = supply["voltage_limits"]
+        said.append(f"supply {supply['voltage']:g} V ({lim.get('min')}–{lim.get('max')} V, "
+                    f"{supply.get('limits_from', '')})"
+                    + (f", {supply['frequency']:g} Hz" if "frequency" in supply else ""))
     return said

@@ -165,6 +165,7 @@ def walk(db: store.Database, job_id: int, *, by: Person, now: datetime,
             record("count_started", step.id, {})
             now += COUNT_WINDOW
             record("sparks_counted", step.id, {"supply": demo_supply(db, job_id),
+                                               **({"mode": step.mode} if step.mode else {}),
                                                "method": "timed", "count": count,
                                                "window_s": 30})
         elif isinstance(step, Check) and step.items:

@@ -11,10 +11,18 @@ from datetime import datetime
 from typing import Any
 
 from .. import store
-from ..domain import gates
+from ..domain import exciter_rows, gates
+from ..domain.engine import EngineState
 from ..domain.execution import JobState
 from ..domain.gates import ChannelClock, Consent, DischargeRequirement, Tag
-from ..domain.procedures import DischargeWait, DutyCycle, IgnitionRun, Lockout, PartChange
+from ..domain.procedures import (
+    DischargeWait,
+    DutyCycle,
+    IgnitionRun,
+    Lockout,
+    PartChange,
+    SparkCount,
+)
 from ..station import recording
 from ..store import engines, people
 
@@ -76,8 +84,11 @@ def duty_text(cycle: DutyCycle) -> str:
     return " / ".join(cycle.pattern or [])
 
 
-def _discharge(step: DischargeWait, state: JobState, now: datetime) -> DischargeView:
-    requirement = gates.discharge_requirement(step)
+def _discharge(step: DischargeWait, state: JobState, now: datetime,
+               engine: EngineState | None) -> DischargeView:
+    channels = [state.configuration.channel] if state.configuration.channel else ["A", "B"]
+    fitted = exciter_rows.fitted_exciters(engine, state.configuration.components, channels)
+    requirement = gates.discharge_requirement(step, [f.part_number for f in fitted])
     if state.power_off is None:
         return DischargeView(requirement, requirement.required_s, 0.0, None, None, None)
     elapsed = (now - state.power_off.station).total_seconds()
@@ -125,14 +136,15 @@ def gate_context(db: store.Database, job: recording.Job, now: datetime) -> dict[
                      if clock.runs],
         "engine": engine, "run_blocked": {}, "part": None,
         "open_gate_steps": state.open_gate_steps(), "discharge": None,
-        "run_channels": [], "run_wait": 0.0, "duty_text": "",
+        "run_channels": [], "run_wait": 0.0, "duty_text": "", "count_limits": None,
+        "count_exciters": [],
     }
     current = state.next_step
     step = current.step if current else None
     if isinstance(step, Lockout):
         context["lockout_missing"] = gates.lockout_complete(step, tags, job.row["id"])
     elif isinstance(step, DischargeWait):
-        context["discharge"] = _discharge(step, state, now)
+        context["discharge"] = _discharge(step, state, now, engine)
     elif isinstance(step, IgnitionRun):
         channels = ("A", "B") if step.channel == "both" else (step.channel,)
         views = [_channel(c, engine.clock_for(c), now) for c in channels]
@@ -140,6 +152,13 @@ def gate_context(db: store.Database, job: recording.Job, now: datetime) -> dict[
                        run_wait=max((v.off_remaining for v in views), default=0.0),
                        run_blocked={c: engine.not_whole(c) for c in channels
                                     if engine.not_whole(c)})
+    elif isinstance(step, SparkCount):
+        # The row of the step's limits the station will judge against, and where it is from.
+        channels = ("A", "B") if step.channel == "both" else (step.channel,)
+        fitted = exciter_rows.fitted_exciters(engine, state.configuration.components, channels)
+        context["count_limits"] = exciter_rows.limits_for(step.limits,
+                                                          [f.part_number for f in fitted])
+        context["count_exciters"] = fitted
     elif isinstance(step, PartChange):
         channel = state.configuration.channel or "A"
         context["part"] = {"position": engine.position(step.part, channel),

@@ -140,20 +140,21 @@ def _consent_data(kind: str, form: Any) -> dict[str, Any]:
 
 def _count_data(form: Any) -> dict[str, Any]:
     """Taps arrive as a JSON list of seconds; a timed count as its number and window; both
-    with the supply the exciter was at."""
+    with the supply the exciter was at, and a combination unit's mode when the form asks."""
     supply = {k: form.get(f"supply_{k}", "") for k in ("voltage", "frequency")}
+    mode = {"mode": form.get("mode", "")} if "mode" in form else {}
     if form.get("method") == "taps":
         try:
             taps = json.loads(form.get("taps", "[]"))
         except ValueError:
             taps = None
-        return {"method": "taps", "taps": taps, "supply": supply}
+        return {"method": "taps", "taps": taps, "supply": supply, **mode}
     try:
         window: Any = float(form.get("window_s", ""))
     except ValueError:
         window = form.get("window_s")
     return {"method": form.get("method"), "count": form.get("count", ""), "window_s": window,
-            "supply": supply}
+            "supply": supply, **mode}
 
 
 def _reading_data(form: Any) -> dict[str, Any]:

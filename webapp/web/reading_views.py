@@ -9,7 +9,7 @@ from flask import Flask
 
 from ..domain import torque
 from ..domain.execution import JobState
-from ..domain.procedures import Torque
+from ..domain.procedures import EXCITER_MODES, Torque
 from ..domain.readings import VERDICT_SYMBOL
 from ..shown import (
     conversion_table,
@@ -24,7 +24,7 @@ from ..shown import (
 def register(app: Flask) -> None:
     app.jinja_env.globals.update(unit_choices=unit_choices, unit_label=unit_label,
                                  limits_text=limits_text, si_text=si_text, si_factor=si_factor,
-                                 conversion_table=conversion_table,
+                                 conversion_table=conversion_table, modes=EXCITER_MODES,
                                  verdict_symbol=lambda v: VERDICT_SYMBOL.get(v, ""),
                                  fastener_rows=fastener_rows)
 
