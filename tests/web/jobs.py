@@ -85,7 +85,8 @@ class Job:
     def _demo_reading(self, step_id):
         """The demo's in-limits reading for a step (the one the demo jobs record)."""
         return demo_jobs.reading_data(recording.load_job(self.db, self.id).state
-                                      .step(step_id).step)
+                                      .step(step_id).step,
+                                      demo_jobs.engine_totals(self.db, self.id))
 
     def walk_to(self, step_id, tags=("T-1", "T-2")):
         """Complete the simple steps in order up to (not including) `step_id`."""

@@ -153,7 +153,7 @@ def _plug_change(client, db, clock, engine, channel, fitted_data):
     plug = fitted(db, "plug", channel, engine)
     job.ok(_event("removed-plug", "part_recorded", part_number=plug.part_number,
                   serial=plug.serial, status="serviceable", reason="robbed", tag="S-0007",
-                  usage={"engine_hours": "812", "starts": "760"}))
+                  usage=fitted_data["usage"]))  # the engine's totals, the same minutes later
     job.walk_to("installed-plug")
     job.ok(_event("installed-plug", "part_recorded", **fitted_data))
     job.walk_to("performer")
@@ -207,7 +207,7 @@ def test_a_serial_fitted_elsewhere_cannot_go_on_and_one_removed_unserviceable_ne
                                  usage=USAGE), "serial_fitted_elsewhere")
     assert "DEMO-101 engine 1, channel B igniter plug" in refused["reason"]
     again = {"part_number": plug.part_number, "serial": plug.serial, "release": "R-2",
-             "usage": USAGE}
+             "usage": {"engine_hours": "1500", "starts": "1410"}}  # as at the removal
     job.refused(_event("installed-plug", "part_recorded", condition="serviceable used",
                        **again), "part_unserviceable")
     job.ok(_event("installed-plug", "part_recorded", condition="overhauled", **again))
