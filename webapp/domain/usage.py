@@ -156,8 +156,11 @@ def check_entry(last: UsageEntry | None, usage: Mapping[str, Any], now: datetime
                           "tablet's clock).", measure=name, entered=usage.get(name),
                           last=last.totals()[name], last_job=last.job_id, last_at=last.at)
     # Rounded to a thousandth, so a tenth's floating-point residue does not tip a bound.
-    rise = {n: round(later[n] - earlier[n], 3) for n in MEASURES
-            if later.get(n) is not None and earlier.get(n) is not None}
+    rise: dict[str, float] = {}
+    for n in MEASURES:
+        up, down = later.get(n), earlier.get(n)
+        if up is not None and down is not None:
+            rise[n] = round(up - down, 3)
     why = None
     if "engine_hours" in rise and rise["engine_hours"] > elapsed_h + HOURS_RESOLUTION:
         why = (f"engine hours rose by {rise['engine_hours']:.1f} but at most {elapsed_h:.1f} "
