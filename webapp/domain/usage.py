@@ -12,7 +12,7 @@ is never taken on trust. The bounds below are plausibility limits, not the appro
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from typing import Any
@@ -22,6 +22,7 @@ from .readings import InputProblem
 
 ENGINE_HOURS = "engine hours"        # the unit name on every screen, axis and record
 SINCE_FITTED = "engine hours since fitted"
+TOTALS = "engine total hours"
 MEASURES = ("engine_hours", "starts", "continuous_ignition_hours")
 MEASURE_NAMES = {"engine_hours": "engine hours", "starts": "starts",
                  "continuous_ignition_hours": "continuous-ignition hours"}
@@ -81,6 +82,17 @@ def _number(name: str, value: float | None) -> str:
 
 def _figure(name: str, value: float | None) -> str:
     return f"{MEASURE_NAMES[name]} {_number(name, value)}"
+
+
+def totals_said(usage: Mapping[str, Any]) -> str:
+    """Usage totals as screens and records print them, each with its unit name."""
+    said = (f"engine totals (from the aircraft's records) {usage.get('engine_hours', 0):g} "
+            f"{ENGINE_HOURS}, {usage.get('starts')} starts")
+    if usage.get("continuous_ignition_hours") is not None:
+        said += f", {usage['continuous_ignition_hours']:g} continuous-ignition hours"
+        if usage.get("continuous_ignition_estimated"):
+            said += " (estimated)"
+    return said
 
 
 def usage_effect(usage: Mapping[str, Any]) -> dict[str, Any]:
@@ -202,3 +214,41 @@ def since_fit(totals: Mapping[str, Any], at_fit: Mapping[str, Any] | None
             return None
         since[name] = now - then
     return since if "engine_hours" in since else None
+
+
+@dataclass(frozen=True)
+class WearBasis:
+    """What a plug's wear is charted and forecast against: usage since its fit where the
+    fit's totals are known and every inspection is of that fit, else the engine's totals,
+    said plainly. `since` holds each inspection's usage since fitted (None: not known)."""
+
+    since_fitted: bool
+    label: str
+    said: str
+    since: tuple[dict[str, float] | None, ...]
+
+    def usage_of(self, index: int, total_hours: float) -> float:
+        found = self.since[index]
+        return found["engine_hours"] if self.since_fitted and found else total_hours
+
+
+def wear_basis(points: Sequence[Mapping[str, Any]], fit: Mapping[str, Any] | None
+               ) -> WearBasis:
+    """Each inspection's usage since the plug's latest fit (`fit`: engine_id and `usage`, the
+    engine's totals at the fit), and whether the chart can use it: only when every
+    inspection is of this fit (same engine, totals at or above the fit's)."""
+    at_fit = (fit or {}).get("usage")
+    since = tuple(since_fit(p, at_fit) if fit and p.get("engine_id") == fit.get("engine_id")
+                  else None for p in points)
+    if at_fit and all(s is not None for s in since):
+        return WearBasis(True, SINCE_FITTED, f"Usage since fitted, from the engine's totals at "
+                         f"the fit ({_figure('engine_hours', at_fit.get('engine_hours'))}, "
+                         f"{_figure('starts', at_fit.get('starts'))}).", since)
+    if not at_fit:
+        why = "The engine's totals when this plug was fitted are not known"
+    else:
+        outside = sum(1 for s in since if s is None)
+        why = (f"{outside} of the inspections are not of this plug's latest fit (another "
+               "engine, or totals below the fit's)")
+    return WearBasis(False, TOTALS, f"{why}: the chart and forecast use the engine's total "
+                     "hours, not hours since fitted.", since)
