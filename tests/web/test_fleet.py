@@ -1,7 +1,7 @@
 """The fleet wear page over the demo station: every plug, the fast one first, charts, roles,
 and a wear reading recorded through a job showing up as a new point.
 
-The plug histories, the 1.20 mm limit and the 200 FH interval are demo data, invented
+The plug histories, the 1.20 mm limit and the 200 engine-hour interval are demo data, invented
 (demo_scenarios/bramblecoast.yaml, tasks/igniter-plug-replacement.yaml).
 """
 
