@@ -70,8 +70,11 @@ def limit_crossing(fit: WearFit | None, limit_mm: float) -> float | None:
 
 def wear_chart_svg(points: Sequence[WearPoint], limit_mm: float, fit: WearFit | None = None,
                    forecast: WearForecast | None = None, title: str = "Igniter plug wear",
-                   usage_label: str = "FH") -> str:
-    """The plug's erosion against usage: gauged points, the limit, the trend to the limit."""
+                   usage_label: str = "engine hours") -> str:
+    """The plug's erosion against usage: gauged points, the limit, the trend to the limit.
+
+    `usage_label` names the x axis in engine hours ("engine hours since fitted", or the
+    engine's totals where the fit is not known); never flight hours."""
     gauged = sorted((p for p in points if p.erosion_mm is not None), key=lambda p: p.usage)
     go_no_go = sorted((p for p in points if p.erosion_mm is None), key=lambda p: p.usage)
     last = max((p.usage for p in points), default=0.0)
@@ -95,7 +98,7 @@ def wear_chart_svg(points: Sequence[WearPoint], limit_mm: float, fit: WearFit | 
     desc = [f"Erosion in mm against {usage_label}: {said or 'no inspections'}.",
             f"Limit {limit_mm:.2f} mm."]
     if fit is not None and not fit.too_few and fit.slope_mm_per_unit is not None:
-        desc.append(f"Theil–Sen trend {fit.slope_mm_per_unit:.5f} mm per {usage_label}"
+        desc.append(f"Theil–Sen trend {fit.slope_mm_per_unit:.5f} mm per engine hour"
                     + (f", reaching the limit at about {crossing:.0f} {usage_label}."
                        if crossing is not None else ", no rise towards the limit."))
     if forecast is not None:
@@ -117,7 +120,7 @@ def wear_chart_svg(points: Sequence[WearPoint], limit_mm: float, fit: WearFit | 
         out += [_line(sx(usage), BOTTOM, sx(usage), BOTTOM + 5),
                 _text(sx(usage), BOTTOM + 19, _tick(usage, x_step), "middle")]
     out += [_line(LEFT, TOP, LEFT, BOTTOM, width=2), _line(LEFT, BOTTOM, RIGHT, BOTTOM, width=2),
-            _text((LEFT + RIGHT) / 2, BOTTOM + 38, f"usage since fitted ({usage_label})",
+            _text((LEFT + RIGHT) / 2, BOTTOM + 38, usage_label,
                   "middle"),
             f'<text x="16" y="{(TOP + BOTTOM) / 2:.1f}" font-size="14" fill="{INK}" '
             f'text-anchor="middle" transform="rotate(-90 16 {(TOP + BOTTOM) / 2:.1f})">'

@@ -35,7 +35,7 @@ def test_chart_is_well_formed_accessible_svg_without_outside_references():
     assert root.tag == SVG + "svg" and root.get("role") == "img"
     assert root.find(SVG + "title").text == "XP-4402 wear"
     desc = root.find(SVG + "desc").text
-    assert "1.02 mm at 790 FH" in desc and "Limit 1.20 mm" in desc
+    assert "1.02 mm at 790 engine hours" in desc and "Limit 1.20 mm" in desc
     assert "replace now" in desc  # the demo plug's verdict (tests/domain/test_wear.py)
     assert "DejaVu Sans" in root.get("font-family")
     for outside in ("<script", "href", "url(", "<image", "@import"):
@@ -81,8 +81,9 @@ def test_trend_is_extrapolated_to_the_limit():
     root = parsed(wear_chart_svg(DEMO, LIMIT, fit=fit))
     lines = {e.get("class"): e for e in root.iter(SVG + "line") if e.get("class")}
     assert float(lines["trend"].get("x1")) == pytest.approx(64 + 520 * 210 / 1000, abs=0.06)
-    # The trend reaches 1.20 mm at (1.20 − intercept) / slope ≈ 925 FH, within twice the last
-    # usage, so the usage axis runs to 1000 and the dashed extension ends on the limit line.
+    # The trend reaches 1.20 mm at (1.20 − intercept) / slope ≈ 925 engine hours, within twice
+    # the last usage, so the usage axis runs to 1000 and the dashed extension ends on the
+    # limit line.
     assert float(lines["extrapolation"].get("y2")) == pytest.approx(76.0, abs=0.06)
     crossing = (LIMIT - fit.intercept_mm) / fit.slope_mm_per_unit
     assert 900 < crossing < 950
@@ -107,4 +108,4 @@ def test_go_no_go_results_sit_on_the_limit_with_their_word():
                                  LIMIT))
     texts = [t.text for t in root.iter(SVG + "text")]
     assert "fail" in texts
-    assert "go/no-go fail at 300 FH" in root.find(SVG + "desc").text
+    assert "go/no-go fail at 300 engine hours" in root.find(SVG + "desc").text

@@ -102,7 +102,8 @@ def test_demo_plug_slope_and_band_match_scipy_and_the_hand_median():
 
 
 def test_demo_plug_at_790_fh_is_replaced_at_this_visit():
-    result = forecast(_points(DEMO_FH, DEMO_EROSION), DEMO_LIMIT, 790.0, DEMO_INTERVAL, unit="FH")
+    result = forecast(_points(DEMO_FH, DEMO_EROSION), DEMO_LIMIT, 790.0, DEMO_INTERVAL,
+                      unit="engine hours")
     # Hand: intercept = median(y) − slope·median(x) = 0.56 − 0.0014589·502.5 = −0.17309 mm;
     # the trend at 790 FH is −0.17309 + 0.0014589·790 = 0.9794 mm, below the 1.02 mm
     # measured, so wear now is the measured 1.02 mm (never forecast less than measured).
@@ -137,7 +138,7 @@ def test_only_the_fast_rate_falling_short_brings_the_inspection_forward():
 
 def test_ordinary_plug_is_ok_to_next_inspection_with_its_margin():
     result = forecast(_points(ORDINARY_FH, ORDINARY_EROSION), DEMO_LIMIT, 800.0, DEMO_INTERVAL,
-                      unit="FH")
+                      unit="engine hours")
     # Hand: every pairwise slope is 0.07/200 = 0.00035 mm/FH, so the band is that too;
     # intercept 0.175 − 0.00035·500 = 0, wear at 800 FH = 0.28 mm;
     # remaining = (1.20 − 0.28)/0.00035 = 2628.57 FH, margin = 2628.57 − 200 = 2428.57 FH.
@@ -147,7 +148,7 @@ def test_ordinary_plug_is_ok_to_next_inspection_with_its_margin():
     assert result.remaining_usage == pytest.approx(0.92 / 0.00035, rel=1e-9)
     assert result.remaining_usage_conservative == pytest.approx(0.92 / 0.00035, rel=1e-9)
     assert result.margin == pytest.approx(2428.571, abs=0.001)
-    assert "margin 2429 FH" in result.reason
+    assert "margin 2429 engine hours" in result.reason
 
 
 def test_the_demo_plug_wears_by_continuous_ignition_hours():
@@ -231,7 +232,7 @@ def test_too_few_gauged_points_are_marked_and_said():
 
 def test_too_few_points_fall_back_to_the_fleet_pooled_rate_and_say_so():
     points = _points([100.0, 300.0], [0.10, 0.20])
-    result = forecast(points, 1.2, 400.0, 200.0, pooled_rate=0.0005, unit="FH")
+    result = forecast(points, 1.2, 400.0, 200.0, pooled_rate=0.0005, unit="engine hours")
     # Hand: from the latest gauged 0.20 mm at 300 FH, 100 FH at 0.0005 mm/FH adds 0.05 mm:
     # wear now 0.25 mm; remaining (1.20 − 0.25)/0.0005 = 1900 FH, margin 1900 − 200 = 1700.
     assert result.rate_source == FLEET_POOLED
@@ -280,11 +281,11 @@ def test_pooled_rate_is_the_median_slope_of_the_fits_with_a_trend():
 
 def test_a_failed_go_no_go_gauge_is_replace_now():
     points = [WearPoint(200.0, None, passed=True), WearPoint(400.0, None, passed=False)]
-    result = forecast(points, 1.2, 400.0, 200.0, unit="FH")
+    result = forecast(points, 1.2, 400.0, 200.0, unit="engine hours")
     assert result.verdict == REPLACE_NOW
     assert result.rate_source == GO_NO_GO
     assert result.remaining_usage_conservative == 0.0
-    assert "failed at 400 FH" in result.reason
+    assert "failed at 400 engine hours" in result.reason
 
 
 def test_passed_go_no_go_results_alone_are_not_a_numeric_fit():

@@ -131,7 +131,8 @@ def test_fleet_wear_page_flags_the_fast_plug_with_its_chart(browser, live_server
     log_in(page, live_server, "mech1", "demo-mech1")
     page.click("text=Fleet wear")
     attention = page.locator("[data-testid^=attention-XP-]").first
-    # Demo data (invented): DEMO-101 engine 1 channel B wore 0.22 → 1.02 mm in 580 FH.
+    # Demo data (invented): DEMO-101 engine 1 channel B wore 0.22 → 1.02 mm in 580 engine
+    # hours.
     expect(attention).to_contain_text("DEMO-101")
     expect(attention).to_contain_text("replace now")
     chart = attention.locator("svg")

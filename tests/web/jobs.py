@@ -85,7 +85,8 @@ class Job:
     def _demo_reading(self, step_id):
         """The demo's in-limits reading for a step (the one the demo jobs record)."""
         state = recording.load_job(self.db, self.id).state
-        return demo_jobs.reading_data(state.step(step_id).step, state)
+        return demo_jobs.reading_data(state.step(step_id).step, state,
+                                      demo_jobs.engine_totals(self.db, self.id))
 
     def step_status(self, step_id):
         return next(s["status"] for s in self.state()["steps"] if s["id"] == step_id)

@@ -88,7 +88,7 @@ def test_the_demo_shows_a_unit_off_for_repair_and_a_deferred_item(demo_jobs, db,
     release = load_job(db, lead).state.completed["certify"]["data"]["release"]
     assert release["limitations"] == [
         f"open item DD-2026-031 (job {lead}): Clamp 4 cushion perished; lead secure in the "
-        "clamp, no chafing (demo); limit 50 FH or 2027-01-31"]
+        "clamp, no chafing (demo); limit 50 engine hours or 2027-01-31"]
     page = login("mech1").get(f"/fleet/engines/{lead_engine}").get_data(as_text=True)
     assert 'data-testid="open-item-DD-2026-031"' in page
     assert job_store.refusals(db, repair) == [] and job_store.refusals(db, lead) == []

@@ -153,7 +153,7 @@ def _plug_change(client, db, clock, engine, channel, fitted_data):
     plug = fitted(db, "plug", channel, engine)
     job.ok(_event("removed-plug", "part_recorded", part_number=plug.part_number,
                   serial=plug.serial, status="serviceable", reason="robbed", tag="S-0007",
-                  usage={"engine_hours": "812", "starts": "760"}))
+                  usage=fitted_data["usage"]))  # the engine's totals, the same minutes later
     job.walk_to("installed-plug")
     job.ok(_event("installed-plug", "part_recorded", **fitted_data))
     job.walk_to("performer")
@@ -179,7 +179,12 @@ def test_a_plug_s_history_follows_its_serial_to_the_next_engine(mechanic, db, cl
     assert "DEMO-101 engine 1" in moves[0] and f"job {first.id}" in moves[0]
     assert "removed serviceable (robbed), tag S-0007" in moves[0]
     assert "DEMO-102 engine 1" in moves[1] and f"job {second.id}" in moves[1]
-    assert "engine at 1500 h, 1410 starts" in moves[1] and "still fitted" in moves[1]
+    # Demo data: the robbed plug was fitted at engine totals 10 h / 9 starts (starting
+    # configuration) and came off at 812 h / 760 starts: 812 − 10 = 802 h, 760 − 9 = 751.
+    assert "engine totals (from the aircraft's records) 10 engine hours, 9 starts" in moves[0]
+    assert "802 engine hours, 751 starts" in moves[0]
+    assert ("engine totals (from the aircraft's records) 1500 engine hours, 1410 starts"
+            in moves[1] and "still fitted" in moves[1])
     # Its wear history went with it: its own plug page keeps the demo gaugings, while the
     # new plug in its old position starts with none.
     robbed_id = fleet_store.component_by_serial(db, robbed.part_number, robbed.serial)["id"]
@@ -188,6 +193,10 @@ def test_a_plug_s_history_follows_its_serial_to_the_next_engine(mechanic, db, cl
     new_page = mechanic.get(f"/fleet/wear/plugs/{new_id}").get_data(as_text=True)
     assert len(re.findall(r'<tr data-testid="point-\d+">', robbed_page)) >= 4
     assert "DEMO-102" in robbed_page
+    # Its gaugings were on DEMO-101's engine: not of its fit on DEMO-102, so the chart says
+    # it falls back to the engine's totals.
+    assert "inspections are not of this plug&#39;s latest fit" in robbed_page
+    assert "engine total hours" in robbed_page
     assert re.findall(r'<tr data-testid="point-\d+">', new_page) == []
     assert "DEMO-101" in new_page
 
@@ -207,7 +216,7 @@ def test_a_serial_fitted_elsewhere_cannot_go_on_and_one_removed_unserviceable_ne
                                  usage=USAGE), "serial_fitted_elsewhere")
     assert "DEMO-101 engine 1, channel B igniter plug" in refused["reason"]
     again = {"part_number": plug.part_number, "serial": plug.serial, "release": "R-2",
-             "usage": USAGE}
+             "usage": {"engine_hours": "1500", "starts": "1410"}}  # as at the removal
     job.refused(_event("installed-plug", "part_recorded", condition="serviceable used",
                        **again), "part_unserviceable")
     job.ok(_event("installed-plug", "part_recorded", condition="overhauled", **again))

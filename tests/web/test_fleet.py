@@ -1,7 +1,7 @@
 """The fleet wear page over the demo station: every plug, the fast one first, charts, roles,
 and a wear reading recorded through a job showing up as a new point.
 
-The plug histories, the 1.20 mm limit and the 200 FH interval are demo data, invented
+The plug histories, the 1.20 mm limit and the 200 engine-hour interval are demo data, invented
 (demo_scenarios/bramblecoast.yaml, tasks/igniter-plug-replacement.yaml).
 """
 
@@ -130,9 +130,10 @@ def test_plug_page_shows_every_point_with_its_source_and_estimate(mechanic, db, 
 def test_a_wear_reading_recorded_on_a_job_adds_a_point(mechanic, db, clock, fast):
     job = Job(mechanic, db, clock, "igniter-plug-replacement", channel="B")
     job.walk_to("erosion")
+    # The engine's totals as the removal step recorded them minutes before (the demo walk's).
     job.ok(_event("erosion", "reading_recorded", value="1.08", unit="mm",
-                  usage={"engine_hours": "850", "starts": "801",
-                         "continuous_ignition_hours": "160",
+                  usage={"engine_hours": "812", "starts": "760",
+                         "continuous_ignition_hours": "150",
                          "continuous_ignition_estimated": True}))
     html = mechanic.get(f"/fleet/wear/plugs/{fast['id']}").get_data(as_text=True)
     rows = re.findall(r'<tr data-testid="point-\d+">(.*?)</tr>', html, re.S)

@@ -25,6 +25,7 @@ from . import (
     supply,
     tag_handover,
     torque,
+    usage,
 )
 from .authorisations import Authorisation
 from .engine import EngineState, check_channels_whole
@@ -135,7 +136,18 @@ def _check_part(state: JobState, step: PartChange, data: Mapping[str, Any],
     if at.engine is None or channel is None:
         raise RuleRefusal("engine_unknown", "A part is recorded against the engine's state "
                           "for one channel; it could not be read.")
-    return evaluate_part(step, data, channel, at.engine, at.allowed_parts, at.whereabouts)
+    return _with_usage_entry(evaluate_part(step, data, channel, at.engine, at.allowed_parts,
+                                           at.whereabouts), at)
+
+
+def _with_usage_entry(stored: dict[str, Any], at: Circumstances) -> dict[str, Any]:
+    """Usage totals the event carries must follow the engine's last entry; accepted, they
+    become its last entry (an effect on the engine)."""
+    if at.engine is None:
+        raise RuleRefusal("engine_unknown", "Usage totals are checked against the engine's "
+                          "last entry; the engine's state could not be read.")
+    usage.check_entry(at.engine.usage, stored["usage"], at.now, at.device_now)
+    return {**stored, "engine": [*stored.get("engine", []), usage.usage_effect(stored["usage"])]}
 
 
 def _plug_at_work(state: JobState) -> dict[str, Any]:
@@ -305,6 +317,7 @@ def _check_completion(state: JobState, target: StepProgress, data: Mapping[str, 
         stored = readings.evaluate_reading(step, data)
         if isinstance(step, Reading) and step.wear:
             stored["plug"] = _plug_at_work(state)
+            return _with_usage_entry(stored, at)
         return stored
     if isinstance(step, Check) and step.items:
         ticked = data.get("items")

@@ -18,6 +18,7 @@ from typing import Any, Literal
 
 from .errors import RuleRefusal
 from .gates import TAG_EVENT_KINDS, ChannelClock, Consent, DutyPeriod, PowerOff, Tag, next_tags
+from .usage import UsageEntry, entry_of, later_entry
 
 PART_KINDS = ("exciter", "lead", "plug")
 CHANNELS = ("A", "B")
@@ -27,7 +28,7 @@ CONNECTION_LABELS = {"input": "low-voltage input disconnected",
                      "lead_at_plug": "high-tension lead disconnected at the plug"}
 RemovalStatus = Literal["unserviceable", "serviceable"]
 # The kept state's layout: a kept value of another format is rebuilt by a replay, never read.
-STATE_FORMAT = 2
+STATE_FORMAT = 3
 
 
 def position_key(kind: str, channel: str) -> str:
@@ -137,6 +138,7 @@ class EngineState:
     open_items: tuple[OpenItem, ...] = ()
     checks_due: tuple[CheckDue, ...] = ()
     tags: Mapping[str, Tag] = field(default_factory=dict)   # lockout tags hanging now
+    usage: UsageEntry | None = None   # the last usage totals entered (readings, part steps)
 
     def position(self, kind: str, channel: str) -> Position:
         return self.positions.get(position_key(kind, channel), Position(kind, channel))
@@ -216,6 +218,8 @@ def _apply_effect(state: EngineState, event: Mapping[str, Any],
                   effect: Mapping[str, Any]) -> EngineState:
     what, channel = effect.get("effect"), str(effect.get("channel") or "")
     at = event["received_at"]
+    if what == "usage":
+        return replace(state, usage=later_entry(state.usage, entry_of(event, effect)))
     if what in ("disturb", "remove", "install") and not any(
             (d.channel, d.job_id) == (channel, event["job_id"]) for d in state.checks_due):
         state = replace(state, checks_due=(*state.checks_due, CheckDue(
@@ -352,6 +356,7 @@ def state_as_data(state: EngineState) -> dict[str, Any]:
         "tags": {n: {**t.__dict__, "confirmed_in": sorted(t.confirmed_in),
                      "consents": [dict(c.__dict__) for c in t.consents]}
                  for n, t in sorted(state.tags.items())},
+        "usage": None if state.usage is None else dict(state.usage.__dict__),
     }
 
 
@@ -370,4 +375,5 @@ def state_of(data: Mapping[str, Any]) -> EngineState:
         checks_due=tuple(CheckDue(**d) for d in data.get("checks_due", ())),
         tags={n: Tag(**{**t, "confirmed_in": frozenset(t["confirmed_in"]),
                         "consents": tuple(Consent(**c) for c in t["consents"])})
-              for n, t in data.get("tags", {}).items()})
+              for n, t in data.get("tags", {}).items()},
+        usage=UsageEntry(**data["usage"]) if data.get("usage") else None)

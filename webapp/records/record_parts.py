@@ -8,9 +8,10 @@ from dataclasses import dataclass
 from typing import Any
 
 from ..charts import wear_chart_svg
-from ..domain import wear
+from ..domain import usage, wear
 from ..domain.execution import JobState
 from ..domain.procedures import PartChange, Reading
+from ..domain.usage import totals_said
 from ..shown import unit_label
 from ..store import Database
 from ..store import wear as wear_store
@@ -20,7 +21,6 @@ COMPONENT_WORDS = {"exciter": "Ignition exciter", "lead": "High-tension lead",
                    "plug": "Igniter plug"}
 # Text readings that name a part: their values belong in the parts section as well.
 _PART_READING = re.compile(r"serial|part-number|release")
-USAGE_LABEL = "FH"  # plug wear is tracked against engine hours, as on the fleet pages
 
 
 @dataclass(frozen=True)
@@ -40,6 +40,7 @@ class WearChart:
     limit: str
     points: int
     trend: str
+    basis: str = ""   # what the chart's usage is reckoned from
 
 
 def tool_entries(state: JobState, numbers: Mapping[str, int], who: People) -> list[Entry]:
@@ -63,11 +64,7 @@ def tool_entries(state: JobState, numbers: Mapping[str, int], who: People) -> li
 def _part_text(r: Mapping[str, Any]) -> str:
     """A part step's fields as the record prints them (every field, none left out)."""
     usage = r.get("usage") or {}
-    used = "engine usage not recorded"
-    if usage:
-        used = f"engine at {usage['engine_hours']:g} h, {usage['starts']} starts"
-        if "continuous_ignition_hours" in usage:
-            used += f", {usage['continuous_ignition_hours']:g} h continuous ignition"
+    used = totals_said(usage) if usage else "engine usage not recorded"
     if r.get("action") == "remove":
         text = (f"REMOVED from channel {r['channel']}: P/N {r['part_number']}, S/N {r['serial']}"
                 f"; {'unserviceable' if r['status'] == 'unserviceable' else 'removed serviceable'}"
@@ -119,15 +116,19 @@ def wear_charts(db: Database, row: Mapping[str, Any], state: JobState) -> list[W
                      "passed": None, "continuous_ignition_estimated": False}
                     for x in state.readings if isinstance(x.get("plug"), Mapping)
                     and x["plug"].get("id") == plug["id"] and isinstance(x.get("usage"), Mapping)]
-        points = [wear.WearPoint(usage=float(p["engine_hours"]), erosion_mm=p["erosion_mm"],
-                                 passed=p["passed"], estimated=p["continuous_ignition_estimated"])
-                  for p in rows if p["engine_hours"] is not None]
+        rows = [p for p in rows if p["engine_hours"] is not None]
+        # Against engine hours since the plug's fit where known, as on the fleet pages.
+        basis = usage.wear_basis(rows, (history or {}).get("fit"))
+        points = [wear.WearPoint(usage=basis.usage_of(i, float(p["engine_hours"])),
+                                 erosion_mm=p["erosion_mm"], passed=p["passed"],
+                                 estimated=p["continuous_ignition_estimated"])
+                  for i, p in enumerate(rows)]
         fit = wear.wear_rate(points)
         title = f"Igniter plug wear · {plug.get('part_number')} S/N {plug.get('serial')}"
         where = (f"{row['registration']} engine {row['position']} channel {plug.get('channel')}")
         limit = step.limits.max
         charts.append(WearChart(title, where, wear_chart_svg(points, limit,
                                                       fit=None if fit.too_few else fit,
-                                                      title=title, usage_label=USAGE_LABEL),
-                                f"{limit:.2f} mm", len(points), fit.reason))
+                                                      title=title, usage_label=basis.label),
+                                f"{limit:.2f} mm", len(points), fit.reason, basis.said))
     return charts

@@ -10,6 +10,7 @@ from ..domain.exciter_rows import limits_for
 from ..domain.execution import JobState, StepProgress
 from ..domain.procedures import EXCITER_MODES, Check, Lockout, Reading, SparkCount, Step, Torque
 from ..domain.readings import VERDICT_SYMBOL
+from ..domain.usage import totals_said
 from ..shown import limits_text, unit_label
 from .record_entries import People, Who, station_time, step_of
 
@@ -223,9 +224,7 @@ def _conditions(r: Mapping[str, Any]) -> list[str]:
             said.append(f"{name.replace('_', ' ')} {c['value']:g} {unit_label(c.get('unit'))}")
     usage = r.get("usage")
     if isinstance(usage, Mapping):
-        said.append(f"at {usage.get('engine_hours', 0):g} FH, {usage.get('starts')} starts, "
-                    f"{usage.get('continuous_ignition_hours', 0):g} h continuous ignition"
-                    + (" (estimated)" if usage.get("continuous_ignition_estimated") else ""))
+        said.append(totals_said(usage))
     if isinstance(r.get("plug"), Mapping):
         said.append(f"plug {r['plug'].get('part_number')} S/N {r['plug'].get('serial')}")
     if r.get("wrench_id"):

@@ -52,9 +52,11 @@ class WalkRefused(RuntimeError):
     """The station refused an entry of the walk: the demo data and the procedure disagree."""
 
 
-def reading_data(step: Reading | Torque, state: JobState | None = None) -> dict[str, Any]:
+def reading_data(step: Reading | Torque, state: JobState | None = None,
+                 usage: Mapping[str, Any] | None = None) -> dict[str, Any]:
     """A demo reading inside the step's limits, in the step's own unit (for a torque step
-    that names its fasteners, the first one `state` has not yet accepted)."""
+    that names its fasteners, the first one `state` has not yet accepted; for a wear
+    reading, the engine's totals `usage`)."""
     if isinstance(step, Reading) and step.value == "text":
         return {"text": "XEX-1001-03 / XE-9001 (demo)"}
     if isinstance(step, Reading) and step.value == "pass_fail":
@@ -75,11 +77,22 @@ def reading_data(step: Reading | Torque, state: JobState | None = None) -> dict[
                            {"value": "1000", "unit": "V"} if condition == "test_voltage" else
                            {"value": "18", "unit": "degC"})
     if step.wear:
-        data["usage"] = {"engine_hours": 812, "starts": 760, "continuous_ignition_hours": 150}
+        data["usage"] = {**DEMO_USAGE, **(usage or {})}
     return data
 
 
+# The engine's totals a demo walk enters (engine hours, starts, continuous-ignition hours),
+# invented; on an engine with an entry already, the walk enters that engine's last totals.
 DEMO_USAGE = {"engine_hours": 812, "starts": 760, "continuous_ignition_hours": 150}
+
+
+def engine_totals(db: store.Database, job_id: int) -> dict[str, Any]:
+    """The totals a demo entry gives: the engine's last entry (the same minutes later), else
+    the demo's starting figures."""
+    last = engines.current(db, recording.load_job(db, job_id).row["engine_id"]).usage
+    if last is None:
+        return dict(DEMO_USAGE)
+    return {k: v for k, v in last.totals().items() if v is not None}
 
 
 def part_data(db: store.Database, job_id: int, step: PartChange) -> dict[str, Any]:
@@ -92,12 +105,12 @@ def part_data(db: store.Database, job_id: int, step: PartChange) -> dict[str, An
         assert fitted is not None, f"nothing fitted as the {step.part} on channel {channel}"
         return {"part_number": fitted.part_number, "serial": fitted.serial,
                 "status": "unserviceable", "reason": "failed", "tag": f"U-{job_id:04d}",
-                "usage": DEMO_USAGE}
+                "usage": engine_totals(db, job_id)}
     allowed = next(a for a in engines.allowed_parts(db, engine_id)
                    if a.fits(step.part, channel))
     return {"part_number": allowed.part_number, "serial": f"N{job_id:03d}-{step.part[:2].upper()}"
             f"{channel}", "release": f"DEMO-REL-{job_id:04d}", "condition": "new",
-            "usage": DEMO_USAGE}
+            "usage": engine_totals(db, job_id)}
 
 
 def demo_supply(db: store.Database, job_id: int) -> dict[str, str]:
@@ -153,7 +166,8 @@ def walk(db: store.Database, job_id: int, *, by: Person, now: datetime,
             record("finding", step.id, {**deferral, "disposition": "deferred"})
         elif isinstance(step, (Reading, Torque)):
             record("reading_recorded", step.id,
-                   reading_data(step, recording.load_job(db, job_id).state))
+                   reading_data(step, recording.load_job(db, job_id).state,
+                                engine_totals(db, job_id)))
         elif isinstance(step, PartChange):
             record("part_recorded", step.id, part_data(db, job_id, step))
         elif isinstance(step, IgnitionRun):

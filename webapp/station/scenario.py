@@ -67,9 +67,18 @@ class WearReading(_Strict):
     erosion_mm: float
 
 
+class FitUsage(_Strict):
+    """The engine's totals when a plug was fitted (from the aircraft's records)."""
+
+    engine_hours: float = Field(ge=0)
+    starts: int = Field(ge=0)
+    continuous_ignition_hours: float = Field(ge=0)
+
+
 class PlugHistory(_Strict):
     engine: str
     channel: Literal["A", "B"]
+    fitted_usage: FitUsage | None = None   # None: the fit's totals are not known
     readings: list[WearReading]
 
 
@@ -77,6 +86,7 @@ class OrdinaryWear(_Strict):
     mm_per_100_hours: float
     inspection_hours: list[float]
     continuous_ignition_estimated: bool
+    fitted_usage: FitUsage | None = None
 
 
 class Operator(_Strict):
@@ -162,14 +172,18 @@ def load_scenario(db: store.Database, scenario: Scenario, now: datetime,
                                        f"XL-{serial_number}", "ht-lead"),
                               "plug": (aircraft.plug.part_number, f"XP-{serial_number}",
                                        aircraft.plug.type)}
+                    history = explicit.get((e.serial, channel))
+                    at_fit = (history.fitted_usage if history is not None
+                              else scenario.ordinary_wear.fitted_usage)
                     ids = {}
                     for kind, (part_number, serial, type_) in fitted.items():
                         ids[kind] = fleet.add_component(db, kind=kind, part_number=part_number,
                                                         serial=serial, type=type_,
                                                         engine_id=engine_id, channel=channel)
-                        engines.set_starting_part(db, engine_id, kind, channel, ids[kind])
+                        engines.set_starting_part(
+                            db, engine_id, kind, channel, ids[kind],
+                            at_fit.model_dump() if kind == "plug" and at_fit else None)
                     plug_id = ids["plug"]
-                    history = explicit.get((e.serial, channel))
                     readings = (history.readings if history is not None
                                 else _ordinary_wear(scenario.ordinary_wear, rng, now.date()))
                     for r in readings:

@@ -34,10 +34,13 @@ from . import new_row_id
 
 
 def set_starting_part(db: Database, engine_id: int, kind: str, channel: str,
-                      component_id: int) -> None:
-    """Part of the fleet's starting configuration (the fleet loader's, before any job)."""
+                      component_id: int, fitted_usage: Mapping[str, Any] | None = None) -> None:
+    """Part of the fleet's starting configuration (the fleet loader's, before any job), with
+    the engine's totals when it was fitted where the fleet's records give them."""
     db.table("installed_at_start").upsert({"engine_id": engine_id, "kind": kind,
-                                           "channel": channel, "component_id": component_id},
+                                           "channel": channel, "component_id": component_id,
+                                           "fitted_usage": json.dumps(fitted_usage)
+                                           if fitted_usage else None},
                                           pk=("engine_id", "kind", "channel"))
 
 
@@ -194,10 +197,47 @@ def whereabouts(db: Database, kind: str, serial: str) -> Whereabouts:
 
 
 def part_history(db: Database, component_id: int) -> list[dict[str, Any]]:
-    """Where and when a serial was fitted and removed, with the engine's usage at each end."""
-    rows = db.query(
+    """Where and when a serial was fitted and removed, with the engine's usage at each end.
+
+    A serial of the fleet's starting configuration has its first fitting from there (no
+    job; the engine's totals at the fit where the fleet's records give them), listed even
+    while it is still fitted."""
+    rows = [{**r, "fitted_usage": json.loads(r["fitted_usage"] or "null"),
+             "removed_usage": json.loads(r["removed_usage"] or "null")} for r in db.query(
         "select m.*, a.registration, e.position, e.serial as engine_serial from part_moves m "
         "join engines e on e.id = m.engine_id join aircraft a on a.id = e.aircraft_id "
-        "where m.component_id = ? order by m.id", [component_id])
-    return [{**r, "fitted_usage": json.loads(r["fitted_usage"] or "null"),
-             "removed_usage": json.loads(r["removed_usage"] or "null")} for r in rows]
+        "where m.component_id = ? order by m.id", [component_id])]
+    start = starting_fit(db, component_id)
+    if start is not None:
+        first = next((r for r in rows if r["fitted_job"] is None
+                      and r["engine_id"] == start["engine_id"]), None)
+        if first is None:
+            rows.insert(0, {**start, "fitted_job": None, "fitted_at": None, "removed_job": None,
+                            "removed_at": None, "removed_usage": None})
+        elif not first["fitted_usage"]:
+            first["fitted_usage"] = start["fitted_usage"]
+    return rows
+
+
+def starting_fit(db: Database, component_id: int) -> dict[str, Any] | None:
+    """Where the starting configuration had a serial fitted, and the engine's totals then."""
+    rows = list(db.query(
+        "select s.engine_id, s.kind, s.channel, s.fitted_usage, a.registration, e.position, "
+        "e.serial as engine_serial from installed_at_start s join engines e on e.id = "
+        "s.engine_id join aircraft a on a.id = e.aircraft_id where s.component_id = ?",
+        [component_id]))
+    if not rows:
+        return None
+    return {**rows[0], "fitted_usage": json.loads(rows[0]["fitted_usage"] or "null")}
+
+
+def latest_fit(db: Database, component_id: int) -> dict[str, Any] | None:
+    """The serial's latest fitting (by a job, else the starting configuration): the engine,
+    when, by which job, and the engine's totals then (None where not recorded)."""
+    moves = part_history(db, component_id)
+    if not moves:
+        return None
+    last = moves[-1]
+    return {"engine_id": last["engine_id"], "job": last["fitted_job"], "at": last["fitted_at"],
+            "usage": last["fitted_usage"], "registration": last["registration"],
+            "position": last["position"], "channel": last["channel"]}

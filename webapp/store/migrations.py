@@ -165,3 +165,11 @@ def job_progress(db: Database) -> None:
     db.table("jobs").add_column("progress", str)
     db.execute("update jobs set progress = case status when 'open' then 'in work' "
                "else 'closed' end")
+
+
+@MIGRATIONS(name="0007_usage_at_start")
+def usage_at_start(db: Database) -> None:
+    # The engine's totals (engine hours, starts, continuous-ignition hours, JSON) when a part
+    # of the starting configuration was fitted, where the fleet's records give them: a
+    # plug's usage since fitted is reckoned from them until a job fits another.
+    db.table("installed_at_start").add_column("fitted_usage", str)

@@ -7,6 +7,8 @@ from typing import Any
 
 from sqlite_utils import Database
 
+from .engines import latest_fit
+
 # A plug where it is fitted now, or (removed) where it was last fitted: its history follows
 # the serial, wherever it goes.
 _PLUGS = (
@@ -24,7 +26,7 @@ _PLUGS = (
 _POINTS = (
     "select component_id, measured_on, erosion_mm, null as result, engine_hours, starts, "
     "continuous_ignition_hours, continuous_ignition_estimated, source, null as job_id, "
-    "null as verdict, null as value, null as unit from plug_wear_history "
+    "null as verdict, null as value, null as unit, engine_id from plug_wear_history "
     "union all "
     "select json_extract(data, '$.plug.id'), substr(received_at, 1, 10), "
     "json_extract(data, '$.converted'), json_extract(data, '$.result'), "
@@ -32,7 +34,8 @@ _POINTS = (
     "json_extract(data, '$.usage.continuous_ignition_hours'), "
     "json_extract(data, '$.usage.continuous_ignition_estimated'), 'job ' || job_id, job_id, "
     "json_extract(data, '$.verdict'), json_extract(data, '$.value'), "
-    "json_extract(data, '$.unit') from events "
+    "json_extract(data, '$.unit'), (select engine_id from jobs where jobs.id = job_id) "
+    "from events "
     "where kind = 'reading_recorded' and json_extract(data, '$.plug.id') is not null")
 
 
@@ -52,6 +55,8 @@ def _histories(db: Database, where: str, params: Sequence[Any]) -> list[dict]:
                     f"order by component_id, engine_hours, measured_on", list(plugs))
     for row in rows:
         plugs[row["component_id"]]["points"].append(_point(row))
+    for plug in plugs.values():
+        plug["fit"] = latest_fit(db, plug["component_id"])
     return list(plugs.values())
 
 
@@ -59,9 +64,10 @@ def plug_histories(db: Database) -> list[dict]:
     """Every installed plug with where it sits and its inspections, ordered by engine hours.
 
     Each plug: component_id, part_number, serial, type, channel, engine_id,
-    engine_serial, position, engine_model, aircraft_id, registration, and `points`
+    engine_serial, position, engine_model, aircraft_id, registration, `points`
     (measured_on, erosion_mm, passed, engine_hours, starts, continuous_ignition_hours,
-    continuous_ignition_estimated, source, job_id, verdict, value, unit).
+    continuous_ignition_estimated, source, job_id, verdict, value, unit, engine_id: the
+    engine's totals when gauged) and `fit` (its latest fitting, `engines.latest_fit`).
     """
     return _histories(db, "and c.engine_id is not null", [])
 

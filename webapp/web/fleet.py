@@ -10,7 +10,7 @@ from flask import Blueprint, abort, current_app, render_template
 from flask.blueprints import BlueprintSetupState
 
 from ..charts import wear_chart_svg
-from ..domain import wear
+from ..domain import usage, wear
 from ..domain.errors import RuleRefusal
 from ..domain.parts import time_fitted
 from ..domain.procedure_files import procedure_of_revision
@@ -25,7 +25,9 @@ bp = Blueprint("fleet", __name__)
 PLUG_PROCEDURE = "igniter-plug-replacement"
 # Jobs whose number readings say something about the exciter of their channel.
 EXCITER_READING_PROCEDURES = ("exciter-installation", "ignition-functional-check")
-USAGE_LABEL = "FH"  # the usage measure is engine hours: the inspection interval is set in them
+# Plug wear is tracked in engine hours (the engine's running time, not flight hours): the
+# inspection interval is set in them.
+USAGE_LABEL = usage.ENGINE_HOURS
 DEFAULT_LIMIT_MM = 1.20       # demo data, invented (the demo plug procedure's limit)
 DEFAULT_INTERVAL_FH = 200.0   # demo data, invented
 URGENCY = {wear.REPLACE_NOW: 0, wear.BRING_FORWARD: 1, wear.OK: 2, wear.NOT_ENOUGH: 3}
@@ -53,6 +55,7 @@ class PlugWear:
     fit: wear.WearFit
     forecast: wear.WearForecast
     svg: str
+    basis: usage.WearBasis
 
     @property
     def last(self) -> dict[str, Any] | None:
@@ -81,10 +84,17 @@ def erosion_limit() -> Limit:
                  "the station's fallback: no approved plug procedure gives a wear limit")
 
 
-def _points(plug: dict[str, Any]) -> list[wear.WearPoint]:
-    return [wear.WearPoint(usage=float(p["engine_hours"]), erosion_mm=p["erosion_mm"],
-                           passed=p["passed"], estimated=p["continuous_ignition_estimated"])
-            for p in plug["points"] if p["engine_hours"] is not None]
+def _points(plug: dict[str, Any]) -> tuple[list[wear.WearPoint], usage.WearBasis]:
+    """The plug's inspections as wear points, in engine hours since fitted where the fit is
+    known (else the engine's totals), and that basis."""
+    rows = [p for p in plug["points"] if p["engine_hours"] is not None]
+    basis = usage.wear_basis(rows, plug.get("fit"))
+    for p, since in zip(rows, basis.since, strict=True):
+        p["since_fit"] = since   # for the history table
+    return [wear.WearPoint(usage=basis.usage_of(i, float(p["engine_hours"])),
+                           erosion_mm=p["erosion_mm"], passed=p["passed"],
+                           estimated=p["continuous_ignition_estimated"])
+            for i, p in enumerate(rows)], basis
 
 
 def _title(plug: dict[str, Any]) -> str:
@@ -95,11 +105,11 @@ def _title(plug: dict[str, Any]) -> str:
 def assess(plugs: list[dict[str, Any]], limit: Limit, interval: float) -> list[PlugWear]:
     """Each plug's trend and verdict (the fleet pooled rate where its own history is short),
     most urgent first: replace now, bring inspection forward, then by margin."""
-    histories = [(plug, _points(plug)) for plug in plugs]
-    fits = [wear.wear_rate(points) for _plug, points in histories]
+    histories = [(plug, *_points(plug)) for plug in plugs]
+    fits = [wear.wear_rate(points) for _plug, points, _basis in histories]
     pooled = wear.pooled_rate(fits)
     assessed = []
-    for (plug, points), fit in zip(histories, fits, strict=True):
+    for (plug, points, basis), fit in zip(histories, fits, strict=True):
         usage_now = max((p.usage for p in points), default=0.0)
         try:
             outlook = wear.forecast(points, limit.mm, usage_now, interval, pooled,
@@ -108,8 +118,8 @@ def assess(plugs: list[dict[str, Any]], limit: Limit, interval: float) -> list[P
             outlook = wear.WearForecast(wear.NOT_ENOUGH, wear.SYMBOLS[wear.NOT_ENOUGH], None,
                                         None, None, None, wear.NO_RATE, refusal.reason)
         svg = wear_chart_svg(points, limit.mm, fit=None if fit.too_few else fit,
-                             forecast=outlook, title=_title(plug), usage_label=USAGE_LABEL)
-        assessed.append(PlugWear(plug, points, fit, outlook, svg))
+                             forecast=outlook, title=_title(plug), usage_label=basis.label)
+        assessed.append(PlugWear(plug, points, fit, outlook, svg, basis))
 
     def urgency(p: PlugWear) -> tuple[int, float, str]:
         margin = p.forecast.margin
@@ -162,12 +172,18 @@ def part(part_number: str, serial: str) -> Any:
         abort(404)
     moves = [{**m, "span": time_fitted(m["fitted_usage"], m["removed_usage"])}
              for m in engines.part_history(db(), component["id"])]
+    if moves and moves[-1]["removed_job"] is None and component["engine_id"] is not None:
+        # Still fitted: its usage so far runs to the engine's last entry of totals.
+        last = engines.current(db(), component["engine_id"]).usage
+        if last is not None:
+            moves[-1]["span"] = usage.since_fit(last.totals(), moves[-1]["fitted_usage"])
+            moves[-1]["span_to"] = last.said()
     where = engines.whereabouts(db(), component["kind"], serial)
     return render_template("fleet/part.html", component=component, moves=moves,
                            where=where)
 
 
-MEASURE_LABELS = {"engine_hours": ("engine hours", 100, "per 100 FH"),
+MEASURE_LABELS = {"engine_hours": ("engine hours", 100, "per 100 engine hours"),
                   "starts": ("starts", 100, "per 100 starts"),
                   "continuous_ignition_hours": ("continuous-ignition hours", 10,
                                                 "per 10 h of continuous ignition")}
