@@ -447,9 +447,11 @@ def _removal_at_discharge(disconnected_at_s: float = 100,
 def test_removal_steps_stand_in_the_order_energy_control_requires():
     # 29 CFR 1910.147(d)(2) shutdown → (d)(3)-(4) isolate and tag → (d)(5) relieve stored
     # energy → then the work.
+    # → (d)(6) isolation verified.
     ids = [s.id for s in REMOVAL.steps]
     assert ids.index("selectors-off") < ids.index("breakers") < ids.index("disconnect-input") \
-        < ids.index("discharge") < ids.index("disconnect-leads")
+        < ids.index("discharge") < ids.index("verify-isolation") \
+        < ids.index("disconnect-leads")
 
 
 def test_the_input_cannot_be_disconnected_nor_the_wait_done_before_the_lockout():
@@ -540,7 +542,8 @@ def test_after_a_reconnection_the_wait_restarts_from_the_new_disconnection():
     assert refusal.rule == "discharge_wait"
     assert refusal.details["seconds_remaining"] == 1
     job.done("discharge", at_s=1120)
-    assert job.state.next_step.id == "ground-lead"
+    # The isolation is verified again after the new wait (29 CFR 1910.147(d)(6)).
+    assert job.state.next_step.id == "verify-isolation"
 
 
 def test_reconnecting_is_refused_when_the_input_is_not_disconnected():
