@@ -17,6 +17,7 @@ for the demo only (the QT-610 engine and its data are fictional).
 
 from __future__ import annotations
 
+import itertools
 import math
 from datetime import UTC, datetime, timedelta
 from pathlib import Path
@@ -59,6 +60,9 @@ JOB = 11          # this job
 OTHER_JOB = 12    # another job on the same engine
 
 
+_EVENT_NUMBERS = itertools.count(1)
+
+
 def _t(seconds: float) -> datetime:
     return T0 + timedelta(seconds=seconds)
 
@@ -66,7 +70,8 @@ def _t(seconds: float) -> datetime:
 def _event(kind: str, step_id: str | None = None, data: dict[str, Any] | None = None, *,
            at_s: float = 0.0, person: int = MECH, job: int = JOB,
            device_time: datetime | None = None) -> dict[str, Any]:
-    return {"kind": kind, "step_id": step_id, "data": {} if data is None else data,
+    return {"id": f"e-{next(_EVENT_NUMBERS)}", "kind": kind, "step_id": step_id,
+            "data": {} if data is None else data,
             "person_id": person, "job_id": job, "received_at": _t(at_s).isoformat(),
             "device_time": device_time.isoformat() if device_time else None}
 

@@ -280,6 +280,7 @@ def _check_in_step(state: JobState, step: Step, kind: str, data: Mapping[str, An
     if step.id not in state.awaiting_finding:
         raise RuleRefusal("no_reading_to_disposition", "A finding goes with an out-of-limits "
                           "reading; this step has none waiting.")
+    isolation.finding_allowed(step, data)
     return readings.evaluate_finding(data)
 
 
