@@ -17,6 +17,7 @@ for the demo only (the QT-610 engine and its data are fictional).
 
 from __future__ import annotations
 
+import itertools
 import math
 from datetime import UTC, datetime, timedelta
 from pathlib import Path
@@ -59,6 +60,9 @@ JOB = 11          # this job
 OTHER_JOB = 12    # another job on the same engine
 
 
+_EVENT_NUMBERS = itertools.count(1)
+
+
 def _t(seconds: float) -> datetime:
     return T0 + timedelta(seconds=seconds)
 
@@ -66,7 +70,8 @@ def _t(seconds: float) -> datetime:
 def _event(kind: str, step_id: str | None = None, data: dict[str, Any] | None = None, *,
            at_s: float = 0.0, person: int = MECH, job: int = JOB,
            device_time: datetime | None = None) -> dict[str, Any]:
-    return {"kind": kind, "step_id": step_id, "data": {} if data is None else data,
+    return {"id": f"e-{next(_EVENT_NUMBERS)}", "kind": kind, "step_id": step_id,
+            "data": {} if data is None else data,
             "person_id": person, "job_id": job, "received_at": _t(at_s).isoformat(),
             "device_time": device_time.isoformat() if device_time else None}
 
@@ -447,9 +452,11 @@ def _removal_at_discharge(disconnected_at_s: float = 100,
 def test_removal_steps_stand_in_the_order_energy_control_requires():
     # 29 CFR 1910.147(d)(2) shutdown → (d)(3)-(4) isolate and tag → (d)(5) relieve stored
     # energy → then the work.
+    # → (d)(6) isolation verified.
     ids = [s.id for s in REMOVAL.steps]
     assert ids.index("selectors-off") < ids.index("breakers") < ids.index("disconnect-input") \
-        < ids.index("discharge") < ids.index("disconnect-leads")
+        < ids.index("discharge") < ids.index("verify-isolation") \
+        < ids.index("disconnect-leads")
 
 
 def test_the_input_cannot_be_disconnected_nor_the_wait_done_before_the_lockout():
@@ -540,7 +547,8 @@ def test_after_a_reconnection_the_wait_restarts_from_the_new_disconnection():
     assert refusal.rule == "discharge_wait"
     assert refusal.details["seconds_remaining"] == 1
     job.done("discharge", at_s=1120)
-    assert job.state.next_step.id == "ground-lead"
+    # The isolation is verified again after the new wait (29 CFR 1910.147(d)(6)).
+    assert job.state.next_step.id == "verify-isolation"
 
 
 def test_reconnecting_is_refused_when_the_input_is_not_disconnected():

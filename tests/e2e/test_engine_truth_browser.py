@@ -52,7 +52,7 @@ def test_remove_refuse_install_release_and_every_page_agrees(browser, live_serve
     expect(page.get_by_test_id("fitted-serial")).to_have_text(removed.serial)
     _audit(page, "part removal step")
     fill_part(page, removed.part_number, removed.serial, removed=True, tag_or_release="U-0042")
-    expect(step).to_have_attribute("data-step-id", "performer")
+    expect(step).to_have_attribute("data-step-id", "tool-count")   # the close-up count
     page.goto(f"{live_server}/fleet/engines/{DEMO_101_ENGINE_1}")
     expect(page.get_by_test_id("position-exciter-A")).to_contain_text("Empty")
     expect(page.get_by_test_id("position-exciter-A")).to_contain_text(

@@ -90,10 +90,15 @@ def test_torque_in_lbf_in_shows_n_m(browser, live_server, station_api, station_c
         page.fill(f"[data-testid=tag-number-{breaker}]", tag)
         tap(page, f"[data-testid=tag-{breaker}]")
     tap(page, "[data-testid=done]")
+    expect(step).to_have_attribute("data-step-id", "verify-isolation")
+    page.fill("[data-testid=reading-value]", "0.01")   # volts at the input pins: dead
+    tap(page, "[data-testid=record-reading]")
+    tap(page, "[data-testid=acknowledge]")              # WARNING ground the new unit
+    expect(step).to_have_attribute("data-step-id", "ground-new-unit")
+    tap(page, "[data-testid=done]")
     fill_part(page, "XEX-1001-03", "XE-9911", removed=False, tag_or_release="REL-2026-0442")
     tap(page, "[data-testid=acknowledge]")
     tap(page, "[data-testid=done]")
-    tap(page, "[data-testid=acknowledge]")
     tap(page, "[data-testid=done]")
     expect(step).to_have_attribute("data-step-kind", "torque")
     _audit(page, "torque on a phone")

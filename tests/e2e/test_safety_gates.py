@@ -75,7 +75,63 @@ def test_discharge_wait_counts_down_and_cannot_be_cut_short(browser, live_server
     page.clock.fast_forward("01:31")
     expect(done).to_be_enabled()
     done.click()
-    expect(step).to_have_attribute("data-step-id", "ground-lead")
+    # 29 CFR 1910.147(d)(6): the isolation is verified before the work starts.
+    expect(step).to_have_attribute("data-step-id", "verify-isolation")
+    context.close()
+
+
+def test_isolation_check_then_grounding_again_after_a_pause(browser, live_server,
+                                                           station_clock):
+    context = browser.new_context(viewport={"width": 1024, "height": 768})
+    page = context.new_page()
+    start = datetime.now(UTC)
+    page.clock.install(time=start)
+    page.clock.pause_at(start + timedelta(seconds=1))
+    step = _walk_to_discharge_wait(page, live_server)
+    station_clock.advance(121)
+    page.clock.fast_forward("02:01")
+    tap(page, "[data-testid=done]")
+    expect(step).to_have_attribute("data-step-id", "verify-isolation")
+
+    # Voltage present (a breaker not isolating the 28 V bus, demo): out of limits, a finding
+    # is needed and the finding offers no deferral.
+    page.fill("[data-testid=reading-value]", "27.6")
+    tap(page, "[data-testid=record-reading]")
+    expect(page.get_by_test_id("finding-needed")).to_be_visible()
+    expect(page.get_by_test_id("disposition-deferred")).to_have_count(0)
+    page.fill("[data-testid=finding-text]", "27.6 V at pin A: channel A breaker not the "
+              "one tagged; the right one opened and tagged (demo)")
+    page.check("[data-testid=disposition-repaired]")
+    tap(page, "[data-testid=record-finding]")
+    expect(page.get_by_test_id("finding-needed")).to_have_count(0)
+    expect(step).to_have_attribute("data-step-id", "verify-isolation")
+    page.fill("[data-testid=reading-value]", "0.02")
+    tap(page, "[data-testid=record-reading]")
+    expect(step).to_have_attribute("data-step-id", "disconnect-leads")
+    tap(page, "[data-testid=done]")
+    for _ in range(2):                            # WARNING ground, CAUTION cap
+        tap(page, "[data-testid=acknowledge]")
+    expect(step).to_have_attribute("data-step-id", "ground-terminals")
+    tap(page, "[data-testid=done]")
+    expect(page.get_by_test_id("grounded-at")).to_contain_text("Lead last grounded")
+    tap(page, "[data-testid=acknowledge]")        # WARNING sealed unit
+    expect(step).to_have_attribute("data-step-id", "remove-unit")
+
+    # A pause longer than the window: the screen asks for grounding again, the station
+    # refuses the handling step until it is recorded.
+    station_clock.advance(16 * 60)   # past the 15 min window (common practice, no source)
+    page.reload()
+    expect(page.get_by_test_id("grounding-due")).to_contain_text("Ground the lead again")
+    tap(page, "[data-testid=done]")
+    expect(page.get_by_test_id("refusal")).to_contain_text("last grounded")
+    expect(step).to_have_attribute("data-step-id", "remove-unit")
+    tap(page, "[data-testid=lead-grounded]")
+    expect(page.get_by_test_id("grounding-due")).to_have_count(0)
+    expect(page.get_by_test_id("grounded-at")).to_contain_text("0:00 ago")
+    ARTIFACTS.mkdir(exist_ok=True)
+    page.screenshot(path=str(ARTIFACTS / "grounding-again.png"), full_page=True)
+    tap(page, "[data-testid=done]")
+    expect(step).to_have_attribute("data-step-id", "removed-exciter")
     context.close()
 
 

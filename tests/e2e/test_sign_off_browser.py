@@ -106,6 +106,11 @@ def test_sign_return_sign_again_certify_and_download_the_record(browser, live_se
     tap(mech1, "[data-testid=done]")
     expect(step).to_have_attribute("data-step-id", "check-fuel")
     tap(mech1, "[data-testid=done]")
+    # The tool and foreign-object count before the cowls close: every item ticked.
+    expect(step).to_have_attribute("data-step-id", "tool-count")
+    for index in range(3):
+        mech1.check(f"[data-testid=item-{index}]")
+    tap(mech1, "[data-testid=done]")
     expect(step).to_have_attribute("data-step-id", "sign-selector")
     expect(mech1.get_by_test_id("sign-block")).to_contain_text(NAMES["mech1"])
     expect(mech1.get_by_test_id("sign-block")).to_contain_text("Meaning: Performed")

@@ -42,7 +42,9 @@ def test_no_later_step_before_the_lockout(removal):
     removal.walk_to("breakers")
     removal.refused(_event("disconnect-input"), "out_of_order")
     removal.refused(_event("discharge"), "out_of_order")
-    removal.refused(_event("disconnect-leads"), "out_of_order")
+    # Work on a connection says why it is dangerous: the isolation is not verified
+    # (29 CFR 1910.147(d)(6)), before the order of steps is even asked about.
+    removal.refused(_event("disconnect-leads"), "isolation_not_verified")
 
 
 def test_a_second_job_on_the_engine_sees_the_tags_and_whose(removal, login, db, clock):
@@ -98,8 +100,10 @@ def test_reconnect_without_a_disconnection_is_refused(removal):
 
 def test_the_lead_cannot_be_touched_before_the_wait(removal, clock):
     removal.walk_to("discharge")
-    for step in ("ground-lead", "disconnect-leads", "remove-unit"):
-        removal.refused(_event(step), "out_of_order")
+    removal.refused(_event("ground-lead", "acknowledged"), "out_of_order")
+    # Work on the lead or the unit: the isolation is not verified yet (29 CFR 1910.147(d)(6)).
+    for step in ("disconnect-leads", "remove-unit"):
+        removal.refused(_event(step), "isolation_not_verified")
 
 
 # --- release, handover, absent owner ----------------------------------------------------------

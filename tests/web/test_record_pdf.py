@@ -18,6 +18,7 @@ from pypdf import PdfReader
 from tests.conftest import DEMO_PINS
 from tests.web.jobs import DEMO_101_ENGINE_1, Job, _event
 from webapp.records import pdf
+from webapp.station import recording
 from webapp.store import jobs as job_store
 
 PROCEDURE = "igniter-plug-replacement"
@@ -75,8 +76,10 @@ def test_14_cfr_43_9_a_four_elements_of_the_maintenance_record(app, db, clock, p
     # 14 CFR 43.9(a)(4): the signature with certificate number and kind of certificate.
     # Unsigned here: each signature has its box, which its stamp fills when signed (the
     # stamp's content is checked on a signed record in test_signature_stamps.py).
-    assert "Step 36: Performer" in text and "Step 37: Inspector" in text
-    assert "Step 38: Certifying" in text
+    number = {s.id: s.number for s in recording.load_job(db, plug_job).state.steps}
+    assert f"Step {number['performer']}: Performer" in text
+    assert f"Step {number['inspector']}: Inspector" in text
+    assert f"Step {number['certify']}: Certifying" in text
     assert text.count("Signature box:") == 3
     assert "printed name, authorisation number and its kind" in text
     # The header: aircraft, engine serial and position, channel (common practice, no source).
@@ -92,7 +95,10 @@ def test_easa_145_a_50_release_to_service_content(app, db, clock, plug_job):
     assert "Release to service" in text
     assert "Certifying staff (printed name)" in text
     assert "Licence / authorisation no." in text
-    assert "Limitations none" in text
+    # The plug change leaves its seat leak check for the next engine run: a limitation.
+    assert (f"Limitations open item J{plug_job}-seat-leak-due (job {plug_job}): Igniter plug "
+            "seat leak check at the next engine run after the plug change (channel B); "
+            "limit next engine run") in text
     # The plug came off and a new one went on: until a functional check passes on the
     # channel, no certification of this job releases the aircraft, and the record says so.
     assert "This record does not release the aircraft to service" in text
@@ -175,3 +181,12 @@ def test_record_fetches_only_the_station_static_files_from_disk():
     with pytest.raises(FileNotFoundError):
         fetcher.fetch(pdf.STATIC_PREFIX + "../webapp/__init__.py")
     assert pdf.font_configuration() is pdf.font_configuration()  # one per process
+
+
+def test_release_limitations_say_none_when_the_engine_has_no_open_item(app, db, clock,
+                                                                        mechanic):
+    # EASA Part-145 145.A.50 AMC: the limitations are stated even when there are none.
+    job = Job(mechanic, db, clock, "ignition-lead-inspection", channel="A", engine=3)
+    job.walk_to("performer")  # DEMO-102 engine 1: no open item in the demo
+    _, _, text = _render(app, db, job.id, clock())
+    assert "Limitations none" in text

@@ -17,6 +17,7 @@ from typing import Any
 from . import (
     exciter_rows,
     gates,
+    isolation,
     readings,
     release,
     signoff,
@@ -59,9 +60,13 @@ def _job_channels(state: JobState) -> list[str]:
     return [channel] if channel else ["A", "B"]
 
 
-def _connection_effects(state: JobState, step: Check) -> list[dict[str, Any]]:
-    """What ticking a check does to the engine's channels (stored with the event)."""
+def _connection_effects(state: JobState, step: Check, job_id: int) -> list[dict[str, Any]]:
+    """What ticking a check does to the engine's channels and items (stored with the event)."""
     effects: list[dict[str, Any]] = []
+    if step.opens_item is not None:
+        where = f" (channel {state.configuration.channel})" if state.configuration.channel else ""
+        effects.append({"effect": "defer", "text": step.opens_item.text + where,
+                        "reference": f"J{job_id}-{step.id}", "limit": step.opens_item.limit})
     for channel in _job_channels(state):
         effects += [{"effect": "disturb", "what": w, "channel": channel} for w in step.disturbs]
         effects += [{"effect": "restore", "what": w, "channel": channel} for w in step.restores]
@@ -219,6 +224,8 @@ def check_event(state: JobState, kind: str, step_id: str | None, data: Mapping[s
             raise RuleRefusal("power_not_removed", "The input is not recorded as disconnected.")
         return {**data, "engine": [{"effect": "restore", "what": "input", "channel": c}
                                    for c in _job_channels(state)]}
+    if kind == "lead_grounded":
+        return isolation.check_grounded_again(state)
     if kind == "de_energised":
         # Switching off is never held back: on by this job's log or by the engine's clocks.
         engine_clocks = at.engine.channel_clocks() if at.engine is not None else {}
@@ -242,6 +249,9 @@ def check_event(state: JobState, kind: str, step_id: str | None, data: Mapping[s
         gates.check_pre_energising(state.open_gate_steps(), at.tags, at.names)
     if target.status == "done":
         raise RuleRefusal("already_done", f"Step {target.number} is already done.")
+    if kind == COMPLETING_EVENT.get(target.step.kind):
+        # Ahead of the order rule, so a jump to such work hears why it is dangerous.
+        isolation.check_isolation_verified(state, target.step)
     upcoming = state.next_step
     if upcoming is not None and upcoming.id != target.id:
         raise RuleRefusal("out_of_order", f"Step {upcoming.number} ('{_short(upcoming.step)}') "
@@ -262,6 +272,7 @@ def check_event(state: JobState, kind: str, step_id: str | None, data: Mapping[s
         verb = "acknowledged" if wanted == "acknowledged" else "marked done"
         raise RuleRefusal("wrong_event_for_step", f"A {step.kind} step is {verb}, "
                           f"not '{kind}'.")
+    isolation.check_before_step(state, step, at.now, at.device_now)
     return _check_completion(state, target, data, at)
 
 
@@ -282,6 +293,7 @@ def _check_in_step(state: JobState, step: Step, kind: str, data: Mapping[str, An
     if step.id not in state.awaiting_finding:
         raise RuleRefusal("no_reading_to_disposition", "A finding goes with an out-of-limits "
                           "reading; this step has none waiting.")
+    isolation.finding_allowed(step, data)
     return readings.evaluate_finding(data)
 
 
@@ -314,7 +326,7 @@ def _check_completion(state: JobState, target: StepProgress, data: Mapping[str, 
             sparks.check_window_served(state.count_windows.get(step.id), stored, at.now,
                                        at.device_now)
             return stored
-        stored = readings.evaluate_reading(step, data)
+        stored = isolation.isolation_verdict(step, readings.evaluate_reading(step, data))
         if isinstance(step, Reading) and step.wear:
             stored["plug"] = _plug_at_work(state)
             return _with_usage_entry(stored, at)
@@ -349,8 +361,9 @@ def _check_completion(state: JobState, target: StepProgress, data: Mapping[str, 
     elif isinstance(step, Sign):
         signed = dict(signoff.check_signature(state, target, at))
         return {**signed, **_release(state, at)} if step.role == "certifying" else signed
-    if isinstance(step, Check) and (step.disturbs or step.restores or step.ignition_off):
-        return {**data, "engine": _connection_effects(state, step)}
+    if isinstance(step, Check) and (step.disturbs or step.restores or step.ignition_off
+                                    or step.opens_item):
+        return {**data, "engine": _connection_effects(state, step, at.job_id)}
     return data
 
 

@@ -14,7 +14,7 @@ from datetime import datetime
 from functools import cached_property
 from typing import Any, Literal
 
-from . import gates, torque
+from . import gates, isolation, torque
 from .errors import RuleRefusal
 from .gates import ChannelClock, PowerOff
 from .procedures import (
@@ -34,7 +34,8 @@ CLIENT_EVENT_KINDS = ("acknowledged", "step_done", "breaker_tagged", "tag_taken_
                       "tag_removed", "tag_handed_over", "tag_transfer_authorised",
                       "tag_removal_authorised", "input_reconnected", "energised", "de_energised",
                       "reading_recorded", "finding", "count_started", "sparks_counted",
-                      "part_recorded", "signed", "returned", "amendment", "item_closed")
+                      "part_recorded", "signed", "returned", "amendment", "item_closed",
+                      "lead_grounded")
 STATION_EVENT_KINDS = ("job_opened",)
 EVENT_KINDS = STATION_EVENT_KINDS + CLIENT_EVENT_KINDS
 
@@ -63,7 +64,8 @@ IN_STEP_EVENTS = {"breaker_tagged": "lockout", "tag_removed": "lockout",
 NEEDS_FINDING = ("out of limits", "mismatch")
 # Events allowed whatever step the job is at. De-energising is never held back.
 ANYTIME_EVENTS = ("tag_taken_over", "tag_handed_over", "tag_transfer_authorised",
-                  "input_reconnected", "de_energised", "returned", "item_closed")
+                  "input_reconnected", "de_energised", "returned", "item_closed",
+                  "lead_grounded")
 # Events that are no work on the job: who sends only these did not perform it.
 NOT_WORK = ("job_opened", "signed", "returned", "amendment", *gates.CONSENT_KINDS)
 
@@ -123,6 +125,20 @@ class JobState:
     # station times the window; a count uses its start up.
     count_windows: Mapping[str, PowerOff] = field(default_factory=dict)
     workers: frozenset[int] = frozenset()  # everyone who recorded work (not only a signature)
+    # When the high-tension lead was last grounded (its grounding step, or grounded again
+    # after a pause), by both clocks; None until then and after the input is reconnected.
+    lead_grounded: PowerOff | None = None
+
+    @property
+    def isolation_verified(self) -> bool:
+        """Whether an isolation check of this job stands done with a verified result (a
+        reading out of limits, or deferred, does not verify; reconnecting the input undoes
+        it)."""
+        return any(isolation.is_isolation_check(step)
+                   and self.completed[step.id].get("kind") == "reading_recorded"
+                   and self.completed[step.id]["data"].get("verdict")
+                   == isolation.ISOLATION_VERIFIED
+                   for step in self.applicable if step.id in self.completed)
 
     @cached_property
     def positions(self) -> dict[str, int]:
@@ -252,7 +268,9 @@ def apply_event(state: JobState, event: Mapping[str, Any]) -> JobState:
         # Power is back: the disconnection and every discharge wait must be done again.
         completed = {k: v for k, v in state.completed.items()
                      if not _restarts_with_power(_step_of(state, k))}
-        return replace(state, completed=completed, power_off=None)
+        return replace(state, completed=completed, power_off=None, lead_grounded=None)
+    if kind == "lead_grounded":
+        return replace(state, lead_grounded=_times(event))
     if kind == "de_energised":
         return replace(state, clocks=_switched_off(state.clocks, event,
                                                    event["data"].get("channel")))
@@ -293,6 +311,8 @@ def apply_event(state: JobState, event: Mapping[str, Any]) -> JobState:
             power_off = None
         if step.ignition_off:
             clocks = _switched_off(clocks, event, None)
+        if step.grounds_lead:
+            state = replace(state, lead_grounded=_times(event))
     return replace(state, completed=completed, power_off=power_off, clocks=clocks)
 
 
@@ -351,5 +371,8 @@ def _step_of(state: JobState, step_id: str) -> Step | None:
 
 
 def _restarts_with_power(step: Step | None) -> bool:
-    return isinstance(step, DischargeWait) or (isinstance(step, Check)
-                                               and step.power == "removed")
+    """Steps done again once the input was reconnected: the disconnection, the wait and the
+    isolation check (the lead is grounded again too: `lead_grounded` is cleared)."""
+    return step is not None and (
+        isinstance(step, DischargeWait) or isolation.is_isolation_check(step)
+        or (isinstance(step, Check) and step.power == "removed"))

@@ -19,6 +19,7 @@ from typing import Any
 import yaml
 from pydantic import ValidationError
 
+from .isolation import structure_problems
 from .procedure_sanity import data_problems
 from .procedures import (
     ADVISORY_KINDS,
@@ -96,7 +97,12 @@ def parse_procedure(text: str, file: str = "<procedure>", check_data: bool = Tru
     problems.extend(_order_problems(procedure, file))
     problems.extend(_gate_problems(procedure, file))
     if check_data:
+        # The energy-control structure (isolation check, grounding) joined these rules later:
+        # a stored revision that a job pinned before them stays readable; the station's
+        # rules (`isolation`) still hold its steps.
         problems.extend(ProcedureProblem(file, *found) for found in data_problems(procedure))
+        problems.extend(ProcedureProblem(file, *found)
+                        for found in structure_problems(procedure))
     if problems:
         raise ProcedureInvalid(problems)
     return procedure

@@ -28,6 +28,18 @@ from .procedure_types import (
     _field_error,
     _Strict,
 )
+from .units import UnitProblem, parse_unit
+
+
+def _dimension(unit: str | None) -> str | None:
+    """'voltage' when the unit is one of volts, else None (the unit's own check reports it)."""
+    if unit is None:
+        return None
+    try:
+        parse_unit(unit, "voltage")
+    except UnitProblem:
+        return None
+    return "voltage"
 
 
 class _Step(_Strict):
@@ -49,10 +61,22 @@ class Advisory(_Step):
     guards: Id | None = None
 
 
+class OpenItemSpec(_Strict):
+    """Work a step leaves for later, outside the job: it stays an open item on the engine (a
+    limitation of any release) until the job that does it closes it."""
+
+    text: Text
+    limit: Text
+
+
 class Check(_Step):
     """An action to do and tick. `power` marks the step that disconnects (or reconnects) the
     exciter's input; `before_energising` makes it part of the gate before any ignition run;
-    `ignition_off` is the selector-off step that ends an ignition run."""
+    `ignition_off` is the selector-off step that ends an ignition run. `grounds_lead` records
+    the high-tension lead grounded with the insulated probe (its time starts the window in
+    which the lead and exciter may be handled, see `isolation`); `handles_lead` marks a step
+    that handles the exciter or lead without changing a connection; `opens_item` leaves an
+    open item on the engine."""
 
     kind: Literal["check"]
     items: list[Text] | None = None
@@ -63,6 +87,9 @@ class Check(_Step):
     # whole until some job restores it) or put back.
     disturbs: list[Connection] = Field(default_factory=list)
     restores: list[Connection] = Field(default_factory=list)
+    grounds_lead: bool = False
+    handles_lead: bool = False
+    opens_item: OpenItemSpec | None = None
 
 
 class Breaker(_Strict):
@@ -146,6 +173,10 @@ class Reading(_Step):
     # The test voltage the approved data sets (insulation resistance): a reading taken at
     # another is refused.
     test_voltage: Voltage | None = None
+    # `isolation`: the check after a lockout that the energy is really off (29 CFR
+    # 1910.147(d)(6)): a voltage at the input pins, or pass/fail "no snap with the selector
+    # on". Work that disturbs a connection or handles a part waits for it (see `isolation`).
+    verifies: Literal["isolation"] | None = None
 
     @model_validator(mode="after")
     def _number_has_unit_and_limits(self) -> Reading:
@@ -155,6 +186,14 @@ class Reading(_Step):
             if self.limits is None:
                 raise _field_error("limits", "a number reading needs its limits "
                                    "(min, max or both)")
+        if self.verifies == "isolation":
+            if self.value == "text":
+                raise _field_error("value", "an isolation check is a number (volts at the "
+                                   "input pins) or pass_fail, not text")
+            if self.value == "number" and (self.limits is None or self.limits.max is None
+                                           or _dimension(self.unit) != "voltage"):
+                raise _field_error("limits", "an isolation check by voltage needs a unit of "
+                                   "volts and a max (the most a dead circuit may read)")
         if self.test_voltage is not None and "test_voltage" not in self.conditions:
             raise _field_error("test_voltage", "a required test voltage needs the reading to "
                                "record its test voltage: add test_voltage to conditions")

@@ -22,6 +22,7 @@ from .procedure_steps import (  # noqa: F401 - re-exported: the model's one face
     DutyCycle,
     IgnitionRun,
     Lockout,
+    OpenItemSpec,
     PartChange,
     Reading,
     Sign,

@@ -160,6 +160,13 @@ def power_entries(state: JobState, events: Sequence[Mapping[str, Any]],
                     else "exciter input reconnected")
             lines.append(Entry(word, who(e["person_id"]), station_time(e["received_at"]),
                                    numbers.get(step.id)))
+        elif (e["kind"] == "step_done" and isinstance(step, Check) and step.grounds_lead) \
+                or e["kind"] == "lead_grounded":
+            lines.append(Entry("high-tension lead grounded with the insulated probe"
+                               + (" again, before handling after a pause"
+                                  if e["kind"] == "lead_grounded" else ""),
+                               who(e["person_id"]), station_time(e["received_at"]),
+                               numbers.get(step.id) if step else None))
         elif e["kind"] == "input_reconnected":
             lines.append(Entry("input reconnected before the work was done: the "
                                    "disconnection and discharge wait were done again",

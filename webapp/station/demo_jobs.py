@@ -18,6 +18,7 @@ from typing import Any
 from .. import store
 from ..domain import torque
 from ..domain.execution import JobState
+from ..domain.isolation import grounding_due
 from ..domain.procedures import (
     Advisory,
     Check,
@@ -131,7 +132,7 @@ def walk(db: store.Database, job_id: int, *, by: Person, now: datetime,
     and a deferred finding (text, reference, limit). Returns the clock after the walk; raises
     WalkRefused when the station refuses an entry."""
 
-    def record(kind: str, step_id: str, data: dict[str, Any],
+    def record(kind: str, step_id: str | None, data: dict[str, Any],
                person: Person | None = None) -> None:
         person = person or (workers or {}).get(step_id, by)
         outcome = recording.record_event(db, job_id, event_id=str(uuid.uuid4()), kind=kind,
@@ -142,10 +143,15 @@ def walk(db: store.Database, job_id: int, *, by: Person, now: datetime,
             raise WalkRefused(f"{kind} at {step_id} was {outcome.status}: {why}")
 
     while True:
-        upcoming = recording.load_job(db, job_id).state.next_step
+        state = recording.load_job(db, job_id).state
+        upcoming = state.next_step
         if upcoming is None or upcoming.id == until:
             return now
         step = upcoming.step
+        if grounding_due(state, step, now):
+            # After a pause the lead is grounded again before it is handled, as on the floor.
+            record("lead_grounded", None, {}, (workers or {}).get(step.id, by))
+            now += STEP_GAP
         if isinstance(step, Sign):
             signer = (signers or {}).get(step.id)
             if signer is None:

@@ -63,12 +63,14 @@ def init_database(app: Flask) -> None:
         return moment.strftime("%Y-%m-%d %H:%M UTC")
 
     from ..domain.gates import mmss
+    from ..domain.isolation import GROUNDING_VALID_S
     from .progress import progress_list
     from .reading_views import register as register_reading_views
 
     register_reading_views(app)
 
     app.jinja_env.filters["mmss"] = mmss
+    app.jinja_env.globals["grounding_minutes"] = GROUNDING_VALID_S // 60
     app.jinja_env.globals["new_event_id"] = lambda: str(uuid.uuid4())
 
     app.jinja_env.globals["progress_list"] = progress_list

@@ -11,7 +11,7 @@ from datetime import datetime
 from typing import Any
 
 from .. import store
-from ..domain import exciter_rows, gates
+from ..domain import exciter_rows, gates, isolation
 from ..domain.engine import EngineState
 from ..domain.execution import JobState
 from ..domain.gates import ChannelClock, Consent, DischargeRequirement, Tag
@@ -119,6 +119,30 @@ def _mechanics(db: store.Database) -> list[tuple[int, str]]:
                    if p.active and p.has("mechanic")), key=lambda p: p[1])
 
 
+@dataclass(frozen=True)
+class GroundingView:
+    """When the lead was last grounded in the job, and whether the next step needs it again."""
+
+    grounded_at: str | None
+    age_s: float | None
+    valid_for_s: int
+    due: bool           # the next step handles the lead or exciter and the grounding lapsed
+    may_record: bool    # the procedure's grounding step is done: grounding again is recorded
+
+
+def _grounding(state: JobState, step: Any, now: datetime) -> GroundingView | None:
+    grounding_steps = [s for s in state.applicable if isolation.is_grounding(s)]
+    if not grounding_steps or state.status != "open":
+        return None
+    grounded = state.lead_grounded
+    return GroundingView(
+        grounded.station.isoformat() if grounded else None,
+        isolation.grounding_age_s(grounded, now, None) if grounded else None,
+        isolation.GROUNDING_VALID_S,
+        step is not None and isolation.grounding_due(state, step, now),
+        any(s.id in state.completed for s in grounding_steps))
+
+
 def gate_context(db: store.Database, job: recording.Job, now: datetime) -> dict[str, Any]:
     """Everything the step screen's gate panels need, for the job as it stands now."""
     state = job.state
@@ -141,6 +165,7 @@ def gate_context(db: store.Database, job: recording.Job, now: datetime) -> dict[
     }
     current = state.next_step
     step = current.step if current else None
+    context["grounding"] = _grounding(state, step, now)
     if isinstance(step, Lockout):
         context["lockout_missing"] = gates.lockout_complete(step, tags, job.row["id"])
     elif isinstance(step, DischargeWait):
