@@ -91,6 +91,20 @@ def test_configuration_is_taken_from_the_job_s_channel():
     assert configuration_for(REMOVAL, "QT-610", mixed, "B").exciter_types == ("ac",)
 
 
+def test_a_both_channel_procedure_with_type_specific_steps_is_refused_on_a_mixed_fit():
+    # A dc unit on A and a combination unit on B: the functional check's plain counts are for
+    # dc units and its moded counts for combination units, each asked of both channels.
+    check = parse_procedure((TASKS / "ignition-functional-check.yaml").read_text("utf-8"))
+    mixed = [DC_ENGINE[0], {"kind": "exciter", "type": "combination", "channel": "B"},
+             *DC_ENGINE[2:]]
+    with pytest.raises(RuleRefusal) as refused:
+        configuration_for(check, "QT-610", mixed, None)
+    assert refused.value.rule == "mixed_exciter_types"
+    assert "channel A dc, channel B combination" in refused.value.reason
+    # The same units alike on both channels open as before.
+    assert configuration_for(check, "QT-610", DC_ENGINE, None).exciter_types == ("dc",)
+
+
 def test_configuration_refuses_missing_parts_and_other_engine_models():
     with pytest.raises(RuleRefusal) as missing:
         configuration_for(REMOVAL, "QT-610", DC_ENGINE[2:], "A")

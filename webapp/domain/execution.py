@@ -223,8 +223,26 @@ def configuration_for(procedure: Procedure, engine_model: str,
         raise RuleRefusal("not_effective", f"'{procedure.title}' does not apply to a "
                           f"{engine_model} with {'/'.join(exciters)} exciter and "
                           f"{'/'.join(plugs)} plugs (see its effectivity).")
+    _refuse_mixed_types(procedure, at_work, exciters)
     return Configuration(channel=channel, exciter_types=exciters, plug_types=plugs,
                          components=tuple(at_work))
+
+
+def _refuse_mixed_types(procedure: Procedure, at_work: list[Mapping[str, Any]],
+                        exciters: tuple[str, ...]) -> None:
+    """A step's `when` asks what is installed on the engine as a whole; with a different
+    exciter type on each channel a step written for one type would also be asked of the
+    other's channel. Such a fit needs the approved data for it, not a guess."""
+    if len(exciters) < 2:
+        return
+    types = [s.when.exciter_types for s in procedure.steps
+             if s.when is not None and s.when.exciter_types is not None]
+    if any(set(t) & set(exciters) != set(exciters) for t in types):
+        fitted = ", ".join(f"channel {c['channel']} {c['type']}" for c in
+                           sorted(at_work, key=lambda c: c["channel"]) if c["kind"] == "exciter")
+        raise RuleRefusal("mixed_exciter_types", f"The exciters fitted differ in type "
+                          f"({fitted}) and '{procedure.title}' has steps for one type only: "
+                          "work to the approved data for this fit, not to this procedure.")
 
 
 def _times(event: Mapping[str, Any]) -> PowerOff:
