@@ -44,6 +44,10 @@ from pyhanko.sign import signers
 from pyhanko_certvalidator.registry import SimpleCertificateStore
 
 AUTHORITY_VALIDITY = timedelta(days=7305)  # 20 years, leap days included
+# The authority is valid from two days before it is made: tablets' clocks may run behind the
+# station's, and a demo station's history (its jobs began hours before it was built) is
+# signed with certificates issued before its first event.
+AUTHORITY_LEAD = timedelta(days=2)
 PERSON_VALIDITY = timedelta(days=1096)  # 3 years, one leap day included
 KEY_FILE = "authority-key.pem"
 CERT_FILE = "authority-cert.pem"
@@ -69,6 +73,7 @@ class StationAuthority:
     cert: x509.Certificate
     key: ec.EllipticCurvePrivateKey
     time_stamps: Any = None   # the station's time-stamp unit (timestamping.TimeStampUnit)
+    crl_url: str | None = None  # where the station publishes its revocation list
 
 
 @dataclass(frozen=True)
@@ -136,7 +141,7 @@ def create_authority(name: str, now: datetime, operator: str | None = None) -> S
         .issuer_name(subject)
         .public_key(key.public_key())
         .serial_number(x509.random_serial_number())
-        .not_valid_before(now)
+        .not_valid_before(now - AUTHORITY_LEAD)
         .not_valid_after(now + AUTHORITY_VALIDITY)
         .add_extension(x509.BasicConstraints(ca=True, path_length=0), critical=True)
         .add_extension(_key_usage("key_cert_sign", "crl_sign"), critical=True)
@@ -267,8 +272,17 @@ def issue_person_certificate(
         # signatures that commit the signer to the content of the record.
         .add_extension(_key_usage("digital_signature", "content_commitment"), critical=True)
     )
+    if authority.crl_url:
+        builder = builder.add_extension(distribution_point(authority.crl_url), critical=False)
     cert = _signed_by(authority, builder, key)
     return key, cert
+
+
+def distribution_point(url: str) -> x509.CRLDistributionPoints:
+    """The extension naming where the revocation list is published (RFC 5280 4.2.1.13)."""
+    return x509.CRLDistributionPoints([x509.DistributionPoint(
+        full_name=[x509.UniformResourceIdentifier(url)], relative_name=None, reasons=None,
+        crl_issuer=None)])
 
 
 def enrol_signer(

@@ -40,7 +40,7 @@ from pyhanko.pdf_utils.text import TextBoxStyle
 from pyhanko.sign import fields, signers
 from pyhanko.sign.diff_analysis import ModificationLevel
 from pyhanko.sign.timestamps.api import TimeStamper
-from pyhanko.sign.validation import validate_pdf_signature
+from pyhanko.sign.validation import validate_pdf_signature, validate_pdf_timestamp
 from pyhanko.sign.validation.pdf_embedded import EmbeddedPdfSignature
 from pyhanko.sign.validation.status import SignatureCoverageLevel
 from pyhanko.stamp import TextStampStyle
@@ -66,6 +66,16 @@ _ACCEPTABLE = {ModificationLevel.NONE, ModificationLevel.LTA_UPDATES,
                ModificationLevel.FORM_FILLING}
 _COVERAGE = {SignatureCoverageLevel.ENTIRE_FILE: "entire file",
              SignatureCoverageLevel.ENTIRE_REVISION: "entire revision"}
+
+
+@dataclass(frozen=True)
+class ValidationData:
+    """What a record embeds for long-term validation: the trust root and the station's
+    revocation lists (DER), current at signing."""
+
+    authority: crypto_x509.Certificate
+    revocation_lists: tuple[bytes, ...]
+    at: datetime   # the station's clock at signing: the lists are current then
 
 
 class RecordUnreadable(ValueError):
@@ -190,7 +200,8 @@ class _StationClockSigner(signers.PdfSigner):
 def _sign(pdf: bytes, signer: signers.Signer, field_name: str, meaning: str,
           signer_name: str, location: str | None, stamp: str | None,
           reserve: Mapping[str, StampBox], signed_at: datetime | None = None,
-          timestamper: TimeStamper | None = None) -> bytes:
+          timestamper: TimeStamper | None = None,
+          validation: ValidationData | None = None) -> bytes:
     try:
         writer = IncrementalPdfFileWriter(io.BytesIO(pdf))
         # name -> the signature in it, None for an empty (reserved) field
@@ -216,7 +227,15 @@ def _sign(pdf: bytes, signer: signers.Signer, field_name: str, meaning: str,
     meta = signers.PdfSignatureMetadata(
         field_name=field_name, md_algorithm="sha256", subfilter=fields.SigSeedSubFilter.PADES,
         reason=meaning, name=signer_name, location=location, certify=first,
-        docmdp_permissions=fields.MDPPerm.FILL_FORMS)
+        docmdp_permissions=fields.MDPPerm.FILL_FORMS,
+        # PAdES B-LT: the authority's certificate and its revocation list as of signing go
+        # into the document security store, so validation needs nothing from the network.
+        embed_validation_info=validation is not None,
+        use_pades_lta=validation is not None and timestamper is not None,
+        validation_context=None if validation is None else ValidationContext(
+            trust_roots=[_as_asn1(validation.authority)],
+            crls=list(validation.revocation_lists), allow_fetching=False,
+            revocation_mode="soft-fail", moment=validation.at))
     visible = field_name in existing or field_name in reserve
     pdf_signer = _StationClockSigner(meta, signer, signing_time=signed_at,
                                      stamp_style=_stamp_style() if visible else None,
@@ -229,7 +248,8 @@ def sign_record(pdf: bytes, signer: signers.Signer, *, field_name: str, meaning:
                 signer_name: str, location: str | None = None, stamp: str | None = None,
                 reserve: Mapping[str, StampBox] | None = None,
                 signed_at: datetime | None = None,
-                timestamper: TimeStamper | None = None) -> bytes:
+                timestamper: TimeStamper | None = None,
+                validation: ValidationData | None = None) -> bytes:
     """Add one PAdES signature as an incremental update and return the new PDF bytes.
 
     Incremental, so an earlier signature (the performer's) stays valid when a later one
@@ -239,10 +259,11 @@ def sign_record(pdf: bytes, signer: signers.Signer, *, field_name: str, meaning:
     name with no box gets an invisible signature. A field already signed is refused with
     ValueError: two signatures under one name would make the record ambiguous.
     `signed_at` is the signing time the signature states (default: now); `timestamper`
-    adds an RFC 3161 signature time-stamp (PAdES B-T), the station's own unit's.
+    adds an RFC 3161 signature time-stamp (PAdES B-T), the station's own unit's;
+    `validation` embeds the authority and its revocation list (PAdES B-LT).
     """
     return _off_thread(_sign, pdf, signer, field_name, meaning, signer_name, location,
-                       stamp, dict(reserve or {}), signed_at, timestamper)
+                       stamp, dict(reserve or {}), signed_at, timestamper, validation)
 
 
 def _as_asn1(cert: crypto_x509.Certificate | asn1_x509.Certificate) -> asn1_x509.Certificate:
@@ -341,7 +362,16 @@ def _verify(pdf: bytes, trust_root: asn1_x509.Certificate) -> list[SignatureRepo
     reports = []
     for name, _, sig_field in sorted(filled, key=lambda f: _revision(reader, f[2])):
         try:
-            reports.append(_report(EmbeddedPdfSignature(reader, sig_field, name), context))
+            embedded = EmbeddedPdfSignature(reader, sig_field, name)
+            if embedded.sig_object_type == "/DocTimeStamp":
+                # The document time-stamp after a signature's validation data (PAdES B-LTA):
+                # not a person's signature, but it must verify too (fail closed).
+                stamp = validate_pdf_timestamp(embedded, context)
+                if not (stamp.intact and stamp.valid and stamp.trusted):
+                    reports.append(_broken(name, sig_field, ValueError(
+                        "a document time-stamp does not verify")))
+                continue
+            reports.append(_report(embedded, context))
         except (PdfError, ValueError, KeyError, TypeError) as exc:
             reports.append(_broken(name, sig_field, exc))
     return reports

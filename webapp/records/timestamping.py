@@ -25,7 +25,13 @@ from cryptography.x509.oid import ExtendedKeyUsageOID, NameOID
 from pyhanko.sign.general import as_signing_certificate_v2, simple_cms_attribute
 from pyhanko.sign.timestamps.api import TimeStamper
 
-from .identity import StationAuthority, _key_usage, _signed_by, asn1_certificate
+from .identity import (
+    StationAuthority,
+    _key_usage,
+    _signed_by,
+    asn1_certificate,
+    distribution_point,
+)
 
 KEY_FILE = "time-stamp-key.pem"
 CERT_FILE = "time-stamp-cert.pem"
@@ -59,6 +65,8 @@ def issue_time_stamp_unit(authority: StationAuthority, name: str) -> TimeStampUn
         .add_extension(x509.ExtendedKeyUsage([ExtendedKeyUsageOID.TIME_STAMPING]),
                        critical=True)
     )
+    if authority.crl_url:
+        builder = builder.add_extension(distribution_point(authority.crl_url), critical=False)
     return TimeStampUnit(cert=_signed_by(authority, builder, key), key=key)
 
 

@@ -7,17 +7,19 @@ copied database alone holds no usable key; people's keys are sealed under their 
 from __future__ import annotations
 
 import ipaddress
+import os
 import secrets
 import socket
 import threading
 from collections.abc import Iterable
 from dataclasses import dataclass, replace
-from datetime import datetime
+from datetime import UTC, datetime
 from pathlib import Path
 
 from cryptography import x509
 
-from ..records import timestamping
+from .. import store
+from ..records import revocation, timestamping
 from ..records.identity import (
     CERT_FILE,
     SERVER_CERT_FILE,
@@ -33,6 +35,7 @@ from ..records.identity import (
     save_server_identity,
     server_certificate_serves,
 )
+from ..store import signers
 
 _CACHE: dict[str, StationAuthority] = {}
 _LOCK = threading.Lock()
@@ -66,6 +69,7 @@ def station_authority(db_path: str | Path, station_name: str, now: datetime) -> 
         else:
             authority = create_authority(station_name, now)
             save_authority(authority, folder, passphrase)
+        authority = replace(authority, crl_url=_crl_url(folder))
         unit = timestamping.load_unit(folder, passphrase)
         if unit is None:   # a new station, or one from before the unit existed
             unit = timestamping.issue_time_stamp_unit(authority, station_name)
@@ -73,6 +77,29 @@ def station_authority(db_path: str | Path, station_name: str, now: datetime) -> 
         authority = replace(authority, time_stamps=unit)
         _CACHE[key] = authority
         return authority
+
+
+def _crl_url(folder: Path) -> str:
+    """Where the station publishes its revocation list: fixed when the authority is made (a
+    certificate names it for life), from SPARKWARD_PUBLIC_URL or the machine's LAN name."""
+    kept = folder / "crl-url"
+    if not kept.is_file():
+        base = os.environ.get("SPARKWARD_PUBLIC_URL") or (
+            f"http://{socket.gethostname().lower()}.local:8000")
+        kept.write_text(base.rstrip("/") + revocation.LIST_PATH)
+    return kept.read_text().strip()
+
+
+def current_revocation_list(db: store.Database, authority: StationAuthority,
+                            now: datetime) -> x509.CertificateRevocationList:
+    """The station's revocation list as of now, from the signers its database has revoked
+    (the database stays the one source; the list is how it is said to any validator)."""
+    revoked = []
+    for row in signers.revoked_signers(db):
+        at = datetime.fromisoformat(str(row["revoked_at"]))
+        revoked.append((x509.load_pem_x509_certificate(str(row["cert_pem"]).encode()),
+                        at if at.tzinfo else at.replace(tzinfo=UTC)))
+    return revocation.revocation_list(authority, revoked, now)
 
 
 @dataclass(frozen=True)

@@ -13,6 +13,7 @@ from datetime import datetime, timedelta
 from typing import Any, Literal
 
 from cryptography.hazmat.primitives import hashes
+from cryptography.hazmat.primitives.serialization import Encoding
 
 from .. import store
 from ..domain import gates
@@ -28,10 +29,11 @@ from ..records import identity
 from ..records.identity import StationAuthority
 from ..records.record_entries import station_time
 from ..records.record_signatures import AUTHORISATION_KIND
-from ..records.signing import StampBox
+from ..records.signing import StampBox, ValidationData
 from ..store import authorisations, engines, fleet, jobs, people, procedures, signers
 from ..store.job_states import Job, NotFound, load_job, remember
 from ..store.people import Person
+from .authority import current_revocation_list
 
 
 @dataclass(frozen=True)
@@ -199,6 +201,7 @@ class _UnlockedSigner:
     pyhanko_signer: Any
     manifestation: dict[str, Any]
     timestamper: Any = None   # the station's time-stamp unit, at the signing's instant
+    validation: Any = None    # the CA and its revocation list now, for the record to embed
 
 
 PIN_MAX_FAILURES = 5
@@ -231,9 +234,11 @@ def _unlock_signer(db: store.Database, person: Person, pin: str,
     from ..records.timestamping import StationTimeStamper
     timestamper = (StationTimeStamper(authority.time_stamps, authority.cert, now)
                    if authority.time_stamps is not None else None)
+    crl = current_revocation_list(db, authority, now)
+    validation = ValidationData(authority.cert, (crl.public_bytes(Encoding.DER),), now)
     return _UnlockedSigner(pyhanko_signer, {
         "signer_name": person.full_name, "authorisation": person.authorisation,
-        "certificate_sha256": fingerprint}, timestamper)
+        "certificate_sha256": fingerprint}, timestamper, validation)
 
 
 def signatures_of(state: JobState) -> list[dict[str, Any]]:
@@ -329,7 +334,7 @@ def _sign_record(db: store.Database, job_id: int, state: JobState, event: dict[s
     signed = sign_record(printed.pdf, signer.pyhanko_signer, field_name=field_name,
                          meaning=meaning, signer_name=event["data"]["signer_name"],
                          stamp=stamp, reserve=printed.boxes, signed_at=now,
-                         timestamper=signer.timestamper)
+                         timestamper=signer.timestamper, validation=signer.validation)
     signers.add_record(db, job_id=job_id, revision=printed.revision, pdf=signed,
                        chain_hash=event["hash"], signatures=printed.signatures + 1, now=now,
                        supersedes=printed.supersedes)

@@ -112,7 +112,8 @@ class DemoJob(_Strict):
     engine: str                                  # engine serial number
     channel: Literal["A", "B"] | None = None     # for a one-channel procedure
     by: str                                      # username
-    hours_ago: float = Field(default=3, gt=0)    # when the walk started
+    # when the walk started: within the two days the authority is valid before it is made
+    hours_ago: float = Field(default=3, gt=0, le=40)
     until: str | None = None
     signers: dict[str, str] = Field(default_factory=dict)  # sign step id -> username
     workers: dict[str, str] = Field(default_factory=dict)  # step id -> username, if not `by`
@@ -145,9 +146,13 @@ def load_scenario(db: store.Database, scenario: Scenario, now: datetime,
     """Build the scenario into an empty station database, the same way every time.
     With the station's `authority`, people with a PIN get their signing keys."""
     rng = random.Random(scenario.seed)
+    # The demo people are enrolled (their certificates issued) before the demo's first event,
+    # so every signature of its history is made while the signer's certificate is valid.
+    enrolled_at = now - timedelta(hours=max((j.hours_ago for j in scenario.jobs), default=0)
+                                  + 1)
     for p in scenario.people:
         enrolled = enrol(db, username=p.username, full_name=p.full_name, roles=p.roles,
-                         password=p.password, authorisation=p.authorisation, now=now,
+                         password=p.password, authorisation=p.authorisation, now=enrolled_at,
                          pin=p.pin if authority is not None else None, authority=authority)
         for a in p.authorisations:
             authorise(db, person_id=enrolled.id, signatures=a.signatures, scope=a.scope,

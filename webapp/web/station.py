@@ -9,7 +9,9 @@ from cryptography.x509.oid import NameOID
 from flask import Blueprint, Response, render_template, request
 
 from ..records.identity import certificate_fingerprint
-from .common import authority, public
+from ..records.revocation import LIST_PATH
+from ..station.authority import current_revocation_list
+from .common import authority, db, now, public
 
 bp = Blueprint("station", __name__)
 
@@ -41,6 +43,16 @@ def authority_certificate_der() -> Any:
     """The same certificate in DER, the form some tablets' certificate installers expect."""
     der = authority().cert.public_bytes(serialization.Encoding.DER)
     return _certificate_file(der, "application/x-x509-ca-cert", "crt")
+
+
+@bp.get(LIST_PATH)
+@public
+def revocation_list() -> Any:
+    """The station's certificate revocation list as of now (RFC 5280, DER), made from the
+    database: the distribution point every person certificate names."""
+    crl = current_revocation_list(db(), authority(), now())
+    return Response(crl.public_bytes(serialization.Encoding.DER),
+                    mimetype="application/pkix-crl", headers={"Cache-Control": "no-cache"})
 
 
 def _certificate_file(data: bytes, mimetype: str, extension: str) -> Response:
