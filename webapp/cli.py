@@ -227,8 +227,10 @@ def _serve_https(app: Flask, host: str, port: int, extra_names: tuple[str, ...])
         server.stop()
 
 
-@cli.command(help="Check a work record PDF: its signatures, and its event chain against the "
-                  "station's database. Exits non-zero on any failure.")
+@cli.command(help="Check a work record PDF: its signatures, its event chain against the "
+                  "station's database, and whether it is the record's latest state. Exit "
+                  "code 0: intact and latest; 1: intact but superseded or incomplete; 2: "
+                  "altered, untrusted or not a file the station issued.")
 @click.argument("pdf_file", type=click.Path(exists=True, dir_okay=False, path_type=Path))
 @DB_OPTION
 def verify(pdf_file: Path, db_path: Path | None) -> None:
@@ -243,15 +245,20 @@ def verify(pdf_file: Path, db_path: Path | None) -> None:
     try:
         result = check_record(pdf_file.read_bytes(), authority.cert,
                               lambda job_id: jobs.events(db, job_id),
-                              revocations(signers.revoked_signers(db)))
+                              revocations(signers.revoked_signers(db)),
+                              lambda job_id: signers.stored_states(db, job_id))
     finally:
         db.close()
     click.echo(f"Record {result.record_id or '(unknown)'}"
-               + (f", job {result.job_id}" if result.job_id else ""))
+               + (f", job {result.job_id}" if result.job_id else "")
+               + (f", revision {result.revision}" if result.revision else ""))
+    if result.standing_message:
+        click.echo(f"  standing: {result.standing_message}")
     for r in result.signatures:
         click.echo(f"  {r.field_name}: {r.signer} ({r.authorisation or 'no authorisation'}), "
-                   f"{r.meaning}, {r.signed_at:%Y-%m-%d %H:%M:%S %Z}: "
-                   f"{'intact' if r.intact else 'NOT INTACT'}, "
+                   f"{r.meaning}, "
+                   + (f"{r.signed_at:%Y-%m-%d %H:%M:%S %Z}" if r.signed_at else "no time")
+                   + f": {'intact' if r.intact else 'NOT INTACT'}, "
                    f"{'trusted' if r.trusted else 'NOT TRUSTED'}"
                    + (", CHANGED AFTERWARDS" if r.modified_after else "")
                    + (f", time-stamped {r.time_stamped_at:%Y-%m-%d %H:%M:%S %Z}"
@@ -263,10 +270,15 @@ def verify(pdf_file: Path, db_path: Path | None) -> None:
         click.echo(f"  note: {note}")
     if result.chain_message:
         click.echo(f"  chain: {result.chain_message}")
-    if not result.ok:
-        raise click.ClickException("the record does not check out: "
-                                   + "; ".join(result.problems))
-    click.echo("The record checks out.")
+    for problem in result.problems:
+        click.echo(f"  problem: {problem}")
+    if result.ok:
+        click.echo("The record checks out: intact, trusted and the latest state.")
+    elif result.intact:
+        click.echo(f"The record is intact but not the latest: {result.standing_message}.")
+    else:
+        click.echo("The record does NOT check out.")
+    sys.exit(result.exit_code)
 
 
 @cli.group(help="The shop's procedure library.")

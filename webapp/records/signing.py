@@ -377,6 +377,19 @@ def _verify(pdf: bytes, trust_root: asn1_x509.Certificate) -> list[SignatureRepo
     return reports
 
 
+def signed_fields(pdf: bytes) -> list[str]:
+    """The names of the record's fields that hold a person's signature, in file order
+    (document time-stamps left out); RecordUnreadable when the bytes are not a PDF."""
+    def run() -> list[str]:
+        reader = PdfFileReader(io.BytesIO(pdf))
+        return [sig.field_name for sig in reader.embedded_signatures
+                if sig.sig_object_type == "/Sig"]
+    try:
+        return _off_thread(run)
+    except (PdfError, ValueError, KeyError, IndexError, TypeError) as exc:
+        raise RecordUnreadable(f"The record could not be read as a PDF: {exc}") from exc
+
+
 def empty_signature_fields(pdf: bytes) -> list[str]:
     """The names of the record's signature boxes nobody has signed yet (RecordUnreadable when
     the bytes are not a PDF)."""

@@ -19,7 +19,13 @@ from cryptography import x509
 from cryptography.hazmat.primitives import hashes
 
 from ..domain.chain import first_broken_link
-from .signing import RecordUnreadable, SignatureReport, empty_signature_fields, verify_record
+from .signing import (
+    RecordUnreadable,
+    SignatureReport,
+    empty_signature_fields,
+    signed_fields,
+    verify_record,
+)
 
 _RECORD_ID = re.compile(r"SW-(\d{5})-(\d{3})-([0-9A-F]{8})")
 
@@ -34,10 +40,26 @@ class RecordCheck:
     problems: list[str] = field(default_factory=list)
     unsigned: list[str] = field(default_factory=list)  # signature boxes still empty
     notes: list[str] = field(default_factory=list)     # worth knowing, not failures
+    # Where the file stands among the record's states the station kept: "latest",
+    # "superseded", "incomplete" (an earlier state of its revision, or cut back), "unknown".
+    standing: str = "unknown"
+    standing_message: str = ""
+    revision: int | None = None
+
+    @property
+    def intact(self) -> bool:
+        return not self.problems
 
     @property
     def ok(self) -> bool:
-        return not self.problems
+        """Intact, trusted and the latest state of the record: only this "checks out"."""
+        return self.intact and self.standing == "latest"
+
+    @property
+    def exit_code(self) -> int:
+        """0 intact and latest; 1 intact but superseded or incomplete; 2 altered or
+        untrusted (or not a file the station issued)."""
+        return 0 if self.ok else 1 if self.intact else 2
 
 
 def record_id_of(pdf: bytes) -> str | None:
@@ -87,9 +109,12 @@ def _revocation_notes(reports: list[SignatureReport], revoked: Mapping[str, date
 
 
 def check_record(pdf: bytes, trust_root: x509.Certificate, events_of_job: Any,
-                 revoked: Mapping[str, datetime] | None = None) -> RecordCheck:
+                 revoked: Mapping[str, datetime] | None = None,
+                 states_of_job: Any = None) -> RecordCheck:
     """`events_of_job(job_id)` gives the job's events from the station's database (or None);
-    `revoked` the station's revocation times by certificate SHA-256 (see `revocations`)."""
+    `revoked` the station's revocation times by certificate SHA-256 (see `revocations`);
+    `states_of_job(job_id)` the record's signed states the station kept (store.signers
+    .stored_states), to say whether the file is the latest one."""
     try:
         reports = verify_record(pdf, trust_root)
         unsigned = empty_signature_fields(pdf)
@@ -97,7 +122,47 @@ def check_record(pdf: bytes, trust_root: x509.Certificate, events_of_job: Any,
         return RecordCheck([], None, None, None, "", [str(err)])
     check = _check_chain(pdf, reports, events_of_job)
     late, notes = _revocation_notes(reports, revoked or {})
-    return replace(check, problems=check.problems + late, unsigned=unsigned, notes=notes)
+    check = replace(check, problems=check.problems + late, unsigned=unsigned, notes=notes)
+    if check.job_id is not None and states_of_job is not None:
+        check = _with_standing(check, pdf, list(states_of_job(check.job_id) or []))
+    return check
+
+
+def _with_standing(check: RecordCheck, pdf: bytes, states: list[Mapping[str, Any]]
+                   ) -> RecordCheck:
+    """Which kept state the file is (byte for byte), or which it was cut back from."""
+    if not states:
+        problem = f"the station keeps no signed record of job {check.job_id}"
+        return replace(check, problems=[*check.problems, problem], standing_message=problem)
+    exact = [s for s in states if bytes(s["pdf"]) == pdf]
+    cut = [s for s in states if len(s["pdf"]) > len(pdf) and bytes(s["pdf"]).startswith(pdf)]
+    if not exact and not cut:
+        problem = ("no state of this record the station kept matches the file byte for byte: "
+                   "it is not a copy the station handed out")
+        return replace(check, problems=[*check.problems, problem], standing_message=problem)
+    state = exact[-1] if exact else cut[0]
+    revision = int(state["revision"])
+    newest = max(int(s["revision"]) for s in states)
+    last_of_revision = [s for s in states if int(s["revision"]) == revision][-1]
+    said: list[str] = []
+    standing = "latest"
+    if not exact or last_of_revision is not state:
+        beyond = [f for f in signed_fields(bytes(last_of_revision["pdf"]))
+                  if f not in signed_fields(pdf)]
+        how = "cut back at an earlier end of file" if not exact else "an earlier state"
+        said.append(f"incomplete: {how} of revision {revision}; the station holds "
+                    + (f"signatures beyond it: {', '.join(beyond)}" if beyond
+                       else "a later state of it"))
+        standing = "incomplete"
+    if newest > revision:
+        later = next(s for s in states if int(s["revision"]) == newest)
+        said.append(f"superseded by revision {newest} (record "
+                    f"{record_id_of(bytes(later['pdf'])) or 'id unknown'}, "
+                    f"{str(later['created_at'])[:16].replace('T', ' ')} UTC"
+                    + (f", reason: {later['reason']}" if later["reason"] else "") + ")")
+        standing = "superseded"
+    message = "; ".join(said) or f"the latest state of revision {revision}, as kept"
+    return replace(check, standing=standing, standing_message=message, revision=revision)
 
 
 def _check_chain(pdf: bytes, reports: list[SignatureReport],

@@ -266,6 +266,7 @@ class _PrintedRecord:
     revision: int
     signatures: int                 # how many it already carries
     supersedes: int | None
+    reason: str | None = None       # why a new revision supersedes the last one
 
 
 def record_revision(state: JobState) -> int:
@@ -285,7 +286,19 @@ def _print_for_signing(db: store.Database, job_id: int, state: JobState, head_ha
     pdf, boxes = render_for_signing(db, job_id, now, signatures_of(state),
                                     record_revision=revision)
     return _PrintedRecord(head_hash, pdf, boxes, revision, 0,
-                          latest["id"] if latest else None)
+                          latest["id"] if latest else None,
+                          _revision_reason(state) if latest else None)
+
+
+def _revision_reason(state: JobState) -> str | None:
+    """Why the record has a new revision: the latest return's reason or amendment's why."""
+    causes = sorted([*state.returns, *state.amendments], key=lambda e: e["received_at"])
+    if not causes:
+        return None
+    data = causes[-1]["data"]
+    said = data.get("reason") or data.get("why")
+    kind = "returned" if causes[-1]["kind"] == "returned" else "amended"
+    return f"{kind}: {said}" if said else kind
 
 
 def _print_ahead(db: store.Database, job_id: int, step_id: str | None, data: dict[str, Any],
@@ -337,7 +350,7 @@ def _sign_record(db: store.Database, job_id: int, state: JobState, event: dict[s
                          timestamper=signer.timestamper, validation=signer.validation)
     signers.add_record(db, job_id=job_id, revision=printed.revision, pdf=signed,
                        chain_hash=event["hash"], signatures=printed.signatures + 1, now=now,
-                       supersedes=printed.supersedes)
+                       supersedes=printed.supersedes, reason=printed.reason)
 
 
 def engine_tags(db: store.Database, engine_id: int) -> dict[str, Tag]:

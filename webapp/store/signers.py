@@ -61,6 +61,14 @@ def records_of(db: Database, job_id: int) -> list[dict]:
                          "order by revision, signatures", [job_id]))
 
 
+def stored_states(db: Database, job_id: int) -> list[dict]:
+    """Every signed state of a job's record the station kept (revision, signatures, when,
+    why, and the PDF bytes), oldest first: what a file is checked against."""
+    return list(db.query("select id, revision, signatures, created_at, supersedes, reason, pdf "
+                         "from records where job_id = ? order by revision, signatures",
+                         [job_id]))
+
+
 def revoked_signers(db: Database) -> list[dict]:
     """Every revoked signing identity: its certificate and when access ended."""
     return list(db.query("select person_id, cert_pem, revoked_at from signers "

@@ -159,6 +159,7 @@ def verify_page() -> Any:
         else:
             result = check_record(data, authority().cert,
                                   lambda job_id: job_store.events(db(), job_id),
-                                  revocations(signers.revoked_signers(db())))
-            status = 200 if result.ok else 422
+                                  revocations(signers.revoked_signers(db())),
+                                  lambda job_id: signers.stored_states(db(), job_id))
+            status = 200 if result.intact else 422
     return render_template("supervisor/verify.html", result=result, error=error), status
