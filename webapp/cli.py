@@ -245,8 +245,8 @@ def verify(pdf_file: Path, db_path: Path | None) -> None:
     try:
         result = check_record(pdf_file.read_bytes(), authority.cert,
                               lambda job_id: jobs.events(db, job_id),
-                              revocations(signers.revoked_signers(db)),
-                              lambda job_id: signers.stored_states(db, job_id))
+                              lambda job_id: signers.stored_states(db, job_id),
+                              revocations(signers.revoked_signers(db)))
     finally:
         db.close()
     click.echo(f"Record {result.record_id or '(unknown)'}"

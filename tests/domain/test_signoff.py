@@ -15,7 +15,7 @@ from webapp.domain.errors import RuleRefusal
 from webapp.domain.execution import configuration_for, job_state
 from webapp.domain.procedure_files import parse_procedure
 from webapp.domain.procedures import Sign
-from webapp.domain.signoff import check_signature, signature_refusal
+from webapp.domain.signoff import amendable_fields, check_signature, signature_refusal
 
 TASKS = Path(__file__).resolve().parents[2] / "tasks"
 CHECK_TEXT = (TASKS / "ignition-functional-check.yaml").read_text(encoding="utf-8")
@@ -188,17 +188,29 @@ def test_only_a_supervisor_amends_a_certified_record():
                                   "sign-engine": (MECH2, "performer"),
                                   "certify": (SUPER, "certifying")})
     assert state.status == "complete"
-    amendment = {"what": "Channel B count was 34", "why": "wrong column"}
+    # A count of channel B as recorded (demo values): what the station keeps of it.
+    step = state.step("count-b")
+    state = replace(state, readings=(*state.readings, {
+        "step": "count-b", "kind": "spark_count", "attempt": 1, "method": "timed",
+        "count": 36, "window_s": 30.0, "rate": 72.0, "verdict": "within", "channel": "B"}))
+    recorded = amendable_fields(state, step.id)
+    assert recorded == {"method": "timed", "count": 36, "window_s": 30.0}   # entered only
 
-    def amend(roles):
-        return check_event(state, "amendment", None, amendment,
+    def amend(roles, field="count", new="34"):
+        return check_event(state, "amendment", step.id,
+                           {"field": field, "new": new, "why": "wrong column"},
                            Circumstances(now=NOW, device_now=None, person_id=MECH1, job_id=1,
                                          roles=roles))
 
     with pytest.raises(RuleRefusal) as refusal:
         amend(("mechanic",))
     assert refusal.value.rule == "amendment_role"
-    assert amend(("supervisor",))["meaning"] == "Amended"
+    stored = amend(("supervisor",))
+    assert stored["meaning"] == "Amended" and stored["step"] == step.id
+    assert stored["old"] == recorded[stored["field"]]     # taken from the log, not typed
+    with pytest.raises(RuleRefusal) as refusal:
+        amend(("supervisor",), field="no-such-field")
+    assert refusal.value.rule == "no_such_field"
 
 
 def test_the_people_who_recorded_work_are_folded_from_the_log():

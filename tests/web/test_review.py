@@ -8,6 +8,7 @@ from tests.conftest import DEMO_PINS, csrf_token_of
 from tests.pdf_text import pdf_text
 from tests.web.jobs import _event, functional_check_counted
 from webapp.records.signing import empty_signature_fields, verify_record
+from webapp.records.verify import record_id_of
 from webapp.station.authority import station_authority
 from webapp.store import signers
 
@@ -111,11 +112,23 @@ def test_an_amendment_after_certification_makes_a_new_revision(signed_check, log
     supervisor = login("super")
     _decide(supervisor.client, signed_check.id, action="certify", pin=DEMO_PINS["super"])
     certified = signers.latest_record(db, signed_check.id)
-    bad = supervisor.post_json(f"/api/jobs/{signed_check.id}/events", _event(
-        None, "amendment", what=" ", why="typo", pin=DEMO_PINS["super"]))
-    assert bad.status_code == 422
-    answer = supervisor.post_json(f"/api/jobs/{signed_check.id}/events", _event(
-        "count-b", "amendment", what="Channel B count was 34, not 36, per the listener",
+    api = f"/api/jobs/{signed_check.id}/events"
+    before = len(signers.records_of(db, signed_check.id))
+    # Tied to a step and one of its recorded fields; the station takes the recorded value.
+    for step, fields, status, rule in (
+            (None, {"field": "count", "new": "34"}, 422, "bad_input"),        # no step
+            ("count-b", {"field": "colour", "new": "34"}, 409, "no_such_field"),
+            ("count-b", {"field": "count", "new": " "}, 422, "bad_input"),
+            ("count-b", {"field": "count", "new": "36"}, 422, "bad_input")):  # unchanged
+        bad = supervisor.post_json(api, _event(step, "amendment", why="typo",
+                                               pin=DEMO_PINS["super"], **fields))
+        assert (bad.status_code, bad.get_json()["rule"]) == (status, rule), bad.get_json()
+    assert "its fields are: count, method, window_s" in supervisor.post_json(api, _event(
+        "count-b", "amendment", field="colour", new="1", why="x",
+        pin=DEMO_PINS["super"])).get_json()["reason"]
+    assert len(signers.records_of(db, signed_check.id)) == before   # nothing signed
+    answer = supervisor.post_json(api, _event(
+        "count-b", "amendment", field="count", new="34",
         why="transcribed from the wrong column", pin=DEMO_PINS["super"]))
     assert answer.status_code == 201, answer.get_json()
     amended = signers.latest_record(db, signed_check.id)
@@ -125,17 +138,24 @@ def test_an_amendment_after_certification_makes_a_new_revision(signed_check, log
     assert signers.record(db, certified["id"])["pdf"] == certified["pdf"]
     reports = verify_record(amended["pdf"], station_authority(app.config["DB_PATH"], "x",
                                                               clock()).cert)
-    assert reports[-1].meaning.startswith("Amended: Channel B count")
+    assert reports[-1].meaning.startswith("Amended: step ")
+    assert "(count-b), count: recorded 36, corrected to 34" in reports[-1].meaning
     import pypdf
 
     text = "".join(page.extract_text() for page in pypdf.PdfReader(
         __import__("io").BytesIO(amended["pdf"])).pages)
     assert "Amendments after certification" in text and "wrong column" in text
+    flat = " ".join(text.split())
+    assert f"amends revision 1, record {record_id_of(certified['pdf'])}" in flat
+    # The earlier signatures are printed as given in revision 1, not as if in this file.
+    assert (f"Signed in revision 1 (record {record_id_of(certified['pdf'])}), not in this "
+            "file") in flat
+    assert "Count the spark snaps on channel B. count 36 34 transcribed from" in flat
     # The amending signature is stamped in the amendment's box, so it shows on paper
     # (21 CFR 11.50), and the box is filled: nothing left unsigned on this revision.
     stamped = " ".join(pdf_text(amended["pdf"], tmp_path).split())
     assert "Signed electronically by Priya Halvorsen" in stamped
-    assert "Meaning: Amended: Channel B count was 34, not 36" in stamped
+    assert "count: recorded 36, corrected to 34" in stamped
     assert empty_signature_fields(amended["pdf"]) == []
 
 

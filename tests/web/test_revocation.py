@@ -143,6 +143,7 @@ def test_sign_revoke_sign_again(mechanic, login, db, clock, authority, tmp_path)
     assert not isinstance(late.ades_subindic, AdESPassed), late.ades_subindic
     # The station's own check says why, from the time-stamp rather than the claimed time.
     check = check_record(forced, authority.cert, lambda job_id: jobs.events(db, job_id),
+                         lambda job_id: signers.stored_states(db, job_id),
                          revocations(signers.revoked_signers(db)))
     assert not check.ok
     assert any("after Aino Varga's signing access was revoked" in p for p in check.problems)

@@ -106,8 +106,9 @@ def test_verify_names_the_boxes_still_empty(installation, db, clock, app):
     installation.ok(_event("performer", "signed", pin=DEMO_PINS["mech1"]))
     pdf = signers.latest_record(db, installation.id)["pdf"]
     authority = station_authority(app.config["DB_PATH"], "x", clock())
-    result = check_record(pdf, authority.cert, lambda job_id: job_store.events(db, job_id))
-    assert result.ok                       # a record signed so far is intact
+    result = check_record(pdf, authority.cert, lambda job_id: job_store.events(db, job_id),
+                          lambda job_id: signers.stored_states(db, job_id))
+    assert result.ok                       # a record signed so far is intact, and the latest
     assert result.unsigned == ["inspector", "certify"]
 
 

@@ -121,6 +121,7 @@ def test_a_revoked_person_cannot_sign_but_earlier_signatures_stay_valid(login, d
     # The station's check says so, and says when access ended.
     revoked = revocations(signers.revoked_signers(db))
     check = check_record(earlier, authority.cert, lambda job_id: job_store.events(db, job_id),
+                         lambda job_id: signers.stored_states(db, job_id),
                          revoked)
     assert check.ok, check.problems
     assert any("revoked" in n and "stays valid" in n for n in check.notes)
@@ -134,6 +135,7 @@ def test_a_revoked_person_cannot_sign_but_earlier_signatures_stay_valid(login, d
     late = sign_record(earlier, key, field_name="late", meaning="Performed",
                        signer_name="Aino Varga", signed_at=clock())
     check = check_record(late, authority.cert, lambda job_id: job_store.events(db, job_id),
+                         lambda job_id: signers.stored_states(db, job_id),
                          revoked)
     assert not check.ok
     assert any("dated after Aino Varga's signing access was revoked" in p

@@ -36,7 +36,8 @@ def test_untouched_record_checks_out(signed, db_path):
     assert result.exit_code == 0, result.output
     assert "Aino Varga" in result.output and "Performed" in result.output
     assert "intact" in result.output and "trusted" in result.output
-    assert f"job {job.id}" in result.output and "The record checks out: intact, trusted and the latest state." in result.output
+    assert f"job {job.id}" in result.output
+    assert "The record checks out: intact, trusted and the latest state." in result.output
     assert result.exit_code == 0
 
 

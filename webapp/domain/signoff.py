@@ -19,7 +19,7 @@ from typing import TYPE_CHECKING, Any
 from . import readings
 from .authorisations import Authorisation, authorisation_for
 from .errors import RuleRefusal
-from .procedures import Sign
+from .procedures import Reading, Sign
 
 if TYPE_CHECKING:
     from .checks import Circumstances
@@ -36,25 +36,78 @@ def _is_sign(state: JobState, step_id: str) -> bool:
     return found is not None and isinstance(found.step, Sign)
 
 
+# Recorded fields an amendment may correct: what a person entered, never what the station
+# worked out from it (a verdict, a conversion) nor the engine's effects.
+_DERIVED = frozenset({"verdict", "margin", "converted", "procedure_unit", "applied", "rate",
+                      "resolution", "engine", "hash", "meaning", "scope", "pin",
+                      "certificate_sha256", "within", "limits_from", "both_check", "channel"})
+
+
+def amendable_fields(state: JobState, step_id: str) -> dict[str, Any]:
+    """The step's recorded fields an amendment may correct, with their recorded values: the
+    latest reading of a reading step, else the event that completed the step."""
+    latest = next((r for r in reversed(state.readings) if r["step"] == step_id), None)
+    source = latest if latest is not None else dict(
+        (state.completed.get(step_id) or {}).get("data") or {})
+    return {k: v for k, v in source.items() if k not in _DERIVED and not k.startswith("_")
+            and isinstance(v, (str, int, float)) and not isinstance(v, bool)
+            and k not in ("step", "kind", "attempt", "event", "person_id", "received_at")}
+
+
 def check_amendment(state: JobState, step_id: str | None, data: Mapping[str, Any],
                     at: Circumstances) -> dict[str, Any]:
-    """A correction after certification, by a supervisor: who (the event's person), why and
-    what; it makes a new record revision and never overwrites the earlier one."""
+    """A correction after certification, by a supervisor: of one recorded field of one done
+    step (the station takes the recorded value from the log; the supervisor gives the
+    corrected one and why). It makes a new record revision and never overwrites the earlier
+    one."""
     if state.status != "complete":
         raise RuleRefusal("not_certified", "Amendments are for certified jobs; while a job is "
                           "open its steps are corrected by recording them again.")
     if "supervisor" not in at.roles:
         raise RuleRefusal("amendment_role", "Only a supervisor amends a certified record: "
                           "tell a supervisor what needs correcting and why.")
-    if step_id is not None and step_id not in state.positions:
-        raise RuleRefusal("unknown_step", f"Step '{step_id}' is not part of this job.")
-    stored: dict[str, Any] = {}
-    for name, asked in (("what", "Say what is corrected."), ("why", "Say why.")):
-        value = data.get(name)
-        if not isinstance(value, str) or not value.strip():
-            raise readings.InputProblem(name, asked)
-        stored[name] = value.strip()
+    target = state.step(step_id) if step_id else None
+    if target is None or target.status != "done" or isinstance(target.step, Sign):
+        raise readings.InputProblem("step", "Choose the done work step whose record is "
+                                    "corrected.")
+    fields = amendable_fields(state, target.id)
+    name = data.get("field")
+    if not isinstance(name, str) or name not in fields:
+        raise RuleRefusal("no_such_field", f"Step {target.number} has no recorded field "
+                          f"'{name}' to correct; its fields are: "
+                          + (", ".join(sorted(fields)) or "none") + ".",
+                          fields=sorted(fields))
+    stored: dict[str, Any] = {"step": target.id, "field": name, "old": fields[name]}
+    for key, asked in (("new", "Give the corrected value."), ("why", "Say why.")):
+        value = data.get(key)
+        if not isinstance(value, str) or not value.strip() or len(value.strip()) > 300:
+            raise readings.InputProblem(key, asked + " (at most 300 characters)")
+        stored[key] = value.strip()
+    if str(stored["old"]) == stored["new"]:
+        raise readings.InputProblem("new", "The corrected value is the one recorded.")
+    _judge_corrected_value(target.step, name, fields, stored)
+    stored["what"] = (f"step {target.number} ({target.id}), {name}: recorded "
+                      f"{stored['old']}, corrected to {stored['new']}")
     return {**stored, "meaning": "Amended"}
+
+
+def _judge_corrected_value(step: Any, name: str, fields: Mapping[str, Any],
+                           stored: dict[str, Any]) -> None:
+    """A corrected reading value is judged against the step's limits as any reading is; an
+    amendment cannot turn a certified reading out of limits (that is rework, not a record's
+    correction)."""
+    if not (isinstance(step, Reading) and step.value == "number" and name == "value"):
+        return
+    assert step.unit is not None and step.limits is not None
+    measured = readings.measure("new", stored["new"], fields.get("unit") or step.unit,
+                                step.unit)
+    judged = readings.verdict(measured.converted, step.limits.min, step.limits.max,
+                              step.near_margin)
+    if judged.verdict == "out of limits":
+        raise RuleRefusal("amendment_out_of_limits", f"The corrected value {stored['new']} is "
+                          "outside the step's limits: the work needs a finding and rework on "
+                          "a new job, not an amendment of the certified record.")
+    stored["verdict"] = judged.verdict
 
 
 def check_return(state: JobState, data: Mapping[str, Any], at: Circumstances

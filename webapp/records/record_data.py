@@ -20,11 +20,11 @@ from ..domain import gates
 from ..domain.chain import first_broken_link
 from ..domain.execution import JobState
 from ..domain.procedures import Sign
-from ..store import Database, fleet
+from ..store import Database, fleet, signers
 from ..store import jobs as job_store
 from ..store import procedures as procedure_store
 from ..store.job_states import Job, load_job
-from .record_entries import Entry, People, Who, station_time
+from .record_entries import AmendmentLine, Entry, People, Who, station_time, step_of
 from .record_gates import (
     DischargeLine,
     Handover,
@@ -53,6 +53,7 @@ from .record_steps import (
     step_line,
     tags_by_step,
 )
+from .verify import record_id_of
 
 NONE = "none"
 
@@ -109,7 +110,8 @@ class WorkRecord:
     record_revision: int = 1   # 1, then one more after each return and each amendment
     returns: list[Entry] = field(default_factory=list)      # sent back by a supervisor
     items_closed: list[Entry] = field(default_factory=list)  # engine open items put right
-    amendments: list[Entry] = field(default_factory=list)   # corrections after certification
+    amendments: list[AmendmentLine] = field(default_factory=list)  # after certification
+    amends: str = ""          # which revision and record this revision amends
 
     @property
     def findings(self) -> list[ReadingLine]:
@@ -152,7 +154,8 @@ def gather(db: Database, job_id: int, now: datetime,
     procedure = state.procedure
     source = procedure.source
     broken = first_broken_link(events)
-    sign_blocks, release = sign_blocks_and_release(state, signatures or [])
+    sign_blocks, release = sign_blocks_and_release(
+        state, _placed(db, job_id, signatures or [], record_revision))
     readings = [reading_line(r, state, numbers, who) for r in state.readings]
     tags, handovers = tags_and_handovers(db, row, state, who)
     tagged = tags_by_step(events)
@@ -215,10 +218,47 @@ def gather(db: Database, job_id: int, now: datetime,
                        "work done again from this step on" if r["data"].get("repeat_from")
                        else "signatures only")
                  for r in state.returns],
-        amendments=[Entry(a["data"]["what"], who(a["person_id"]),
-                          station_time(a["received_at"]), numbers.get(a["step_id"]),
-                          a["data"]["why"]) for a in state.amendments],
+        amendments=[_amendment(a, state, numbers, who) for a in state.amendments],
+        amends=_amends(db, job_id, record_revision) if state.amendments else "",
     )
+
+
+def _amendment(a: Mapping[str, Any], state: JobState, numbers: Mapping[str, int],
+               who: People) -> AmendmentLine:
+    d = a["data"]
+    step = step_of(state, a["step_id"] or "")
+    words = " ".join(step.text.split()) if step is not None else "—"
+    return AmendmentLine(numbers.get(a["step_id"] or ""), words[:90] + ("…" if len(words) > 90
+                                                                        else ""),
+                         str(d.get("field") or "—"),
+                         str(d["old"]) if "old" in d else str(d.get("what", "—")),
+                         str(d.get("new", "—")), d["why"], who(a["person_id"]),
+                         station_time(a["received_at"]))
+
+
+def _placed(db: Database, job_id: int, signatures: Sequence[Mapping[str, Any]],
+            revision: int) -> list[Mapping[str, Any]]:
+    """Signatures given in an earlier revision say so, with that revision's record id: they
+    are not signatures of this file."""
+    if not any(int(s.get("revision") or revision) < revision for s in signatures):
+        return list(signatures)
+    ids: dict[int, str] = {}
+    for state in signers.stored_states(db, job_id):
+        ids.setdefault(int(state["revision"]), record_id_of(bytes(state["pdf"])) or "id unknown")
+    return [{**s, "where": f"Signed in revision {s['revision']} (record "
+                           f"{ids.get(int(s['revision']), 'id unknown')})"}
+            if int(s.get("revision") or revision) < revision else s for s in signatures]
+
+
+def _amends(db: Database, job_id: int, revision: int) -> str:
+    """Which revision and record this one amends (the one it supersedes, as kept)."""
+    earlier = [s for s in signers.stored_states(db, job_id) if int(s["revision"]) < revision]
+    if not earlier:
+        return ""
+    last = earlier[-1]
+    return (f"This revision ({revision}) amends revision {last['revision']}, record "
+            f"{record_id_of(bytes(last['pdf'])) or '(id unknown)'}, kept unchanged at the "
+            "station.")
 
 
 def _completion(state: JobState) -> str:

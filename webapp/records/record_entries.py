@@ -70,6 +70,21 @@ class Entry:
     detail: str = ""
 
 
+@dataclass(frozen=True)
+class AmendmentLine:
+    """A correction after certification: the step and field, the value recorded and the
+    corrected one side by side, why, who and when."""
+
+    step_number: int | None
+    step: str
+    field: str
+    recorded: str
+    corrected: str
+    why: str
+    by: Who | None
+    at: str
+
+
 def step_of(state: JobState, step_id: str) -> Step | None:
     """The job's applicable step with this id, or None when it has no such step."""
     position = state.positions.get(step_id)

@@ -31,6 +31,7 @@ class Signature:
     kind: str
     meaning: str
     signed_at: str
+    where: str = ""   # "Signed in revision 1 (record SW-…)" when not signed in this file
 
 
 @dataclass(frozen=True)
@@ -73,7 +74,8 @@ def _signature(raw: Mapping[str, Any]) -> Signature:
                      authorisation=str(raw.get("authorisation") or "—"),
                      kind=str(raw.get("kind") or AUTHORISATION_KIND),
                      meaning=str(raw.get("meaning") or "—"),
-                     signed_at=station_time(raw.get("signed_at")))
+                     signed_at=station_time(raw.get("signed_at")),
+                     where=str(raw.get("where") or ""))
 
 
 def _role_of(raw: Mapping[str, Any]) -> str | None:

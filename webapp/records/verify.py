@@ -109,8 +109,8 @@ def _revocation_notes(reports: list[SignatureReport], revoked: Mapping[str, date
 
 
 def check_record(pdf: bytes, trust_root: x509.Certificate, events_of_job: Any,
-                 revoked: Mapping[str, datetime] | None = None,
-                 states_of_job: Any = None) -> RecordCheck:
+                 states_of_job: Any, revoked: Mapping[str, datetime] | None = None
+                 ) -> RecordCheck:
     """`events_of_job(job_id)` gives the job's events from the station's database (or None);
     `revoked` the station's revocation times by certificate SHA-256 (see `revocations`);
     `states_of_job(job_id)` the record's signed states the station kept (store.signers
@@ -123,7 +123,7 @@ def check_record(pdf: bytes, trust_root: x509.Certificate, events_of_job: Any,
     check = _check_chain(pdf, reports, events_of_job)
     late, notes = _revocation_notes(reports, revoked or {})
     check = replace(check, problems=check.problems + late, unsigned=unsigned, notes=notes)
-    if check.job_id is not None and states_of_job is not None:
+    if check.job_id is not None:
         check = _with_standing(check, pdf, list(states_of_job(check.job_id) or []))
     return check
 

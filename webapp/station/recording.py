@@ -252,7 +252,9 @@ def signatures_of(state: JobState) -> list[dict[str, Any]]:
                           "kind": event["data"].get("licence_kind"),
                           "meaning": event["data"]["meaning"],
                           "scope": event["data"].get("scope"),
-                          "signed_at": event["received_at"]})
+                          "signed_at": event["received_at"],
+                          "revision": 1 + sum(1 for e in (*state.returns, *state.amendments)
+                                              if e["received_at"] < event["received_at"])})
     return found
 
 

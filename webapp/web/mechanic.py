@@ -116,8 +116,7 @@ def _event_data(kind: str, form: Any) -> dict[str, Any]:
     if kind == "signed":
         return {"pin": form.get("pin", "")}
     if kind == "amendment":
-        return {"what": form.get("what", ""), "why": form.get("why", ""),
-                "pin": form.get("pin", "")}
+        return {k: form.get(k, "") for k in ("field", "new", "why", "pin")}
     if kind == "sparks_counted":
         return _count_data(form)
     if kind == "finding":

@@ -60,7 +60,9 @@ EVENT_DATA = (
     "station stores with it the signer's name and the authorisation used (\"authorisation\": "
     "its number, \"licence_kind\"). returned (supervisor, step null): "
     "{\"reason\", \"repeat_from\": a done work step's id or null}. amendment (supervisor, "
-    "after certification): {\"what\", \"why\", \"pin\"}.")
+    "after certification, step: the done work step corrected): {\"field\": one of that "
+    "step's recorded fields, \"new\": the corrected value, \"why\", \"pin\"}; the station "
+    "takes the recorded value from the log and prints both.")
 
 _REFUSAL = {
     "type": "object", "required": ["rule", "reason"],

@@ -9,7 +9,7 @@ from flask import Blueprint, Response, abort, redirect, render_template, request
 
 from ..domain.checks import job_progress
 from ..domain.release import given_release, job_statement
-from ..domain.signoff import awaiting_review
+from ..domain.signoff import amendable_fields, awaiting_review
 from ..station import recording
 from ..store import engines, people, signers
 from ..store import jobs as job_store
@@ -76,6 +76,11 @@ def _review_page(job_id: int, error: str | None = None, status: int = 200) -> An
                            record=record, certifying=certifying, error=error,
                            sign=sign_view(db(), job.state, certifying, person(), now().date()),
                            latest=signers.latest_record(db(), job_id),
+                           amendable=[(p, name, value) for p in job.state.steps
+                                      if p.status == "done" and p.step.kind != "sign"
+                                      for name, value in amendable_fields(job.state,
+                                                                          p.id).items()]
+                           if job.state.status == "complete" else [],
                            event_id=str(uuid.uuid4())), status
 
 
@@ -98,9 +103,10 @@ def decide(job_id: int) -> Any:
         kind, step_id = "returned", None
         data = {"reason": form.get("reason", ""), "repeat_from": form.get("repeat_from") or None}
     elif action == "amend":
-        kind, step_id = "amendment", form.get("step") or None
-        data = {"what": form.get("what", ""), "why": form.get("why", ""),
-                "pin": form.get("pin", "")}
+        target_step, _, target_field = form.get("target", "").partition("::")
+        kind, step_id = "amendment", target_step or None
+        data = {"field": target_field, "new": form.get("new", ""),
+                "why": form.get("why", ""), "pin": form.get("pin", "")}
     else:
         abort(400, "Choose to certify or to return the job.")
     outcome = recording.record_event(db(), job_id, event_id=form.get("event_id") or
@@ -159,7 +165,7 @@ def verify_page() -> Any:
         else:
             result = check_record(data, authority().cert,
                                   lambda job_id: job_store.events(db(), job_id),
-                                  revocations(signers.revoked_signers(db())),
-                                  lambda job_id: signers.stored_states(db(), job_id))
+                                  lambda job_id: signers.stored_states(db(), job_id),
+                                  revocations(signers.revoked_signers(db())))
             status = 200 if result.intact else 422
     return render_template("supervisor/verify.html", result=result, error=error), status
