@@ -114,6 +114,10 @@ def test_the_untouched_latest_record_checks_out(check, db, db_path, tmp_path, cl
     assert result.exit_code == 0, result.output
     assert "the latest state of revision 1" in result.output
     assert all(intact and valid for intact, valid, _, _ in _pyhanko(latest, db_path, clock))
+    # Header and catalog agree on the version through every incremental signature (ISO
+    # 32000-1 7.5.2: a catalog /Version, if any, must not contradict what the file is).
+    catalog = PdfFileReader(io.BytesIO(latest)).root.get("/Version")
+    assert latest.startswith(b"%PDF-1.7") and catalog in (None, "/1.7"), catalog
 
 
 @pytest.mark.parametrize("change", ["byte flipped", "content", "annotation", "re-saved",

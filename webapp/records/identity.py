@@ -8,10 +8,12 @@ in the clear: it is sealed with AES-256-GCM under a key derived from their signi
 PIN with Argon2id, and only the PIN unseals it for one signing. The station keeps
 the sealed key and the certificate; a wrong PIN fails loudly and never yields a key.
 
-Keys are EC P-256 throughout, the authority's too: pyHanko and common PDF readers
-verify ECDSA P-256; it gives the ~128-bit strength of RSA 3072 (NIST SP 800-57 Pt 1
-Table 2) with far smaller keys and signatures, and key generation at enrolment is
-instant on a small station PC where RSA 3072 takes a noticeable moment.
+The authority's and the TLS server's keys are EC P-256. A person's signing key is RSA
+3072 (the same ~128-bit strength, NIST SP 800-57 Pt 1 Table 2): an ECDSA signature in a
+PDF is an ISO/TS 32002 extension of PDF 2.0, which would lift every signed record's
+catalog to version 2.0 while the record is an archival PDF/A-3 file, a PDF 1.7 profile;
+RSA signatures are PDF 1.7's own, so header, catalog and archival profile agree.
+Generating the key takes about half a second, once per enrolment.
 
 The same authority also issues the station its own TLS server certificate for the hangar
 LAN (`issue_server_certificate`), so tablets that trust the authority get a secure origin.
@@ -37,7 +39,7 @@ from asn1crypto import x509 as asn1_x509
 from cryptography import x509
 from cryptography.exceptions import InvalidSignature, InvalidTag
 from cryptography.hazmat.primitives import hashes, serialization
-from cryptography.hazmat.primitives.asymmetric import ec
+from cryptography.hazmat.primitives.asymmetric import ec, rsa
 from cryptography.hazmat.primitives.ciphers.aead import AESGCM
 from cryptography.x509.oid import ExtendedKeyUsageOID, NameOID
 from pyhanko.sign import signers
@@ -158,7 +160,7 @@ def save_authority(authority: StationAuthority, folder: Path, passphrase: bytes)
                               KEY_FILE, CERT_FILE)
 
 
-def _save_key_and_certificate(key: ec.EllipticCurvePrivateKey, cert: x509.Certificate,
+def _save_key_and_certificate(key: SigningKey, cert: x509.Certificate,
                               folder: Path, passphrase: bytes, key_name: str,
                               cert_name: str) -> None:
     """A key encrypted under the passphrase, readable by the owner only, and its certificate."""
@@ -196,7 +198,15 @@ def _pin_key(pin: str, salt: bytes, time_cost: int, memory_cost: int, parallelis
                            type=Type.ID)
 
 
-def seal_key(private_key: ec.EllipticCurvePrivateKey, pin: str) -> SealedKey:
+SigningKey = ec.EllipticCurvePrivateKey | rsa.RSAPrivateKey
+SIGNING_KEY_BITS = 3072
+
+
+def new_signing_key() -> rsa.RSAPrivateKey:
+    return rsa.generate_private_key(public_exponent=65537, key_size=SIGNING_KEY_BITS)
+
+
+def seal_key(private_key: SigningKey, pin: str) -> SealedKey:
     """Encrypt the key's PKCS#8 DER under a key derived from the PIN, with a fresh salt."""
     salt, nonce = secrets.token_bytes(16), secrets.token_bytes(12)
     der = private_key.private_bytes(serialization.Encoding.DER,
@@ -217,16 +227,16 @@ def _unseal_der(sealed: SealedKey, pin: str) -> bytes:
         raise WrongPin("That signing PIN is not right.") from None
 
 
-def unseal_key(sealed: SealedKey, pin: str) -> ec.EllipticCurvePrivateKey:
-    """The private key back, or WrongPin."""
+def unseal_key(sealed: SealedKey, pin: str) -> SigningKey:
+    """The private key back (RSA, or EC for one enrolled before RSA), or WrongPin."""
     key = serialization.load_der_private_key(_unseal_der(sealed, pin), password=None)
-    if not isinstance(key, ec.EllipticCurvePrivateKey):
-        raise ValueError("The sealed key is not an EC key.")
+    if not isinstance(key, (ec.EllipticCurvePrivateKey, rsa.RSAPrivateKey)):
+        raise ValueError("The sealed key is not an RSA or EC key.")
     return key
 
 
 def _signed_by(authority: StationAuthority, builder: x509.CertificateBuilder,
-               key: ec.EllipticCurvePrivateKey) -> x509.Certificate:
+               key: SigningKey) -> x509.Certificate:
     """The certificate signed by the station's CA, with the key identifiers that link it to
     its issuer (RFC 5280 4.2.1.1-2)."""
     authority_ski = authority.cert.extensions.get_extension_for_class(
@@ -245,8 +255,8 @@ def _signed_by(authority: StationAuthority, builder: x509.CertificateBuilder,
 def issue_person_certificate(
     authority: StationAuthority, *, full_name: str, username: str,
     authorisation: str | None, now: datetime,
-) -> tuple[ec.EllipticCurvePrivateKey, x509.Certificate]:
-    """A fresh key and a 3-year signing certificate that names the person.
+) -> tuple[rsa.RSAPrivateKey, x509.Certificate]:
+    """A fresh RSA key and a 3-year signing certificate that names the person.
 
     Subject: CN = full name (what a PDF reader shows), UID = station username (unique
     even when two people share a name), serialNumber = authorisation number when the
@@ -254,7 +264,7 @@ def issue_person_certificate(
     subject itself, so readers show it as part of the name, unlike a free-text OU.
     """
     now = _aware(now)
-    key = ec.generate_private_key(ec.SECP256R1())
+    key = new_signing_key()
     attributes = [x509.NameAttribute(NameOID.COMMON_NAME, full_name),
                   x509.NameAttribute(NameOID.USER_ID, username)]
     if authorisation:

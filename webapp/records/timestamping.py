@@ -20,7 +20,7 @@ from asn1crypto import algos, cms, core, tsp
 from asn1crypto import x509 as asn1_x509
 from cryptography import x509
 from cryptography.hazmat.primitives import hashes, serialization
-from cryptography.hazmat.primitives.asymmetric import ec
+from cryptography.hazmat.primitives.asymmetric import padding, rsa
 from cryptography.x509.oid import ExtendedKeyUsageOID, NameOID
 from pyhanko.sign.general import as_signing_certificate_v2, simple_cms_attribute
 from pyhanko.sign.timestamps.api import TimeStamper
@@ -31,6 +31,7 @@ from .identity import (
     _signed_by,
     asn1_certificate,
     distribution_point,
+    new_signing_key,
 )
 
 KEY_FILE = "time-stamp-key.pem"
@@ -44,13 +45,13 @@ POLICY = "2.25.184301587412869734119584637912011938211"
 @dataclass(frozen=True)
 class TimeStampUnit:
     cert: x509.Certificate
-    key: ec.EllipticCurvePrivateKey
+    key: rsa.RSAPrivateKey   # RSA, as the signing keys are (see identity: PDF 1.7 records)
 
 
 def issue_time_stamp_unit(authority: StationAuthority, name: str) -> TimeStampUnit:
     """A fresh key and a certificate that allows time-stamping only, valid for as long as the
     authority is (tokens made at any time of the station's history must check out)."""
-    key = ec.generate_private_key(ec.SECP256R1())
+    key = new_signing_key()
     builder = (
         x509.CertificateBuilder()
         .subject_name(x509.Name([x509.NameAttribute(NameOID.COMMON_NAME,
@@ -109,13 +110,13 @@ def answer(unit: TimeStampUnit, cert: asn1_x509.Certificate,
         simple_cms_attribute("signing_certificate_v2", as_signing_certificate_v2(cert)),
         simple_cms_attribute("message_digest", _sha256(tst_info)),
     ])
-    signature = unit.key.sign(signed_attrs.dump(), ec.ECDSA(hashes.SHA256()))
+    signature = unit.key.sign(signed_attrs.dump(), padding.PKCS1v15(), hashes.SHA256())
     signer_info = cms.SignerInfo({
         "version": "v1",
         "sid": cms.SignerIdentifier({"issuer_and_serial_number": cms.IssuerAndSerialNumber(
             {"issuer": cert.issuer, "serial_number": cert.serial_number})}),
         "digest_algorithm": algos.DigestAlgorithm({"algorithm": "sha256"}),
-        "signature_algorithm": algos.SignedDigestAlgorithm({"algorithm": "sha256_ecdsa"}),
+        "signature_algorithm": algos.SignedDigestAlgorithm({"algorithm": "sha256_rsa"}),
         "signed_attrs": signed_attrs, "signature": signature})
     signed_data = cms.SignedData({
         "version": "v3",
@@ -146,7 +147,7 @@ def load_unit(folder, passphrase: bytes) -> TimeStampUnit | None:
     if not (folder / CERT_FILE).is_file():
         return None
     key = serialization.load_pem_private_key((folder / KEY_FILE).read_bytes(), passphrase)
-    if not isinstance(key, ec.EllipticCurvePrivateKey):
-        raise ValueError("The time-stamp unit's key is not an EC key.")
+    if not isinstance(key, rsa.RSAPrivateKey):
+        return None   # a unit from before RSA: the station issues a new one
     return TimeStampUnit(cert=x509.load_pem_x509_certificate((folder / CERT_FILE).read_bytes()),
                          key=key)
