@@ -26,7 +26,7 @@ PORT_OPTION = click.option("--port", default=8000, show_default=True, type=int)
 def _check_names(_ctx: click.Context, _param: click.Parameter,
                  names: tuple[str, ...]) -> tuple[str, ...]:
     """Refuse a bad --name while the command line is read, before anything is changed."""
-    from .records.identity import ServerNameProblem, parse_server_name
+    from .records.server_identity import ServerNameProblem, parse_server_name
 
     for name in names:
         try:
@@ -178,7 +178,7 @@ def _serve_https(app: Flask, host: str, port: int, extra_names: tuple[str, ...])
     from cheroot.ssl.builtin import BuiltinSSLAdapter
     from cryptography import x509
 
-    from .records.identity import ServerNameProblem, certificate_fingerprint
+    from .records.server_identity import ServerNameProblem, certificate_fingerprint
     from .station.authority import lan_names, station_tls
 
     try:

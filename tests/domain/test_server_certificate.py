@@ -11,11 +11,11 @@ from cryptography import x509
 from cryptography.hazmat.primitives import serialization
 from cryptography.x509.oid import ExtendedKeyUsageOID
 
-from webapp.records.identity import (
+from webapp.records.identity import create_authority
+from webapp.records.server_identity import (
     SERVER_KEY_FILE,
     SERVER_VALIDITY,
     ServerNameProblem,
-    create_authority,
     issue_server_certificate,
     parse_server_name,
     server_certificate_serves,

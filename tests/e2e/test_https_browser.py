@@ -20,7 +20,7 @@ from playwright.sync_api import expect
 
 from tests.conftest import DEMO_PASSWORDS
 from tests.https_station import serving_https
-from webapp.records.identity import SERVER_CERT_FILE
+from webapp.records.server_identity import SERVER_CERT_FILE
 from webapp.station.authority import authority_folder
 
 from .conftest import wait_until

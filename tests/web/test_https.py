@@ -15,7 +15,8 @@ from cryptography.hazmat.primitives import hashes, serialization
 
 from tests.https_station import serving_https
 from webapp.cli import cli
-from webapp.records.identity import CERT_FILE, SERVER_CERT_FILE
+from webapp.records.identity import CERT_FILE
+from webapp.records.server_identity import SERVER_CERT_FILE
 from webapp.station.authority import authority_folder
 
 

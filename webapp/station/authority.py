@@ -22,16 +22,18 @@ from .. import store
 from ..records import revocation, timestamping
 from ..records.identity import (
     CERT_FILE,
+    StationAuthority,
+    create_authority,
+    load_authority,
+    save_authority,
+)
+from ..records.server_identity import (
     SERVER_CERT_FILE,
     SERVER_KEY_FILE,
     ServerNameProblem,
-    StationAuthority,
-    create_authority,
     issue_server_certificate,
-    load_authority,
     load_server_certificate,
     parse_server_name,
-    save_authority,
     save_server_identity,
     server_certificate_serves,
 )

@@ -8,8 +8,8 @@ from cryptography.hazmat.primitives import serialization
 from cryptography.x509.oid import NameOID
 from flask import Blueprint, Response, render_template, request
 
-from ..records.identity import certificate_fingerprint
 from ..records.revocation import LIST_PATH
+from ..records.server_identity import certificate_fingerprint
 from ..station.authority import current_revocation_list
 from .common import authority, db, now, public
 
