@@ -1,17 +1,8 @@
-"""Readings with units and limits: conversions, refusals, verdicts, torque, findings, sparks.
-
-Pure unit tests of webapp.domain.readings (no app, no database). Every expected value says
-where it comes from, with its status:
-
-- Torque: 1 lbf·in = 0.1129848 N·m, 1 lbf·ft = 1.355818 N·m, 12 lbf·in = 1 lbf·ft exactly —
-  NIST SP 811 Appendix B.9, verified in a secondary copy.
-- 1 kgf·cm = 0.0980665 N·m — NIST SP 811 Appendix B.9 (exact:
-  1 kgf = 9.80665 N by definition of standard gravity).
-- 1 lbf = 4.4482216152605 N; 1 in = 0.0254 m exactly — NIST SP 811 / international yard and
-  pound, textbook. 1 in = 25.4 mm exactly; 1 thou = 0.0254 mm — NIST SP 811, textbook.
-- Temperature: t/°C = (t/°F − 32) / 1.8 — definition of the scale, textbook.
-- Adapter: T_set = T_req·L/(L+E) — FAA AC 43.13-1B para 7-40, from memory.
-- Spark counts, limits and tolerances below are demo data, invented.
+"""Spark counts as the station records them (webapp.domain.spark_counts, no app, no
+database): timed and tapped counts, their rate and resolution, the verdict, and both
+channels together checked against A and B. Rates are counts over time, by hand: 36 snaps
+in 30 s is 72 per minute, good to ±2 (one snap in 30 s). Limits and tolerances are demo
+data, invented.
 """
 
 from __future__ import annotations

@@ -1,17 +1,11 @@
-"""Readings with units and limits: conversions, refusals, verdicts, torque, findings, sparks.
+"""Torque readings (webapp.domain.torque, no app, no database): the wrench setting, the
+lubricant factor, an adapter at its angle, the wrench's calibration, one reading per
+fastener. Each expected value says where it comes from:
 
-Pure unit tests of webapp.domain.readings (no app, no database). Every expected value says
-where it comes from, with its status:
-
-- Torque: 1 lbf·in = 0.1129848 N·m, 1 lbf·ft = 1.355818 N·m, 12 lbf·in = 1 lbf·ft exactly —
-  NIST SP 811 Appendix B.9, verified in a secondary copy.
-- 1 kgf·cm = 0.0980665 N·m — NIST SP 811 Appendix B.9 (exact:
-  1 kgf = 9.80665 N by definition of standard gravity).
-- 1 lbf = 4.4482216152605 N; 1 in = 0.0254 m exactly — NIST SP 811 / international yard and
-  pound, textbook. 1 in = 25.4 mm exactly; 1 thou = 0.0254 mm — NIST SP 811, textbook.
-- Temperature: t/°C = (t/°F − 32) / 1.8 — definition of the scale, textbook.
-- Adapter: T_set = T_req·L/(L+E) — FAA AC 43.13-1B para 7-40, from memory.
-- Spark counts, limits and tolerances below are demo data, invented.
+- 1 lbf·in = 0.1129848 N·m — NIST SP 811 Appendix B.9.
+- In line: T_set = T_req·L/(L+E) — FAA AC 43.13-1B para 7-40, from memory; at an angle θ the
+  moment arm is L + E·cos θ — statics, checked against numpy's cross product below.
+- Limits, lubricants, bolt names and factors are demo data, invented.
 """
 
 from __future__ import annotations
@@ -29,7 +23,6 @@ from webapp.domain.readings import InputProblem
 
 REL = 1e-6          # against the published factors, which NIST rounds to 7 significant figures
 EXACT = 1e-12       # exact by definition: only float rounding may separate the two
-INCH_M = 0.0254     # 1 in = 0.0254 m exactly — NIST SP 811 / international yard and pound, textbook
 TODAY = date(2026, 3, 16)  # a fixed day for the calibration checks
 
 

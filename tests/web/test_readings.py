@@ -7,19 +7,11 @@ from datetime import timedelta
 
 import pytest
 
-from tests.web.jobs import Job, _event, exciter_removed
+from tests.web.jobs import Job, _event
 from webapp.records.pdf import record_html
 from webapp.store import jobs as job_store
 
 LBF_IN_IN_N_M = 0.1129848  # NIST SP 811 B.9: 1 lbf·in = 0.1129848 N·m
-
-
-@pytest.fixture
-def installation(mechanic, db, clock):
-    exciter_removed(mechanic, db, clock)
-    job = Job(mechanic, db, clock, "exciter-installation")
-    job.walk_to("mounting-torque")
-    return job
 
 
 # The demo bracket's four bolts, each torqued and judged on its own (tasks/ demo data).

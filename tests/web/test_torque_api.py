@@ -8,18 +8,9 @@ import math
 
 import pytest
 
-from tests.web.jobs import Job, _event, exciter_removed
+from tests.web.jobs import Job, _event
 from tests.web.test_readings import BOLTS, counts, torque
 from webapp.records.pdf import record_html
-
-
-@pytest.fixture
-def installation(mechanic, db, clock):
-    """An exciter installation at its mounting torque (four named bolts, demo data)."""
-    exciter_removed(mechanic, db, clock)
-    job = Job(mechanic, db, clock, "exciter-installation")
-    job.walk_to("mounting-torque")
-    return job
 
 
 def test_a_reading_without_its_fastener_is_refused_at_the_field_and_nothing_stored(
