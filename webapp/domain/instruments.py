@@ -92,7 +92,8 @@ def check_entry(*, instrument_id: Any, kind: Any, range_low: Any, range_high: An
     try:
         parse_unit(unit_text, INSTRUMENT_KINDS[kind])
     except UnitProblem as problem:
-        raise InputProblem("range_unit", str(problem).capitalize() + ".") from None
+        said = str(problem)
+        raise InputProblem("range_unit", said[:1].upper() + said[1:] + ".") from None
     due = _due_date(calibration_due)
     if status not in STATUSES:
         raise InputProblem("status", "Choose the status: " + ", ".join(STATUSES) + ".")
