@@ -150,8 +150,8 @@ def test_21_cfr_11_10_readings_gates_hashes_and_pages_in_readable_form(
     assert "torque wrench TW-017" in text and "2027-06-30" in text
     # Each instrument from the register against the reading it took (demo register data).
     assert "Instruments with calibration" in text
-    assert "erosion gauge EG-011 (range 0–3 mm), calibration due 2027-01-31" in text
-    assert "torque wrench TW-031 (range 100–600 lbf·in), calibration due 2027-03-31" in text
+    assert "erosion gauge EG-011 (range 0–3 mm), calibration due 2027-07-31" in text
+    assert "torque wrench TW-031 (range 100–600 lbf·in), calibration due 2027-09-30" in text
     # Lockout/tagout (29 CFR 1910.147(d)-(e) order of work): tags, breakers, the handover,
     # the power-off time and the discharge wait served.
     for shown in ("T-1", "T-2", "IGN-A", "IGN-B", "taken over"):
