@@ -1,5 +1,5 @@
-"""Station commands: init, demo, serve, tasks check, people add and authorise (also under
-`flask`)."""
+"""Station commands: init, demo, serve, tasks check, people add and authorise, instruments
+(also under `flask`)."""
 
 from __future__ import annotations
 
@@ -11,6 +11,7 @@ import click
 from flask import Flask
 
 from . import store
+from .cli_instruments import instruments
 from .clock import system_clock
 from .domain.procedure_files import ProcedureInvalid
 from .station.library import check_files, load_shop_library
@@ -387,6 +388,9 @@ def people_authorise(db_path: Path | None, username: str, signatures: str, scope
                f"{', '.join(granted.signatures)} within {granted.scope_text}, under "
                f"{granted.licence_kind} no. {granted.licence_number}, valid through "
                f"{granted.expires_on.isoformat()}")
+
+
+cli.add_command(instruments)
 
 
 def register(app: Flask) -> None:

@@ -19,7 +19,8 @@ from __future__ import annotations
 
 import itertools
 import math
-from datetime import UTC, datetime, timedelta
+from dataclasses import replace
+from datetime import UTC, date, datetime, timedelta
 from pathlib import Path
 from typing import Any
 
@@ -37,6 +38,7 @@ from webapp.domain.execution import (
     job_state,
 )
 from webapp.domain.gates import ChannelClock, DutyPeriod, PowerOff, Tag
+from webapp.domain.instruments import Instrument
 from webapp.domain.procedure_files import parse_procedure
 from webapp.domain.procedures import DischargeWait, DutyCycle, Lockout, Procedure
 
@@ -368,6 +370,10 @@ def test_with_only_one_device_time_known_the_station_clock_decides():
 # 3. Through a job: exciter removal on a DC engine, channel A
 # =========================================================================================
 
+# The register these jobs' readings are taken with (invented; due far ahead).
+TEST_REGISTER = {"VM-1": Instrument("VM-1", "voltmeter", 0.0, 600.0, "V", date(2099, 12, 31))}
+
+
 class _Job:
     """A job's log and state, each event checked by the rules before it is applied."""
 
@@ -400,7 +406,9 @@ class _Job:
     def record(self, kind: str, step_id: str | None, data: dict[str, Any] | None = None, *,
                at_s: float, device_time: datetime | None = None) -> dict[str, Any]:
         data = {} if data is None else data
-        stored = dict(check_event(self.state, kind, step_id, data, self.at(at_s, device_time)))
+        at = replace(self.at(at_s, device_time),
+                     instrument=TEST_REGISTER.get(str(data.get("instrument_id"))))
+        stored = dict(check_event(self.state, kind, step_id, data, at))
         return self.apply(_event(kind, step_id, stored, at_s=at_s, device_time=device_time))
 
     def apply(self, event: dict[str, Any]) -> dict[str, Any]:

@@ -34,7 +34,8 @@ def test_the_grounding_window_is_fifteen_minutes():
 
 def _verified(job: _Job, volts: str = "0.02", at_s: float = 240):
     job.done("discharge", at_s=220)
-    return job.record("reading_recorded", "verify-isolation", {"value": volts, "unit": "V"},
+    return job.record("reading_recorded", "verify-isolation", {"value": volts, "unit": "V",
+                                                            "instrument_id": "VM-1"},
                       at_s=at_s)
 
 
@@ -80,7 +81,8 @@ def test_an_isolation_reading_verifies_only_within_its_limit(volts, verified):
 def test_a_reading_in_millivolts_is_converted_before_it_is_judged():
     job = _removal_at_discharge(disconnected_at_s=100)
     job.done("discharge", at_s=220)
-    stored = job.record("reading_recorded", "verify-isolation", {"value": "600", "unit": "mV"},
+    stored = job.record("reading_recorded", "verify-isolation", {"value": "600", "unit": "mV",
+                                                                     "instrument_id": "VM-1"},
                         at_s=230)["data"]
     assert stored["converted"] == pytest.approx(0.6)   # 600 mV = 0.6 V (SI prefix)
     assert stored["verdict"] == "out of limits"
@@ -110,7 +112,8 @@ def test_voltage_present_stops_the_job_and_cannot_be_deferred():
                at_s=400)
     assert not job.state.isolation_verified
     assert job.state.next_step.id == "verify-isolation"
-    job.record("reading_recorded", "verify-isolation", {"value": "0.01", "unit": "V"}, at_s=500)
+    job.record("reading_recorded", "verify-isolation", {"value": "0.01", "unit": "V",
+                                                          "instrument_id": "VM-1"}, at_s=500)
     assert job.state.isolation_verified
     job.done("disconnect-leads", at_s=510)
 

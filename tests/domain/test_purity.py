@@ -74,4 +74,6 @@ def test_rooms_import_only_downwards():
 
 def test_no_service_module_is_left_at_the_top_of_webapp():
     top = sorted(p.name for p in WEBAPP.glob("*.py"))
-    assert top == ["__init__.py", "charts.py", "cli.py", "clock.py", "resources.py", "shown.py"]
+    # cli_instruments.py holds the `sparkward instruments` commands (cli.py would pass 400 lines).
+    assert top == ["__init__.py", "charts.py", "cli.py", "cli_instruments.py", "clock.py",
+                   "resources.py", "shown.py"]

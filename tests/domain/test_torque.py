@@ -10,8 +10,6 @@ fastener. Each expected value says where it comes from:
 
 from __future__ import annotations
 
-from datetime import date, timedelta
-
 import numpy as np
 import pytest
 from pydantic import ValidationError
@@ -23,7 +21,6 @@ from webapp.domain.readings import InputProblem
 
 REL = 1e-6          # against the published factors, which NIST rounds to 7 significant figures
 EXACT = 1e-12       # exact by definition: only float rounding may separate the two
-TODAY = date(2026, 3, 16)  # a fixed day for the calibration checks
 
 
 def test_an_adapter_lowers_the_wrench_setting_by_l_over_l_plus_e():
@@ -61,63 +58,38 @@ def _torque_step(adapter: bool = True) -> Torque:
 
 
 def _torque_data(**overrides) -> dict:
-    data = {"value": 275, "unit": "lbf*in", "wrench_id": "TW-07",
-            "calibration_due": TODAY.isoformat()}
+    data = {"value": 275, "unit": "lbf*in"}
     data.update(overrides)
     return data
 
 
-def test_a_wrench_due_for_calibration_yesterday_is_refused():
-    yesterday = (TODAY - timedelta(days=1)).isoformat()
-    with pytest.raises(RuleRefusal) as excinfo:
-        torque.evaluate_torque(_torque_step(), _torque_data(calibration_due=yesterday), TODAY)
-    assert excinfo.value.rule == "wrench_out_of_calibration"
-
-
-def test_a_wrench_due_today_is_still_in_calibration():
-    stored = torque.evaluate_torque(_torque_step(), _torque_data(wrench_id="  TW-07 "), TODAY)
-    assert stored["wrench_id"] == "TW-07"
-    assert stored["calibration_due"] == TODAY.isoformat()
+def test_a_torque_reading_keeps_the_setting_and_its_verdict():
+    stored = torque.evaluate_torque(_torque_step(), _torque_data())
     assert stored["applied"] == 275.0
     assert stored["verdict"] == "within"
     assert stored["margin"] == 25.0
-    assert "adapter" not in stored
+    assert "adapter" not in stored and "wrench_id" not in stored
 
 
 def test_a_torque_in_newton_metres_is_judged_in_the_step_unit():
     # 31.07 N·m / 0.1129848 N·m per lbf·in (NIST SP 811 B.9) = 274.99… lbf·in
-    stored = torque.evaluate_torque(_torque_step(), _torque_data(value=31.07, unit="N*m"),
-                                      TODAY)
+    stored = torque.evaluate_torque(_torque_step(), _torque_data(value=31.07, unit="N*m"))
     assert stored["applied"] == pytest.approx(31.07 / 0.1129848, rel=REL)
     assert stored["verdict"] == "within"
 
 
 @pytest.mark.parametrize("value", [245, 305])
 def test_a_torque_outside_the_step_limits_is_out_of_limits(value):
-    stored = torque.evaluate_torque(_torque_step(), _torque_data(value=value), TODAY)
+    stored = torque.evaluate_torque(_torque_step(), _torque_data(value=value))
     assert stored["verdict"] == "out of limits"
     assert stored["margin"] == -5.0
-
-
-@pytest.mark.parametrize("wrench", [None, "", "   ", 7])
-def test_a_missing_wrench_id_is_refused_at_its_field(wrench):
-    with pytest.raises(InputProblem) as excinfo:
-        torque.evaluate_torque(_torque_step(), _torque_data(wrench_id=wrench), TODAY)
-    assert excinfo.value.field == "wrench_id"
-
-
-@pytest.mark.parametrize("due", [None, "", "next year", "2026-13-01", "2026-02-30"])
-def test_a_calibration_date_that_is_not_a_date_is_refused_at_its_field(due):
-    with pytest.raises(InputProblem) as excinfo:
-        torque.evaluate_torque(_torque_step(), _torque_data(calibration_due=due), TODAY)
-    assert excinfo.value.field == "calibration_due"
 
 
 def test_an_adapter_reading_judges_the_applied_torque_not_the_wrench_setting():
     # FAA AC 43.13-1B para 7-40, from memory: applied = setting·(L+E)/L.
     setting = 275.0 * 12 / 14    # the corrected setting for 275 lbf·in, L = 12 in, E = 2 in
     stored = torque.evaluate_torque(
-        _torque_step(), _torque_data(value=setting, adapter=IN_LINE), TODAY)
+        _torque_step(), _torque_data(value=setting, adapter=IN_LINE))
     assert stored["applied"] == pytest.approx(275.0, rel=EXACT)
     assert stored["adapter"] == {"wrench_length": 12.0, "extension": 2.0, "angle": 0.0,
                                  "applied": pytest.approx(275.0, rel=EXACT)}
@@ -144,7 +116,7 @@ def test_the_station_applies_the_lubricant_factor_the_page_applies_to_the_settin
         value, adapter, applied, verdict):
     data = _torque_data(value=value) if adapter is None else _torque_data(value=value,
                                                                            adapter=adapter)
-    stored = torque.evaluate_torque(_lubricated_step(), data, TODAY)
+    stored = torque.evaluate_torque(_lubricated_step(), data)
     assert stored["applied"] == pytest.approx(applied, rel=EXACT)
     assert stored["verdict"] == verdict and stored["lubricant_factor"] == 0.8
 
@@ -152,7 +124,7 @@ def test_the_station_applies_the_lubricant_factor_the_page_applies_to_the_settin
 def test_an_uncorrected_setting_through_an_adapter_over_torques_the_plug():
     # Set to 275 with a 2 in extension on a 12 in wrench: 275 × 14 / 12 = 320.83 lbf·in applied.
     stored = torque.evaluate_torque(
-        _torque_step(), _torque_data(value=275, adapter=IN_LINE), TODAY)
+        _torque_step(), _torque_data(value=275, adapter=IN_LINE))
     assert stored["applied"] == pytest.approx(275 * 14 / 12, rel=EXACT)
     assert stored["verdict"] == "out of limits"
 
@@ -161,7 +133,7 @@ def test_an_adapter_on_a_step_without_one_is_refused():
     with pytest.raises(InputProblem) as excinfo:
         torque.evaluate_torque(
             _torque_step(adapter=False),
-            _torque_data(adapter=IN_LINE), TODAY)
+            _torque_data(adapter=IN_LINE))
     assert excinfo.value.field == "adapter"
 
 
@@ -179,7 +151,7 @@ def test_an_adapter_on_a_step_without_one_is_refused():
 ])
 def test_an_adapter_without_a_usable_length_and_extension_is_refused(adapter, field):
     with pytest.raises(InputProblem) as excinfo:
-        torque.evaluate_torque(_torque_step(), _torque_data(adapter=adapter), TODAY)
+        torque.evaluate_torque(_torque_step(), _torque_data(adapter=adapter))
     assert excinfo.value.field == field
 
 
@@ -226,8 +198,7 @@ def test_an_angled_reading_is_judged_with_the_effective_extension():
     # Set as if in line (275 × 12/14 = 235.71) but fitted at 90°: the plug gets 235.71 only,
     # below the 250 minimum, so it is out of limits, not within.
     stored = torque.evaluate_torque(
-        _torque_step(), _torque_data(value=275 * 12 / 14, adapter={**IN_LINE, "angle": 90}),
-        TODAY)
+        _torque_step(), _torque_data(value=275 * 12 / 14, adapter={**IN_LINE, "angle": 90}))
     assert stored["applied"] == pytest.approx(275 * 12 / 14, rel=EXACT)
     assert stored["verdict"] == "out of limits"
     assert stored["adapter"]["angle"] == 90.0
@@ -236,11 +207,10 @@ def test_an_angled_reading_is_judged_with_the_effective_extension():
 def test_a_step_that_needs_the_adapter_in_line_refuses_an_angle():
     step = _torque_step().model_copy(update={"adapter_in_line": True})
     with pytest.raises(RuleRefusal) as excinfo:
-        torque.evaluate_torque(step, _torque_data(adapter={**IN_LINE, "angle": 45}), TODAY)
+        torque.evaluate_torque(step, _torque_data(adapter={**IN_LINE, "angle": 45}))
     assert excinfo.value.rule == "adapter_not_in_line"
     assert "45°" in excinfo.value.reason
-    stored = torque.evaluate_torque(step, _torque_data(value=275 * 12 / 14, adapter=IN_LINE),
-                                    TODAY)
+    stored = torque.evaluate_torque(step, _torque_data(value=275 * 12 / 14, adapter=IN_LINE))
     assert stored["verdict"] == "within"
 
 
@@ -265,8 +235,8 @@ def _entry(fastener: str, verdict: str, disposition: str | None = None) -> dict:
 
 
 def test_each_fastener_gets_its_own_reading_and_verdict():
-    first = torque.evaluate_torque(_bolted(), _torque_data(value=275, fastener="bolt 1"), TODAY)
-    second = torque.evaluate_torque(_bolted(), _torque_data(value=320, fastener="bolt 2"), TODAY,
+    first = torque.evaluate_torque(_bolted(), _torque_data(value=275, fastener="bolt 1"))
+    second = torque.evaluate_torque(_bolted(), _torque_data(value=320, fastener="bolt 2"),
                                     {"bolt 1"})
     assert (first["fastener"], first["verdict"]) == ("bolt 1", "within")
     assert (second["fastener"], second["verdict"]) == ("bolt 2", "out of limits")
@@ -275,20 +245,20 @@ def test_each_fastener_gets_its_own_reading_and_verdict():
 @pytest.mark.parametrize("fastener", [None, "", "bolt 9", 2])
 def test_a_reading_that_does_not_name_one_of_the_step_s_fasteners_is_refused(fastener):
     with pytest.raises(InputProblem) as excinfo:
-        torque.evaluate_torque(_bolted(), _torque_data(fastener=fastener), TODAY, {"bolt 1"})
+        torque.evaluate_torque(_bolted(), _torque_data(fastener=fastener), {"bolt 1"})
     assert excinfo.value.field == "fastener"
     assert "bolt 2; bolt 3; bolt 4" in excinfo.value.message   # what is left to torque
 
 
 def test_a_fastener_already_torqued_within_limits_is_refused_rather_than_torqued_again():
     with pytest.raises(RuleRefusal) as excinfo:
-        torque.evaluate_torque(_bolted(), _torque_data(fastener="bolt 1"), TODAY, {"bolt 1"})
+        torque.evaluate_torque(_bolted(), _torque_data(fastener="bolt 1"), {"bolt 1"})
     assert excinfo.value.rule == "fastener_done"
 
 
 def test_a_fastener_on_a_one_fastener_step_is_refused():
     with pytest.raises(InputProblem) as excinfo:
-        torque.evaluate_torque(_torque_step(), _torque_data(fastener="bolt 1"), TODAY)
+        torque.evaluate_torque(_torque_step(), _torque_data(fastener="bolt 1"))
     assert excinfo.value.field == "fastener"
 
 

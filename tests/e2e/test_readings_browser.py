@@ -92,6 +92,7 @@ def test_torque_in_lbf_in_shows_n_m(browser, live_server, station_api, station_c
     tap(page, "[data-testid=done]")
     expect(step).to_have_attribute("data-step-id", "verify-isolation")
     page.fill("[data-testid=reading-value]", "0.01")   # volts at the input pins: dead
+    page.select_option("[data-testid=instrument-pick]", "VM-004")   # demo voltmeter
     tap(page, "[data-testid=record-reading]")
     tap(page, "[data-testid=acknowledge]")              # WARNING ground the new unit
     expect(step).to_have_attribute("data-step-id", "ground-new-unit")
@@ -103,7 +104,28 @@ def test_torque_in_lbf_in_shows_n_m(browser, live_server, station_api, station_c
     expect(step).to_have_attribute("data-step-kind", "torque")
     _audit(page, "torque on a phone")
 
-    # Four bolts, each recorded and judged on its own; the list says which are done.
+    # The wrench comes from the register: the usable torque wrenches are offered with their
+    # due dates (demo register, invented); the overdue TW-009 is not, and typed (as a scanner
+    # would) it is refused with its due date, nothing recorded.
+    pick = page.get_by_test_id("instrument-pick")
+    expect(pick.locator("option", has_text="TW-017")).to_contain_text(
+        "calibration due 2027-06-30")
+    expect(pick.locator("option", has_text="TW-009")).to_have_count(0)
+    page.fill("[data-testid=reading-value]", "37")
+    page.fill("[data-testid=instrument-id]", "TW-009")
+    tap(page, "[data-testid=record-reading]")
+    expect(page.get_by_test_id("refusal")).to_contain_text(
+        "was due for calibration on 2026-11-15")
+    expect(page.get_by_test_id("fastener-1")).to_contain_text("to torque")
+    # A wrench whose range (100–600 lbf·in) does not cover 37 lbf·in is refused too.
+    page.fill("[data-testid=reading-value]", "37")
+    page.fill("[data-testid=instrument-id]", "TW-031")
+    tap(page, "[data-testid=record-reading]")
+    expect(page.get_by_test_id("refusal")).to_contain_text("outside the range of Torque "
+                                                           "wrench TW-031")
+
+    # Four bolts, each recorded and judged on its own; the list says which are done. The
+    # first two with the wrench picked from the list, the others with its ID scanned.
     for number in range(1, 5):
         expect(page.get_by_test_id(f"fastener-{number}")).to_contain_text("to torque")
         expect(page.get_by_test_id("input-fastener")).to_have_value(
@@ -111,8 +133,11 @@ def test_torque_in_lbf_in_shows_n_m(browser, live_server, station_api, station_c
         page.fill("[data-testid=reading-value]", "37")
         # NIST SP 811 B.9: 37 lbf·in × 0.1129848 = 4.180 N·m
         expect(page.get_by_test_id("converted")).to_contain_text("4.18 N·m")
-        page.fill("[data-testid=wrench-id]", "TW-017")
-        page.fill("[data-testid=calibration-due]", "2099-01-31")
+        if number <= 2:
+            page.fill("[data-testid=instrument-id]", "")
+            page.select_option("[data-testid=instrument-pick]", "TW-017")
+        else:
+            page.fill("[data-testid=instrument-id]", "TW-017")
         tap(page, "[data-testid=record-reading]")
         if number < 4:
             expect(page.get_by_test_id(f"fastener-{number}")).to_contain_text("✓ within")

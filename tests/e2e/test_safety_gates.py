@@ -96,6 +96,7 @@ def test_isolation_check_then_grounding_again_after_a_pause(browser, live_server
     # Voltage present (a breaker not isolating the 28 V bus, demo): out of limits, a finding
     # is needed and the finding offers no deferral.
     page.fill("[data-testid=reading-value]", "27.6")
+    page.select_option("[data-testid=instrument-pick]", "VM-004")   # demo voltmeter
     tap(page, "[data-testid=record-reading]")
     expect(page.get_by_test_id("finding-needed")).to_be_visible()
     expect(page.get_by_test_id("disposition-deferred")).to_have_count(0)
@@ -106,6 +107,7 @@ def test_isolation_check_then_grounding_again_after_a_pause(browser, live_server
     expect(page.get_by_test_id("finding-needed")).to_have_count(0)
     expect(step).to_have_attribute("data-step-id", "verify-isolation")
     page.fill("[data-testid=reading-value]", "0.02")
+    page.select_option("[data-testid=instrument-pick]", "VM-004")   # demo voltmeter
     tap(page, "[data-testid=record-reading]")
     expect(step).to_have_attribute("data-step-id", "disconnect-leads")
     tap(page, "[data-testid=done]")

@@ -5,6 +5,7 @@ from __future__ import annotations
 import uuid
 
 from webapp.station import demo_jobs, recording
+from webapp.store import instruments as register
 from webapp.store import jobs as job_store
 
 DEMO_101_ENGINE_1 = 1  # DC exciters, surface-discharge plugs (demo data)
@@ -86,7 +87,8 @@ class Job:
         """The demo's in-limits reading for a step (the one the demo jobs record)."""
         state = recording.load_job(self.db, self.id).state
         return demo_jobs.reading_data(state.step(step_id).step, state,
-                                      demo_jobs.engine_totals(self.db, self.id))
+                                      demo_jobs.engine_totals(self.db, self.id),
+                                      register.all_instruments(self.db), self.clock().date())
 
     def step_status(self, step_id):
         return next(s["status"] for s in self.state()["steps"] if s["id"] == step_id)

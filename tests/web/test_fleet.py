@@ -131,7 +131,7 @@ def test_a_wear_reading_recorded_on_a_job_adds_a_point(mechanic, db, clock, fast
     job = Job(mechanic, db, clock, "igniter-plug-replacement", channel="B")
     job.walk_to("erosion")
     # The engine's totals as the removal step recorded them minutes before (the demo walk's).
-    job.ok(_event("erosion", "reading_recorded", value="1.08", unit="mm",
+    job.ok(_event("erosion", "reading_recorded", instrument_id="EG-011", value="1.08", unit="mm",
                   usage={"engine_hours": "812", "starts": "760",
                          "continuous_ignition_hours": "150",
                          "continuous_ignition_estimated": True}))
@@ -157,7 +157,8 @@ def _channel_a_current_read(mechanic, db, clock):
     check.walk_to("count-a")
     check.count("count-a", method="timed", count=36, window_s=30)
     check.walk_to("input-current-a")
-    check.ok(_event("input-current-a", "reading_recorded", value="1.9", unit="A"))
+    check.ok(_event("input-current-a", "reading_recorded", instrument_id="AM-006",
+                    value="1.9", unit="A"))
     return check
 
 

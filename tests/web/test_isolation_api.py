@@ -24,7 +24,8 @@ def plug(mechanic, db, clock):
 
 
 def _isolation(volts, unit="V"):
-    return _event("verify-isolation", "reading_recorded", value=volts, unit=unit)
+    return _event("verify-isolation", "reading_recorded", instrument_id="VM-004",
+                  value=volts, unit=unit)
 
 
 def test_skipping_the_isolation_check_to_work_on_the_lead_or_a_part_is_refused(plug):

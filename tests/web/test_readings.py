@@ -20,8 +20,8 @@ BOLTS = ["Bolt 1, upper forward", "Bolt 2, lower aft", "Bolt 3, upper aft",
 
 
 def torque(value, unit="lbf*in", fastener=BOLTS[0], **extra):
-    body = {"value": value, "unit": unit, "wrench_id": "TW-017",
-            "calibration_due": "2027-06-30", "fastener": fastener, **extra}
+    body = {"value": value, "unit": unit, "instrument_id": "TW-017", "fastener": fastener,
+            **extra}
     return _event("mounting-torque", "reading_recorded", **body)
 
 
@@ -42,7 +42,11 @@ def test_torque_in_n_m_is_converted_and_judged(installation):
     assert reading["value"] == 4.2 and reading["unit"] == "N*m"
     assert reading["converted"] == pytest.approx(4.2 / LBF_IN_IN_N_M, rel=1e-6)
     assert reading["verdict"] == "within"
-    assert reading["wrench_id"] == "TW-017" and reading["fastener"] == BOLTS[0]
+    assert reading["instrument"] == {"id": "TW-017", "kind": "torque wrench",
+                                     "range": "20–100 lbf*in", "range_low": 20,
+                                     "range_high": 100, "range_unit": "lbf*in",
+                                     "calibration_due": "2027-06-30"}
+    assert reading["fastener"] == BOLTS[0]
     the_other_bolts(installation)
     assert "mounting-torque" in installation.state()["done"]
 
@@ -67,18 +71,14 @@ def test_senseless_torque_is_refused_at_the_field_and_nothing_stored(installatio
     assert counts(installation) == before  # not even a refusal entry
 
 
-def test_wrench_out_of_calibration_is_refused(installation):
-    # The station's clock stands at 2026-12-01 (tests' ManualClock).
-    answer = installation.refused(torque("37", calibration_due="2026-11-30"),
-                                  "wrench_out_of_calibration")
-    assert "TW-017" in answer["reason"]
-    installation.ok(torque("37", calibration_due="2026-12-01"))  # due today: still in
-
-
-def test_missing_wrench_details_are_bad_input(installation):
+def test_missing_instrument_is_bad_input_and_nothing_is_stored(installation):
     body = torque("37")
-    del body["data"]["wrench_id"]
-    assert installation.post(body).status_code == 422
+    del body["data"]["instrument_id"]
+    before = counts(installation)
+    answer = installation.post(body)
+    assert answer.status_code == 422
+    assert answer.get_json()["problems"][0]["field"] == "data.instrument_id"
+    assert counts(installation) == before
 
 
 def test_out_of_limits_blocks_until_dispositioned_and_keeps_every_attempt(installation):
@@ -123,7 +123,7 @@ def test_adapter_correction_judges_the_torque_applied(mechanic, db, clock):
     # FAA AC 43.13-1B 7-40 (from memory): T_set = T_req·L/(L+E). With L = 12 in and
     # E = 2 in, a wrench set to 235.7 lbf·in applies 235.7·14/12 = 275 lbf·in (limits 250–300).
     body = _event("plug-torque", "reading_recorded", value="235.7", unit="lbf*in",
-                  wrench_id="TW-021", calibration_due="2027-01-31",
+                  instrument_id="TW-031",
                   adapter={"wrench_length": "12", "extension": "2", "angle": "0"})
     job.ok(body)
     reading = job.state()["readings"][-1]
@@ -134,7 +134,8 @@ def test_adapter_correction_judges_the_torque_applied(mechanic, db, clock):
 def test_insulation_resistance_keeps_its_test_conditions(mechanic, db, clock):
     job = Job(mechanic, db, clock, "ignition-lead-inspection")
     job.walk_to("insulation-resistance")
-    body = _event("insulation-resistance", "reading_recorded", value="0.85", unit="Gohm",
+    body = _event("insulation-resistance", "reading_recorded", instrument_id="IT-003",
+                  value="0.85", unit="Gohm",
                   test_voltage={"value": "1", "unit": "kV"},
                   ambient_temperature={"value": "64", "unit": "degF"}, humidity={"value": "55"})
     job.ok(body)
@@ -144,7 +145,8 @@ def test_insulation_resistance_keeps_its_test_conditions(mechanic, db, clock):
     # (64 − 32) × 5/9 = 17.78 °C (the definition of the Fahrenheit scale)
     assert reading["ambient_temperature"]["converted"] == pytest.approx(17.7778, rel=1e-4)
     assert reading["humidity"] == {"value": 55.0, "unit": "%RH"}
-    missing = _event("insulation-resistance", "reading_recorded", value="900", unit="Mohm")
+    missing = _event("insulation-resistance", "reading_recorded", instrument_id="IT-003",
+                     value="900", unit="Mohm")
     assert job.post(missing).status_code in (409, 422)  # already done, or missing conditions
 
 
@@ -157,18 +159,21 @@ def test_insulation_at_another_test_voltage_is_refused_with_the_reason(mechanic,
     job.walk_to("insulation-resistance")
     conditions = {"ambient_temperature": {"value": "18", "unit": "degC"},
                   "humidity": {"value": "45"}}
-    refused = job.refused(_event("insulation-resistance", "reading_recorded", value="900",
-                                 unit="Mohm", test_voltage={"value": value, "unit": unit},
+    refused = job.refused(_event("insulation-resistance", "reading_recorded",
+                                 instrument_id="IT-003", value="900", unit="Mohm",
+                                 test_voltage={"value": value, "unit": unit},
                                  **conditions), "wrong_test_voltage")
     assert "1000 V" in refused["reason"]
-    job.ok(_event("insulation-resistance", "reading_recorded", value="900", unit="Mohm",
+    job.ok(_event("insulation-resistance", "reading_recorded", instrument_id="IT-003",
+                  value="900", unit="Mohm",
                   test_voltage={"value": "1.05", "unit": "kV"}, **conditions))
 
 
 def test_insulation_without_its_conditions_is_bad_input(mechanic, db, clock):
     job = Job(mechanic, db, clock, "ignition-lead-inspection")
     job.walk_to("insulation-resistance")
-    answer = job.post(_event("insulation-resistance", "reading_recorded", value="900",
+    answer = job.post(_event("insulation-resistance", "reading_recorded", instrument_id="IT-003",
+                             value="900",
                              unit="Mohm"))
     assert answer.status_code == 422
     assert answer.get_json()["problems"][0]["field"] == "data.test_voltage"
@@ -177,7 +182,7 @@ def test_insulation_without_its_conditions_is_bad_input(mechanic, db, clock):
 def test_wear_reading_is_tied_to_the_plug_and_its_usage(mechanic, db, clock):
     job = Job(mechanic, db, clock, "igniter-plug-replacement", channel="B")
     job.walk_to("erosion")
-    job.ok(_event("erosion", "reading_recorded", value="0.047", unit="in",
+    job.ok(_event("erosion", "reading_recorded", instrument_id="EG-011", value="0.047", unit="in",
                   usage={"engine_hours": "812", "starts": "760",
                          "continuous_ignition_hours": "150",
                          "continuous_ignition_estimated": True}))

@@ -33,7 +33,7 @@ def plug_job(app, db, clock, mechanic, login):
     job.ok(_event(None, "tag_handed_over", tag="T-2", to="mech2", pin=DEMO_PINS["mech1"]))
     job.ok(_event(None, "tag_taken_over", tag="T-2", breaker_confirmed_open=True), reyes)
     job.walk_to("erosion")
-    job.ok(_event("erosion", "reading_recorded", value="0.044", unit="in",
+    job.ok(_event("erosion", "reading_recorded", instrument_id="EG-011", value="0.044", unit="in",
                   usage={"engine_hours": 812, "starts": 760, "continuous_ignition_hours": 150}),
            reyes)
     job.walk_to("carbon")
@@ -148,6 +148,10 @@ def test_21_cfr_11_10_readings_gates_hashes_and_pages_in_readable_form(
     assert "✓ within" in text and "✗ out of limits" in text
     assert "Light carbon on the shell face" in text and "re-tested" in text
     assert "torque wrench TW-017" in text and "2027-06-30" in text
+    # Each instrument from the register against the reading it took (demo register data).
+    assert "Instruments with calibration" in text
+    assert "erosion gauge EG-011 (range 0–3 mm), calibration due 2027-07-31" in text
+    assert "torque wrench TW-031 (range 100–600 lbf·in), calibration due 2027-09-30" in text
     # Lockout/tagout (29 CFR 1910.147(d)-(e) order of work): tags, breakers, the handover,
     # the power-off time and the discharge wait served.
     for shown in ("T-1", "T-2", "IGN-A", "IGN-B", "taken over"):

@@ -64,7 +64,7 @@ def plug_job(mechanic, db, clock):
 
 def _plug_torque(setting, **adapter):
     return _event("plug-torque", "reading_recorded", value=f"{setting:.6f}", unit="lbf*in",
-                  wrench_id="TW-021", calibration_due="2027-01-31",
+                  instrument_id="TW-031",
                   adapter={"wrench_length": "12", "extension": "2", **adapter})
 
 
@@ -105,7 +105,7 @@ def test_a_step_that_needs_the_crowfoot_in_line_refuses_an_angle(plug_job):
     plug_job.ok(_plug_torque(275 * 12 / 14, angle="0"))
     plug_job.walk_to("coupling-nut-torque")
     body = _event("coupling-nut-torque", "reading_recorded", value="24", unit="lbf*in",
-                  wrench_id="TW-021", calibration_due="2027-01-31",
+                  instrument_id="TW-017",
                   adapter={"wrench_length": "10", "extension": "1.5", "angle": "30"})
     answer = plug_job.refused(body, "adapter_not_in_line")
     assert "30°" in answer["reason"]

@@ -24,7 +24,7 @@ from webapp.store import jobs as job_store
 
 
 def _erosion(hours, starts=760, ci=150, **extra):
-    return {**_event("erosion", "reading_recorded", value="0.60", unit="mm",
+    return {**_event("erosion", "reading_recorded", instrument_id="EG-011", value="0.60", unit="mm",
                      usage={"engine_hours": hours, "starts": starts,
                             "continuous_ignition_hours": ci}), **extra}
 

@@ -17,6 +17,7 @@ from typing import Any
 from . import (
     exciter_rows,
     gates,
+    instruments,
     isolation,
     readings,
     release,
@@ -40,6 +41,7 @@ from .execution import (
     run_channels,
 )
 from .gates import Tag
+from .instruments import Instrument
 from .parts import AllowedPart, Whereabouts, evaluate_part
 from .procedures import (
     Check,
@@ -185,6 +187,7 @@ class Circumstances:
     allowed_parts: tuple[AllowedPart, ...] = ()   # for a part step
     whereabouts: Whereabouts = Whereabouts()      # of the serial an install step names
     roles_of: Mapping[int, tuple[str, ...]] = field(default_factory=dict)  # people it names
+    instrument: Instrument | None = None  # the register's entry for the ID a reading names
 
 
 def needs_engine_tags(state: JobState, kind: str, step_id: str | None) -> bool:
@@ -304,33 +307,45 @@ def _check_completion(state: JobState, target: StepProgress, data: Mapping[str, 
         if step.id in state.awaiting_finding:
             raise RuleRefusal("finding_required", "The last reading was out of limits: record "
                               "the finding and what was done before anything else.")
-        if isinstance(step, Torque):
-            return torque.evaluate_torque(step, data, at.now.date(),
-                                          torque.accepted_fasteners(step, state.readings))
-        if isinstance(step, SparkCount):
-            # The row of the step's limits for the exciters fitted now, and their types'
-            # supply limits: judged against what is on the engine, not what was.
-            fitted = exciter_rows.fitted_exciters(
-                at.engine, state.configuration.components,
-                ("A", "B") if step.channel == "both" else (step.channel,))
-            chosen = exciter_rows.limits_for(step.limits, [f.part_number for f in fitted])
-            stored = spark_counts.evaluate_spark_count(
-                step, data, state.single_channel_rates(step.mode), chosen)
-            stored["exciters"] = {f.channel: f.part_number for f in fitted}
-            stored["supply"] = supply.evaluate_supply(
-                [f.type for f in fitted if f.type] or state.configuration.exciter_types,
-                data.get("supply"), step.supply)
-            if not stored["supply"]["within"]:
-                # A count at a supply outside its limits proves nothing about the unit.
-                stored["verdict"] = "out of limits"
-            sparks.check_window_served(state.count_windows.get(step.id), stored, at.now,
-                                       at.device_now)
-            return stored
-        stored = isolation.isolation_verdict(step, readings.evaluate_reading(step, data))
-        if isinstance(step, Reading) and step.wear:
-            stored["plug"] = _plug_at_work(state)
-            return _with_usage_entry(stored, at)
+        stored = _evaluate_reading(state, step, data, at)
+        return instruments.with_instrument(step, data, stored, at.instrument, at.now.date())
+    return _check_other_completion(state, target, data, at)
+
+
+def _evaluate_reading(state: JobState, step: Reading | Torque | SparkCount,
+                      data: Mapping[str, Any], at: Circumstances) -> dict[str, Any]:
+    if isinstance(step, Torque):
+        return torque.evaluate_torque(step, data,
+                                      torque.accepted_fasteners(step, state.readings))
+    if isinstance(step, SparkCount):
+        # The row of the step's limits for the exciters fitted now, and their types'
+        # supply limits: judged against what is on the engine, not what was.
+        fitted = exciter_rows.fitted_exciters(
+            at.engine, state.configuration.components,
+            ("A", "B") if step.channel == "both" else (step.channel,))
+        chosen = exciter_rows.limits_for(step.limits, [f.part_number for f in fitted])
+        stored = spark_counts.evaluate_spark_count(
+            step, data, state.single_channel_rates(step.mode), chosen)
+        stored["exciters"] = {f.channel: f.part_number for f in fitted}
+        stored["supply"] = supply.evaluate_supply(
+            [f.type for f in fitted if f.type] or state.configuration.exciter_types,
+            data.get("supply"), step.supply)
+        if not stored["supply"]["within"]:
+            # A count at a supply outside its limits proves nothing about the unit.
+            stored["verdict"] = "out of limits"
+        sparks.check_window_served(state.count_windows.get(step.id), stored, at.now,
+                                   at.device_now)
         return stored
+    stored = isolation.isolation_verdict(step, readings.evaluate_reading(step, data))
+    if isinstance(step, Reading) and step.wear:
+        stored["plug"] = _plug_at_work(state)
+        return _with_usage_entry(stored, at)
+    return stored
+
+
+def _check_other_completion(state: JobState, target: StepProgress, data: Mapping[str, Any],
+                            at: Circumstances) -> Mapping[str, Any]:
+    step = target.step
     if isinstance(step, Check) and step.items:
         ticked = data.get("items")
         if not isinstance(ticked, list) or sorted(set(ticked)) != list(range(len(step.items))):

@@ -9,6 +9,7 @@ from pydantic import Discriminator, Field, Tag, model_validator
 
 from .procedure_types import (
     ADVISORY_KINDS,
+    INSTRUMENT_KINDS,
     AnyUnit,
     Capacitance,
     Connection,
@@ -17,6 +18,7 @@ from .procedure_types import (
     Energy,
     ExciterMode,
     Id,
+    InstrumentKind,
     Limits,
     PartNumber,
     Resistance,
@@ -40,6 +42,13 @@ def _dimension(unit: str | None) -> str | None:
     except UnitProblem:
         return None
     return "voltage"
+
+
+def _instrument_fits(kind: str, unit: str) -> None:
+    try:
+        parse_unit(unit, INSTRUMENT_KINDS[kind])
+    except UnitProblem:
+        raise _field_error("instrument", f"a {kind} does not read {unit}") from None
 
 
 class _Step(_Strict):
@@ -177,6 +186,9 @@ class Reading(_Step):
     # 1910.147(d)(6)): a voltage at the input pins, or pass/fail "no snap with the selector
     # on". Work that disturbs a connection or handles a part waits for it (see `isolation`).
     verifies: Literal["isolation"] | None = None
+    # The kind of calibrated instrument the reading is taken with: the mechanic names one
+    # from the station's register, which must be of this kind (see `instruments`).
+    instrument: InstrumentKind | None = None
 
     @model_validator(mode="after")
     def _number_has_unit_and_limits(self) -> Reading:
@@ -194,6 +206,11 @@ class Reading(_Step):
                                            or _dimension(self.unit) != "voltage"):
                 raise _field_error("limits", "an isolation check by voltage needs a unit of "
                                    "volts and a max (the most a dead circuit may read)")
+        if self.instrument is not None and self.value == "text":
+            raise _field_error("instrument", "a text reading is written, not taken with an "
+                               "instrument")
+        if self.instrument is not None and self.unit is not None:
+            _instrument_fits(self.instrument, self.unit)
         if self.test_voltage is not None and "test_voltage" not in self.conditions:
             raise _field_error("test_voltage", "a required test voltage needs the reading to "
                                "record its test voltage: add test_voltage to conditions")
@@ -246,6 +263,7 @@ class SparkCount(_Step):
     supply: SupplyLimits | None = None
     mode: ExciterMode | None = None
     rated_energy: Energy | None = None
+    instrument: Literal["spark counter"] | None = None  # times the window
 
     @model_validator(mode="after")
     def _mode_belongs_to_combination_units(self) -> SparkCount:

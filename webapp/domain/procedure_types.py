@@ -41,6 +41,16 @@ ExciterMode = Literal["start", "continuous"]
 # An exciter part number as the parts data writes it ("XEX-1001-03").
 PartNumber = Annotated[str, Field(pattern=r"^[A-Za-z0-9][A-Za-z0-9./-]*$", max_length=40)]
 PlugType = Literal["air-gap", "surface-discharge"]
+# The kinds of calibrated instrument a reading is taken with (see `instruments`).
+InstrumentKind = Literal["torque wrench", "insulation tester", "milliohm meter", "ammeter",
+                         "voltmeter", "erosion gauge", "spark counter"]
+# Each kind and the dimension it reads (its range is given in); a spark counter's range is
+# the longest window it times.
+INSTRUMENT_KINDS: dict[str, str] = {
+    "torque wrench": "torque", "insulation tester": "resistance",
+    "milliohm meter": "resistance", "ammeter": "current", "voltmeter": "voltage",
+    "erosion gauge": "length", "spark counter": "time",
+}
 
 
 class _Strict(BaseModel):

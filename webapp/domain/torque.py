@@ -1,6 +1,7 @@
 """Torque readings: the wrench setting as the mechanic's wrench showed it, the torque it
-means at the fastener (lubricant factor, adapter at its angle), the wrench's calibration,
-the verdict, and a step's fasteners each torqued and judged on its own.
+means at the fastener (lubricant factor, adapter at its angle), the verdict, and a step's
+fasteners each torqued and judged on its own. The wrench comes from the station's register
+(see `instruments`).
 
 The wrench measures the moment about its own drive: F·L, with F the hand's force square to
 the handle and L the handle's length. An adapter (crowfoot or extension) moves the fastener
@@ -20,7 +21,6 @@ from __future__ import annotations
 
 import math
 from collections.abc import Iterable, Mapping
-from datetime import date
 from typing import Any
 
 from .errors import RuleRefusal
@@ -118,31 +118,15 @@ def _adapter(step: Torque, raw: Any) -> tuple[float, float, float]:
     return length, extension, angle
 
 
-def _wrench(data: Mapping[str, Any], today: date) -> tuple[str, date]:
-    wrench = data.get("wrench_id")
-    if not isinstance(wrench, str) or not wrench.strip():
-        raise InputProblem("wrench_id", "Enter the torque wrench's ID.")
-    try:
-        due = date.fromisoformat(str(data.get("calibration_due")))
-    except ValueError:
-        raise InputProblem("calibration_due", "Enter the wrench's calibration due date "
-                           "(YYYY-MM-DD).") from None
-    if due < today:
-        raise RuleRefusal("wrench_out_of_calibration", f"Wrench {wrench.strip()} was due for "
-                          f"calibration on {due.isoformat()}: use a wrench in calibration.")
-    return wrench.strip(), due
-
-
-def evaluate_torque(step: Torque, data: Mapping[str, Any], today: date,
+def evaluate_torque(step: Torque, data: Mapping[str, Any],
                     done: set[str] | None = None) -> dict[str, Any]:
     """A torque reading as the station keeps it: the setting as entered, the torque it means
-    at the fastener, the wrench and its calibration, and the verdict. `done` are the step's
-    fasteners already accepted (see `accepted_fasteners`)."""
+    at the fastener, and the verdict. `done` are the step's fasteners already accepted (see
+    `accepted_fasteners`). The wrench is checked against the station's register by
+    `instruments.check_use`: its setting (the value as entered) must be in its range."""
     fastener = _fastener(step, data, done or set())
-    wrench, due = _wrench(data, today)
     measured = measure("value", data.get("value"), data.get("unit"), step.unit, "torque")
-    stored: dict[str, Any] = {**measured.as_data(), "wrench_id": wrench,
-                              "calibration_due": due.isoformat()}
+    stored: dict[str, Any] = measured.as_data()
     if fastener is not None:
         stored["fastener"] = fastener
     factor = step.lubricant_factor or 1.0

@@ -43,21 +43,49 @@ class WearChart:
     basis: str = ""   # what the chart's usage is reckoned from
 
 
+def _instrument_text(r: Mapping[str, Any]) -> str | None:
+    """The instrument a reading was taken with, as the record prints it: from the register
+    (kind, ID, range, calibration due), or as typed on a torque reading stored before the
+    register (wrench ID and its due date)."""
+    used = r.get("instrument")
+    if isinstance(used, Mapping):
+        return (f"{used['kind']} {used['id']} (range {used['range_low']:g}–"
+                f"{used['range_high']:g} {unit_label(used['range_unit'])}), calibration due "
+                f"{used['calibration_due']}")
+    if r.get("wrench_id"):
+        return f"torque wrench {r['wrench_id']}, calibration due {r['calibration_due']}"
+    return None
+
+
+def _reading_said(r: Mapping[str, Any]) -> str:
+    """The reading an instrument took, and for a torque its adapter."""
+    if r.get("value") is not None:
+        said = f"{r['value']:g} {unit_label(r.get('unit'))}"
+    elif r.get("window_s") is not None:
+        said = f"window {r['window_s']:g} s"
+    else:
+        said = str(r.get("result") or "")
+    if r.get("fastener"):
+        said += f" ({r['fastener']})"
+    adapter = r.get("adapter")
+    if isinstance(adapter, Mapping):
+        said += (f"; adapter: wrench length {adapter['wrench_length']:g}, extension "
+                 f"{adapter['extension']:g} at {adapter.get('angle', 0):g}° to the wrench; "
+                 f"torque applied {adapter['applied']:.4g} {unit_label(r['procedure_unit'])}")
+    elif r.get("wrench_id") or (r.get("instrument") or {}).get("kind") == "torque wrench":
+        said += "; no adapter"
+    return said
+
+
 def tool_entries(state: JobState, numbers: Mapping[str, int], who: People) -> list[Entry]:
+    """Each reading taken with a calibrated instrument: the instrument, and the reading."""
     lines = []
     for r in state.readings:
-        if not r.get("wrench_id"):
+        used = _instrument_text(r)
+        if used is None:
             continue
-        adapter = r.get("adapter")
-        adapter_text = (f"adapter: wrench length {adapter['wrench_length']:g}, extension "
-                        f"{adapter['extension']:g} at {adapter.get('angle', 0):g}° to the "
-                        f"wrench; torque applied {adapter['applied']:.4g} "
-                        f"{unit_label(r['procedure_unit'])}" if isinstance(adapter, Mapping)
-                        else "no adapter")
-        lines.append(Entry(f"torque wrench {r['wrench_id']}, calibration due "
-                           f"{r['calibration_due']}", who(r.get("person_id")),
-                           station_time(r["received_at"]), numbers.get(r["step"]),
-                           adapter_text))
+        lines.append(Entry(used, who(r.get("person_id")), station_time(r["received_at"]),
+                           numbers.get(r["step"]), _reading_said(r)))
     return lines
 
 

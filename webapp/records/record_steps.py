@@ -229,6 +229,9 @@ def _conditions(r: Mapping[str, Any]) -> list[str]:
         said.append(f"plug {r['plug'].get('part_number')} S/N {r['plug'].get('serial')}")
     if r.get("wrench_id"):
         said.append(f"wrench {r['wrench_id']}, calibration due {r['calibration_due']}")
+    if isinstance(r.get("instrument"), Mapping):
+        said.append(f"{r['instrument']['kind']} {r['instrument']['id']}, calibration due "
+                    f"{r['instrument']['calibration_due']}")
     if isinstance(r.get("both_check"), Mapping):
         said.append(f"A + B check: {r['both_check'].get('result')}")
     if isinstance(r.get("exciters"), Mapping):

@@ -10,14 +10,15 @@ The bench uses the same walk to build its record.
 from __future__ import annotations
 
 import uuid
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
-from datetime import datetime, timedelta
+from datetime import date, datetime, timedelta
 from typing import Any
 
 from .. import store
-from ..domain import torque
+from ..domain import instruments, torque
 from ..domain.execution import JobState
+from ..domain.instruments import Instrument
 from ..domain.isolation import grounding_due
 from ..domain.procedures import (
     Advisory,
@@ -33,6 +34,7 @@ from ..domain.procedures import (
 )
 from ..records.identity import StationAuthority
 from ..store import engines
+from ..store import instruments as register
 from ..store.people import Person
 from . import recording
 
@@ -53,22 +55,38 @@ class WalkRefused(RuntimeError):
     """The station refused an entry of the walk: the demo data and the procedure disagree."""
 
 
+def demo_instrument(step: Reading | Torque | SparkCount, register: Sequence[Instrument],
+                    today: date, value: tuple[float, str] | None = None) -> dict[str, Any]:
+    """The register's first instrument usable for the step today whose range covers `value`
+    (none when the step needs none)."""
+    kind = instruments.required_kind(step)
+    if kind is None:
+        return {}
+    usable = next(i for i in register if i.usable_for(kind, today)
+                  and (value is None or instruments.in_range(i, *value)))
+    return {"instrument_id": usable.instrument_id}
+
+
 def reading_data(step: Reading | Torque, state: JobState | None = None,
-                 usage: Mapping[str, Any] | None = None) -> dict[str, Any]:
-    """A demo reading inside the step's limits, in the step's own unit (for a torque step
-    that names its fasteners, the first one `state` has not yet accepted; for a wear
-    reading, the engine's totals `usage`)."""
+                 usage: Mapping[str, Any] | None = None,
+                 register: Sequence[Instrument] = (), today: date | None = None
+                 ) -> dict[str, Any]:
+    """A demo reading inside the step's limits, in the step's own unit, with an instrument of
+    `register` usable `today` (for a torque step that names its fasteners, the first one
+    `state` has not yet accepted; for a wear reading, the engine's totals `usage`)."""
     if isinstance(step, Reading) and step.value == "text":
         return {"text": "XEX-1001-03 / XE-9001 (demo)"}
     if isinstance(step, Reading) and step.value == "pass_fail":
         return {"result": "pass"}
-    assert step.limits is not None, step.id
+    assert step.limits is not None and step.unit is not None, step.id
     low, high = step.limits.min, step.limits.max
     value = ((low + high) / 2 if low is not None and high is not None
              else low * 1.5 if low is not None else (high or 0) / 2)
     data: dict[str, Any] = {"value": f"{value:g}", "unit": step.unit}
+    if instruments.required_kind(step) is not None:
+        assert today is not None, "a reading with an instrument needs the day it is taken"
+        data.update(demo_instrument(step, register, today, (value, step.unit)))
     if isinstance(step, Torque):
-        data.update(wrench_id="TW-017", calibration_due="2027-06-30")
         if step.fasteners:
             done = torque.accepted_fasteners(step, state.readings if state else ())
             data["fastener"] = next(f for f in step.fasteners if f not in done)
@@ -173,7 +191,8 @@ def walk(db: store.Database, job_id: int, *, by: Person, now: datetime,
         elif isinstance(step, (Reading, Torque)):
             record("reading_recorded", step.id,
                    reading_data(step, recording.load_job(db, job_id).state,
-                                engine_totals(db, job_id)))
+                                engine_totals(db, job_id), register.all_instruments(db),
+                                now.date()))
         elif isinstance(step, PartChange):
             record("part_recorded", step.id, part_data(db, job_id, step))
         elif isinstance(step, IgnitionRun):
@@ -187,7 +206,10 @@ def walk(db: store.Database, job_id: int, *, by: Person, now: datetime,
             record("sparks_counted", step.id, {"supply": demo_supply(db, job_id),
                                                **({"mode": step.mode} if step.mode else {}),
                                                "method": "timed", "count": count,
-                                               "window_s": 30})
+                                               "window_s": 30,
+                                               **demo_instrument(
+                                                   step, register.all_instruments(db),
+                                                   now.date())})
         elif isinstance(step, Check) and step.items:
             record("step_done", step.id, {"items": list(range(len(step.items)))})
         else:

@@ -31,6 +31,7 @@ from ..records.record_entries import station_time
 from ..records.record_signatures import AUTHORISATION_KIND
 from ..records.signing import StampBox, ValidationData
 from ..store import authorisations, engines, fleet, jobs, people, procedures, signers
+from ..store import instruments as register
 from ..store.job_states import Job, NotFound, load_job, remember
 from ..store.people import Person
 from .authority import current_revocation_list
@@ -193,6 +194,10 @@ def _engine_circumstances(db: store.Database, job: Job, kind: str, step_id: str 
         serial = data.get("serial")
         if isinstance(serial, str) and serial.strip():
             found["whereabouts"] = engines.whereabouts(db, target.step.part, serial.strip())
+    named = data.get("instrument_id")
+    if kind in ("reading_recorded", "sparks_counted") and isinstance(named, str) \
+            and named.strip():
+        found["instrument"] = register.instrument(db, named.strip())
     return found
 
 

@@ -14,6 +14,7 @@ from .. import store
 from ..records.identity import StationAuthority
 from ..resources import shipped_dir
 from ..store import engines, fleet, people
+from . import instruments
 from .accounts import enrol
 from .authorising import authorise
 
@@ -38,6 +39,16 @@ class DemoPerson(_Strict):
     password: str
     pin: str | None = None
     authorisations: list[DemoAuthorisation] = Field(default_factory=list)  # what they sign
+
+
+class DemoInstrument(_Strict):
+    instrument_id: str
+    kind: str
+    range_low: float
+    range_high: float
+    range_unit: str
+    calibration_due: date
+    status: Literal["in service", "quarantined", "withdrawn"] = "in service"
 
 
 class Part(_Strict):
@@ -125,6 +136,7 @@ class Scenario(_Strict):
     seed: int
     operator: Operator
     people: list[DemoPerson]
+    instruments: list[DemoInstrument] = Field(default_factory=list)
     fleet: list[DemoAircraft]
     engine_model: str
     lead_part_numbers: dict[Literal["A", "B"], str]
@@ -158,6 +170,11 @@ def load_scenario(db: store.Database, scenario: Scenario, now: datetime,
             authorise(db, person_id=enrolled.id, signatures=a.signatures, scope=a.scope,
                       licence_kind=a.licence_kind, licence_number=a.licence_number,
                       expires_on=a.expires_on, granted_by=None, now=now)
+    for i in scenario.instruments:
+        instruments.add(db, **i.model_dump(exclude={"status"}), by=None, now=enrolled_at)
+        if i.status != "in service":
+            instruments.take_out(db, instrument_id=i.instrument_id, status=i.status, by=None,
+                                 now=enrolled_at)
     explicit = {(h.engine, h.channel): h for h in scenario.plug_history}
     with store.writing(db):
         fleet.set_operator(db, scenario.operator.name, scenario.operator.approval)

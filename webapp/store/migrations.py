@@ -173,3 +173,17 @@ def usage_at_start(db: Database) -> None:
     # of the starting configuration was fitted, where the fleet's records give them: a
     # plug's usage since fitted is reckoned from them until a job fits another.
     db.table("installed_at_start").add_column("fitted_usage", str)
+
+
+@MIGRATIONS(name="0008_instrument_register")
+def instrument_register(db: Database) -> None:
+    # The register of calibrated instruments, kept as a log: every entry (added, calibrated,
+    # quarantined, withdrawn, corrected) is a new row with the instrument's whole state, who
+    # made it and when; an instrument's latest row is what it is now. Nothing is edited.
+    db.table("instrument_entries").create({
+        "id": int, "instrument_id": str, "kind": str, "range_low": float, "range_high": float,
+        "range_unit": str, "calibration_due": str, "status": str, "change": str,
+        "changed_by": int, "changed_at": str,
+    }, pk="id", not_null={"instrument_id", "kind", "range_low", "range_high", "range_unit",
+                          "calibration_due", "status", "change", "changed_at"})
+    db.table("instrument_entries").create_index(["instrument_id", "id"])

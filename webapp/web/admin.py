@@ -1,4 +1,5 @@
-"""The admin's room: the people enrolled on the station, their roles and what they sign."""
+"""The admin's room: the people enrolled on the station, their roles and what they sign; the
+register of calibrated instruments."""
 
 from __future__ import annotations
 
@@ -8,10 +9,13 @@ from flask import Blueprint, abort, redirect, render_template, request, url_for
 
 from .. import store
 from ..domain.authorisations import PROCEDURE_KINDS, SIGNATURE_KINDS
+from ..domain.instruments import INSTRUMENT_KINDS
 from ..domain.readings import InputProblem
+from ..station import instruments as keeping
 from ..station.accounts import enrol
 from ..station.authorising import authorise, withdraw
 from ..store import authorisations, people
+from ..store import instruments as instrument_register
 from ..store.job_states import NotFound
 from .common import authority, db, now, person, requires
 
@@ -84,3 +88,42 @@ def revoke_authorisation(person_id: int, authorisation_id: int) -> Any:
     except NotFound:
         abort(404)
     return redirect(url_for("admin.authorisations_page", person_id=person_id), code=303)
+
+
+@bp.route("/instruments", methods=["GET", "POST"])
+@requires("admin")
+def instruments_page() -> Any:
+    """The register of calibrated instruments: each one as it is now, its history, and adding,
+    calibrating, quarantining or withdrawing one (every change a new entry of the log)."""
+    problem = None
+    action = request.form.get("action", "add")
+    if request.method == "POST":
+        form = request.form
+        try:
+            if action == "calibrated":
+                keeping.calibrated(db(), instrument_id=form.get("instrument_id", ""),
+                                   calibration_due=form.get("calibration_due", ""),
+                                   by=person().id, now=now())
+            elif action == "take_out":
+                keeping.take_out(db(), instrument_id=form.get("instrument_id", ""),
+                                 status=form.get("status", ""), by=person().id, now=now())
+            else:
+                keeping.add(db(), instrument_id=form.get("instrument_id", ""),
+                            kind=form.get("kind", ""), range_low=form.get("range_low", ""),
+                            range_high=form.get("range_high", ""),
+                            range_unit=form.get("range_unit", ""),
+                            calibration_due=form.get("calibration_due", ""), by=person().id,
+                            now=now())
+        except InputProblem as wrong:
+            problem = wrong
+        else:
+            return redirect(url_for("admin.instruments_page"), code=303)
+    held = instrument_register.all_instruments(db())
+    history = {i.instrument_id: instrument_register.history(db(), i.instrument_id)
+               for i in held}
+    names = people.names_by_id(db(), {e["changed_by"] for h in history.values() for e in h
+                                      if e["changed_by"] is not None})
+    return render_template("admin/instruments.html", held=held, history=history, names=names,
+                           problem=problem, action=action,
+                           entered=request.form if problem else {}, kinds=INSTRUMENT_KINDS,
+                           today=now().date()), 422 if problem else 200

@@ -19,6 +19,7 @@ from ..store import fleet as fleet_store
 from ..store import jobs as job_store
 from .common import SUPERVISOR_EVENTS, authority, db, now, page_or_fragment, person, requires
 from .gate_views import gate_context
+from .reading_views import instrument_choices
 from .sign_views import sign_view
 
 bp = Blueprint("mechanic", __name__)
@@ -79,7 +80,8 @@ def _job_page(job_id: int, error: str | None = None, status: int = 200,
                             entered=entered or {}, today=now().date().isoformat(),
                             station_now=now(), given_release=given_release(job.state),
                             sign=sign_view(db(), job.state, job.state.next_step, person(),
-                                           now().date()))
+                                           now().date()),
+                            **instrument_choices(db(), job.state.next_step, now().date()))
 
 
 @bp.get("/jobs/<int:job_id>")
@@ -147,19 +149,28 @@ def _count_data(form: Any) -> dict[str, Any]:
             taps = json.loads(form.get("taps", "[]"))
         except ValueError:
             taps = None
-        return {"method": "taps", "taps": taps, "supply": supply, **mode}
+        return {"method": "taps", "taps": taps, "supply": supply, **mode,
+                **_instrument_data(form)}
     try:
         window: Any = float(form.get("window_s", ""))
     except ValueError:
         window = form.get("window_s")
     return {"method": form.get("method"), "count": form.get("count", ""), "window_s": window,
-            "supply": supply, **mode}
+            "supply": supply, **mode, **_instrument_data(form)}
+
+
+def _instrument_data(form: Any) -> dict[str, Any]:
+    """The instrument's ID: scanned or typed, else the one chosen from the register's list."""
+    typed = form.get("instrument_id", "").strip()
+    chosen = typed or form.get("instrument_pick", "").strip()
+    return {"instrument_id": chosen} if chosen else {}
 
 
 def _reading_data(form: Any) -> dict[str, Any]:
     """A reading form's fields as the event's data (the station checks and converts them)."""
-    data: dict[str, Any] = {k: form[k] for k in ("text", "result", "value", "unit", "wrench_id",
-                                                  "calibration_due", "fastener") if k in form}
+    data: dict[str, Any] = {k: form[k] for k in ("text", "result", "value", "unit", "fastener")
+                            if k in form}
+    data.update(_instrument_data(form))
     for condition in ("test_voltage", "ambient_temperature", "humidity"):
         if f"{condition}_value" in form:
             data[condition] = {"value": form[f"{condition}_value"],

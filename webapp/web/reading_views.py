@@ -3,12 +3,13 @@
 from __future__ import annotations
 
 from collections.abc import Mapping
+from datetime import date
 from typing import Any
 
 from flask import Flask
 
-from ..domain import torque
-from ..domain.execution import JobState
+from ..domain import instruments, torque
+from ..domain.execution import JobState, StepProgress
 from ..domain.procedures import EXCITER_MODES, Torque
 from ..domain.readings import VERDICT_SYMBOL
 from ..shown import (
@@ -19,6 +20,8 @@ from ..shown import (
     unit_choices,
     unit_label,
 )
+from ..store import Database
+from ..store import instruments as instrument_register
 
 
 def register(app: Flask) -> None:
@@ -27,6 +30,17 @@ def register(app: Flask) -> None:
                                  conversion_table=conversion_table, modes=EXCITER_MODES,
                                  verdict_symbol=lambda v: VERDICT_SYMBOL.get(v, ""),
                                  fastener_rows=fastener_rows)
+
+
+def instrument_choices(db: Database, upcoming: StepProgress | None,
+                       today: date) -> dict[str, Any]:
+    """The kind of instrument the step's reading is taken with, and the register's
+    instruments of that kind usable today (in service, in calibration), for its select."""
+    kind = instruments.required_kind(upcoming.step) if upcoming is not None else None
+    if kind is None:
+        return {"instrument_kind": None, "instruments": []}
+    usable = [i for i in instrument_register.all_instruments(db) if i.usable_for(kind, today)]
+    return {"instrument_kind": kind, "instruments": usable}
 
 
 def fastener_rows(step: Torque, state: JobState) -> list[dict[str, Any]]:
