@@ -145,10 +145,10 @@ def serve(db_path: Path | None, host: str, port: int, https: bool,
 def _warm_up() -> None:
     """Load what the first signature would otherwise wait for (WeasyPrint and its fonts, about
     a second; the stamp font, about a second), while the station starts serving."""
-    from .records import pdf, signing
+    from .records import pdf, stamp_style
 
     pdf.font_configuration()
-    signing.stamp_font()
+    stamp_style.stamp_font()
 
 
 def _serve(app: Flask, host: str, port: int, https: bool = False,
