@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import hashlib
 import io
+import logging
 from collections.abc import Callable, Iterable, Mapping
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, replace
@@ -47,6 +48,10 @@ from .stamp_style import stamp_style
 T = TypeVar("T")
 
 _EXECUTOR = ThreadPoolExecutor(max_workers=1, thread_name_prefix="sparkward-pyhanko")
+# The station embeds the validation data it holds (its own CA and list) and never fetches
+# on purpose; pyHanko's warning about that at every signature is no news in the log.
+logging.getLogger("pyhanko.sign.signers.pdf_signer").addFilter(
+    lambda record: "fetching is not allowed" not in record.getMessage())
 
 # Subject attributes that may carry the person's identity; asn1crypto's native names
 # mapped to the short names the rest of the station uses.
