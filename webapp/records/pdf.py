@@ -37,6 +37,14 @@ _render_lock = threading.Lock()  # one FontConfiguration is shared: render one a
 # Elements whose id starts so are the boxes reserved for signatures still to come; the rest
 # of the id is the signature's field name.
 STAMP_ID_PREFIX = "stamp-"
+# PDF/A-3b (ISO 19005-3, level B) as WeasyPrint writes it: header %PDF-1.7, an sRGB output
+# intent, XMP identification pdfaid:part=3 and conformance=B; tagged (a structure tree and
+# /MarkInfo /Marked true) so a screen reader reads the record in order. pyHanko's incremental
+# signatures keep the catalog's /Metadata and /OutputIntents and merge into the XMP.
+# The output intent is WeasyPrint's own sRGB profile, read here once and closed (WeasyPrint's
+# "srgb" shortcut leaves the file open).
+OUTPUT_INTENT = "station-srgb"
+ARCHIVAL_PDF = {"pdf_variant": "pdf/a-3b", "pdf_tags": True, "output_intent": OUTPUT_INTENT}
 _PT_PER_CSS_PX = 0.75  # 1 CSS px = 1/96 in, 1 pt = 1/72 in (CSS Values 3, absolute lengths)
 
 
@@ -81,7 +89,8 @@ def pdf_and_boxes(html: str) -> tuple[bytes, dict[str, StampBox]]:
     weasyprint = _weasyprint()
     document = weasyprint.HTML(string=html, base_url=STATION_ORIGIN, url_fetcher=static_fetcher())
     with _render_lock, _collector_paused():
-        laid_out = document.render(font_config=font_configuration())
+        laid_out = document.render(font_config=font_configuration(),
+                                   color_profiles={OUTPUT_INTENT: _srgb_profile()})
         boxes = {}
         for number, page in enumerate(laid_out.pages):
             height = page.height * _PT_PER_CSS_PX
@@ -90,7 +99,7 @@ def pdf_and_boxes(html: str) -> tuple[bytes, dict[str, StampBox]]:
                     boxes[anchor.removeprefix(STAMP_ID_PREFIX)] = StampBox(number, (
                         x1 * _PT_PER_CSS_PX, height - y2 * _PT_PER_CSS_PX,
                         x2 * _PT_PER_CSS_PX, height - y1 * _PT_PER_CSS_PX))
-        return laid_out.write_pdf(), boxes
+        return laid_out.write_pdf(**ARCHIVAL_PDF), boxes
 
 
 @contextmanager
@@ -116,6 +125,24 @@ def _weasyprint() -> Any:
     import weasyprint
 
     return weasyprint
+
+
+@lru_cache(maxsize=1)
+def _srgb_bytes() -> bytes:
+    from importlib.resources import files
+
+    return (files("weasyprint.pdf") / "sRGB2014.icc").read_bytes()
+
+
+def _srgb_profile() -> Any:
+    """The sRGB profile (IEC 61966-2-1) of the record's output intent, one per render (the
+    PDF writer stores its object number on it)."""
+    import io
+
+    from weasyprint.css import ColorProfile
+
+    return ColorProfile(io.BytesIO(_srgb_bytes()), "sRGB2014.icc", "relative-colorimetric",
+                        (["r"], ["g"], ["b"]))
 
 
 @lru_cache(maxsize=1)
