@@ -9,7 +9,9 @@ folder instead of over HTTP: rendering a record never touches the network.
 from __future__ import annotations
 
 import gc
+import io
 import mimetypes
+import re
 import threading
 from collections.abc import Iterator, Mapping, Sequence
 from contextlib import contextmanager
@@ -79,6 +81,22 @@ def render_for_signing(db: Database, job_id: int, now: datetime,
     return pdf_and_boxes(html)
 
 
+RECORD_ID = re.compile(r"SW-\d{5}-\d{3}-[0-9A-F]{8}")
+
+
+def printed_record_id(pdf: bytes) -> str | None:
+    """The record id a stored PDF carries in its title (the id printed on each page), read
+    back from the file so a screen shows exactly the id of the PDF it links to."""
+    from pyhanko.pdf_utils.reader import PdfFileReader
+
+    try:
+        info = PdfFileReader(io.BytesIO(pdf), strict=False).trailer["/Info"]
+        found = RECORD_ID.search(str(info.get("/Title", "")))
+    except Exception:   # an unreadable file has no id to show; the verify page says why
+        return None
+    return found.group(0) if found else None
+
+
 def pdf_of_html(html: str) -> bytes:
     """Print record HTML to PDF with the station's fonts and static files."""
     return pdf_and_boxes(html)[0]
@@ -137,8 +155,6 @@ def _srgb_bytes() -> bytes:
 def _srgb_profile() -> Any:
     """The sRGB profile (IEC 61966-2-1) of the record's output intent, one per render (the
     PDF writer stores its object number on it)."""
-    import io
-
     from weasyprint.css import ColorProfile
 
     return ColorProfile(io.BytesIO(_srgb_bytes()), "sRGB2014.icc", "relative-colorimetric",
