@@ -112,10 +112,14 @@ def test_type_sizes_body_at_least_9_pt_and_nothing_under_8_5_pt(plug_print, tmp_
     # Body text: the description of the work (section 2), a paragraph outside any table.
     body = [size for (_, word), size in sizes.items() if word in ("Performed", "accordance")]
     assert body and min(body) >= BODY_PT - 0.01
-    # Leading above the size: two lines of that paragraph are more than a size apart.
-    tops = sorted({round(w[3], 1) for w in words if w[0] == 0 and w[3] > 0}
-                  & {round(w[3], 1) for w in words if w[1] in ("Performed", "governs")})
-    assert len(tops) >= 2 and tops[1] - tops[0] > BODY_PT * 1.2
+    # Leading above the size: the lines of that paragraph, from "Performed" to "governs",
+    # are more than 1.2 sizes apart (CSS line-height 1.3).
+    first = next(w for w in words if w[1] == "Performed")
+    last = next(w for w in words if w[1] == "governs" and w[0] == first[0])
+    tops = sorted({round(w[3], 1) for w in words
+                   if w[0] == first[0] and first[3] <= w[3] <= last[3]})
+    assert len(tops) >= 2
+    assert min(b - a for a, b in zip(tops, tops[1:], strict=False)) > BODY_PT * 1.2
 
 
 def test_last_page_is_not_nearly_empty(plug_print, app, db, clock, login, tmp_path):
@@ -260,4 +264,6 @@ def test_the_record_id_on_the_pdf_is_the_one_the_screens_show(
     assert f'data-testid="record-id">{record_id}<' in review
     log = supervisor.get(f"/jobs/{check}/log").get_data(as_text=True)
     assert f'data-testid="record-id-{record["id"]}">{record_id}<' in log
+    job_page = login("mech1").get(f"/jobs/{check}").get_data(as_text=True)
+    assert f'data-testid="job-record-id">{record_id}<' in job_page
     assert pdf.printed_record_id(b"%PDF-1.7 not a record") is None
