@@ -97,6 +97,33 @@ def test_srgb_output_intent_and_structure_tree_after_two_signatures(signed_twice
         assert "/StructParents" in page
 
 
+PDF_NS = "http://ns.adobe.com/pdf/1.3/"
+
+
+def _xmp_producer(data: bytes) -> str | None:
+    root = PdfReader(io.BytesIO(data)).trailer["/Root"]
+    xmp = ET.fromstring(root["/Metadata"].get_object().get_data())
+    for description in xmp.iter(f"{{{RDF}}}Description"):
+        if f"{{{PDF_NS}}}Producer" in description.attrib:
+            return description.attrib[f"{{{PDF_NS}}}Producer"]
+        child = description.find(f"{{{PDF_NS}}}Producer")
+        if child is not None:
+            return (child.text or "").strip()
+    return None
+
+
+@pytest.mark.parametrize("which", ["first signature", "second signature"])
+def test_document_information_equals_its_xmp_twin_after_each_signature(signed_twice, which):
+    # ISO 19005-2 and -3, 6.6.2.3.1 (from memory): each document-information entry present
+    # shall be equivalent to its XMP property: /Title to dc:title, /Producer to pdf:Producer.
+    data = signed_twice[0 if which == "first signature" else 1]
+    info = PdfReader(io.BytesIO(data)).trailer["/Info"]
+    assert str(info["/Title"]) == _xmp_title(data)
+    if "/Producer" in info:
+        assert str(info["/Producer"]) == _xmp_producer(data)
+    assert not {"/Author", "/Subject", "/Keywords", "/Creator"} & set(info)
+
+
 def _catalog_version(data: bytes) -> str | None:
     version = PdfReader(io.BytesIO(data)).trailer["/Root"].get("/Version")
     return str(version).lstrip("/") if version is not None else None

@@ -117,7 +117,15 @@ def pdf_and_boxes(html: str) -> tuple[bytes, dict[str, StampBox]]:
                     boxes[anchor.removeprefix(STAMP_ID_PREFIX)] = StampBox(number, (
                         x1 * _PT_PER_CSS_PX, height - y2 * _PT_PER_CSS_PX,
                         x2 * _PT_PER_CSS_PX, height - y1 * _PT_PER_CSS_PX))
-        return laid_out.write_pdf(**ARCHIVAL_PDF), boxes
+        return laid_out.write_pdf(finisher=_info_without_producer, **ARCHIVAL_PDF), boxes
+
+
+def _info_without_producer(document: Any, pdf: Any) -> None:
+    """PDF/A wants each document-information entry equal to its XMP twin. pyHanko's
+    signatures append themselves to an Info /Producer but write only their own name to the
+    XMP pdf:Producer, so the two would differ after the first signature; without an Info
+    /Producer, pyHanko writes the same name to both (the XMP keeps WeasyPrint's until then)."""
+    pdf.info.pop("Producer", None)
 
 
 @contextmanager
