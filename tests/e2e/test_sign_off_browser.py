@@ -5,6 +5,7 @@ and downloads the signed PDF record, and the record is checked for real."""
 from __future__ import annotations
 
 import io
+import re
 import struct
 import subprocess
 from pathlib import Path
@@ -14,7 +15,7 @@ import pytest
 from playwright.sync_api import expect
 
 from tests.conftest import DEMO_PASSWORDS, DEMO_PINS, LoggedIn
-from tests.pdf_text import pdf_text
+from tests.pdf_text import pdf_pages_text, pdf_text
 from tests.web.jobs import functional_check_counted
 from webapp import create_app, store
 from webapp.records.signing import verify_record
@@ -187,6 +188,7 @@ def test_sign_return_sign_again_certify_and_download_the_record(browser, live_se
     download = download_info.value
     assert download.failure() is None
     assert download.suggested_filename == f"work-record-job-{job_id}-r2-s3.pdf"
+    shown_id = boss.get_by_test_id("record-id").inner_text()   # what the page says it links
     pdf_path = RESULTS / "sign-off-record.pdf"
     download.save_as(pdf_path)
     pdf = pdf_path.read_bytes()
@@ -221,6 +223,10 @@ def test_sign_return_sign_again_certify_and_download_the_record(browser, live_se
         assert name in text
     # On paper too: each signature is stamped in its box (21 CFR 11.50).
     printed = pdf_text(pdf, RESULTS)
+    # The record id on the review page is the one printed on every page of the PDF.
+    assert re.fullmatch(r"SW-\d{5}-\d{3}-[0-9A-F]{8}", shown_id)
+    pages = [p for p in pdf_pages_text(pdf, RESULTS) if p.strip()]
+    assert all(f"Record {shown_id}" in page for page in pages)
     for name in NAMES.values():
         assert f"Signed electronically by {name}" in printed
 

@@ -144,8 +144,8 @@ def test_an_amendment_after_certification_makes_a_new_revision(signed_check, log
 
     text = "".join(page.extract_text() for page in pypdf.PdfReader(
         __import__("io").BytesIO(amended["pdf"])).pages)
-    assert "Amendments after certification" in text and "wrong column" in text
     flat = " ".join(text.split())
+    assert "Amendments after certification" in flat and "wrong column" in flat
     assert f"amends revision 1, record {record_id_of(certified['pdf'])}" in flat
     # The earlier signatures are printed as given in revision 1, not as if in this file.
     assert (f"Signed in revision 1 (record {record_id_of(certified['pdf'])}), not in this "

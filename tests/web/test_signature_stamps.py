@@ -88,10 +88,10 @@ def test_each_signature_is_stamped_in_its_box_with_name_number_meaning_and_time(
                            ("inspector", f"Step {numbers['inspector']}: Inspector")):
         page, (x1, y1, x2, y2) = widgets[field]
         assert heading in pages[page]
-        # The box is 110 mm by 17 mm inside a 0.75 pt border in record.css (1 mm = 72/25.4
+        # The box is 150 mm by 27 mm inside a 0.75 pt border in record.css (1 mm = 72/25.4
         # pt): the stamp covers the border box.
-        assert x2 - x1 == pytest.approx(110 * 72 / 25.4 + 1.5, abs=0.01)
-        assert y2 - y1 == pytest.approx(17 * 72 / 25.4 + 1.5, abs=0.01)
+        assert x2 - x1 == pytest.approx(150 * 72 / 25.4 + 1.5, abs=0.01)
+        assert y2 - y1 == pytest.approx(27 * 72 / 25.4 + 1.5, abs=0.01)
     (p1, a), (p2, b) = widgets["performer"], widgets["inspector"]
     assert p1 != p2 or a[3] <= b[1] or b[3] <= a[1]
 

@@ -49,9 +49,10 @@ def test_one_bolt_out_of_limits_holds_the_step_until_its_own_re_test(installatio
     assert installation.state()["next_step"] == "bonding-resistance"
     with app.app_context():
         flat = " ".join(record_html(db, installation.id, clock(), embedded=True).split())
-    # The record names each bolt, and backs "re-tested" with that bolt's new reading.
+    # The record names each bolt after its step's words (cut at a word near 60 characters),
+    # and backs "re-tested" with that bolt's new reading.
     for bolt in BOLTS:
-        assert f"mounting torque: {bolt}" in flat
+        assert f"Torque the mounting bolts in the sequence the approved data…: {bolt}" in flat
     assert "replaced, re-tested: attempt 5, 38 lbf·in ✓ within" in flat
 
 

@@ -9,7 +9,9 @@ folder instead of over HTTP: rendering a record never touches the network.
 from __future__ import annotations
 
 import gc
+import io
 import mimetypes
+import re
 import threading
 from collections.abc import Iterator, Mapping, Sequence
 from contextlib import contextmanager
@@ -37,6 +39,14 @@ _render_lock = threading.Lock()  # one FontConfiguration is shared: render one a
 # Elements whose id starts so are the boxes reserved for signatures still to come; the rest
 # of the id is the signature's field name.
 STAMP_ID_PREFIX = "stamp-"
+# PDF/A-3b (ISO 19005-3, level B) as WeasyPrint writes it: header %PDF-1.7, an sRGB output
+# intent, XMP identification pdfaid:part=3 and conformance=B; tagged (a structure tree and
+# /MarkInfo /Marked true) so a screen reader reads the record in order. pyHanko's incremental
+# signatures keep the catalog's /Metadata and /OutputIntents and merge into the XMP.
+# The output intent is WeasyPrint's own sRGB profile, read here once and closed (WeasyPrint's
+# "srgb" shortcut leaves the file open).
+OUTPUT_INTENT = "station-srgb"
+ARCHIVAL_PDF = {"pdf_variant": "pdf/a-3b", "pdf_tags": True, "output_intent": OUTPUT_INTENT}
 _PT_PER_CSS_PX = 0.75  # 1 CSS px = 1/96 in, 1 pt = 1/72 in (CSS Values 3, absolute lengths)
 
 
@@ -71,6 +81,22 @@ def render_for_signing(db: Database, job_id: int, now: datetime,
     return pdf_and_boxes(html)
 
 
+RECORD_ID = re.compile(r"SW-\d{5}-\d{3}-[0-9A-F]{8}")
+
+
+def printed_record_id(pdf: bytes) -> str | None:
+    """The record id a stored PDF carries in its title (the id printed on each page), read
+    back from the file so a screen shows exactly the id of the PDF it links to."""
+    from pyhanko.pdf_utils.reader import PdfFileReader
+
+    try:
+        info = PdfFileReader(io.BytesIO(pdf), strict=False).trailer["/Info"]
+        found = RECORD_ID.search(str(info.get("/Title", "")))
+    except Exception:   # an unreadable file has no id to show; the verify page says why
+        return None
+    return found.group(0) if found else None
+
+
 def pdf_of_html(html: str) -> bytes:
     """Print record HTML to PDF with the station's fonts and static files."""
     return pdf_and_boxes(html)[0]
@@ -81,7 +107,8 @@ def pdf_and_boxes(html: str) -> tuple[bytes, dict[str, StampBox]]:
     weasyprint = _weasyprint()
     document = weasyprint.HTML(string=html, base_url=STATION_ORIGIN, url_fetcher=static_fetcher())
     with _render_lock, _collector_paused():
-        laid_out = document.render(font_config=font_configuration())
+        laid_out = document.render(font_config=font_configuration(),
+                                   color_profiles={OUTPUT_INTENT: _srgb_profile()})
         boxes = {}
         for number, page in enumerate(laid_out.pages):
             height = page.height * _PT_PER_CSS_PX
@@ -90,7 +117,15 @@ def pdf_and_boxes(html: str) -> tuple[bytes, dict[str, StampBox]]:
                     boxes[anchor.removeprefix(STAMP_ID_PREFIX)] = StampBox(number, (
                         x1 * _PT_PER_CSS_PX, height - y2 * _PT_PER_CSS_PX,
                         x2 * _PT_PER_CSS_PX, height - y1 * _PT_PER_CSS_PX))
-        return laid_out.write_pdf(), boxes
+        return laid_out.write_pdf(finisher=_info_without_producer, **ARCHIVAL_PDF), boxes
+
+
+def _info_without_producer(document: Any, pdf: Any) -> None:
+    """PDF/A wants each document-information entry equal to its XMP twin. pyHanko's
+    signatures append themselves to an Info /Producer but write only their own name to the
+    XMP pdf:Producer, so the two would differ after the first signature; without an Info
+    /Producer, pyHanko writes the same name to both (the XMP keeps WeasyPrint's until then)."""
+    pdf.info.pop("Producer", None)
 
 
 @contextmanager
@@ -116,6 +151,22 @@ def _weasyprint() -> Any:
     import weasyprint
 
     return weasyprint
+
+
+@lru_cache(maxsize=1)
+def _srgb_bytes() -> bytes:
+    from importlib.resources import files
+
+    return (files("weasyprint.pdf") / "sRGB2014.icc").read_bytes()
+
+
+def _srgb_profile() -> Any:
+    """The sRGB profile (IEC 61966-2-1) of the record's output intent, one per render (the
+    PDF writer stores its object number on it)."""
+    from weasyprint.css import ColorProfile
+
+    return ColorProfile(io.BytesIO(_srgb_bytes()), "sRGB2014.icc", "relative-colorimetric",
+                        (["r"], ["g"], ["b"]))
 
 
 @lru_cache(maxsize=1)

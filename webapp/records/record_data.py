@@ -48,7 +48,7 @@ from .record_steps import (
     DISPOSITION_WORDS,
     ReadingLine,
     StepLine,
-    date_marked,
+    dated,
     reading_line,
     step_line,
     tags_by_step,
@@ -112,6 +112,7 @@ class WorkRecord:
     items_closed: list[Entry] = field(default_factory=list)  # engine open items put right
     amendments: list[AmendmentLine] = field(default_factory=list)  # after certification
     amends: str = ""          # which revision and record this revision amends
+    record_date: str = ""   # the job's opening date (UTC): rows of another date print theirs
 
     @property
     def findings(self) -> list[ReadingLine]:
@@ -177,7 +178,9 @@ def gather(db: Database, job_id: int, now: datetime,
         source_document=source.document, source_section=source.section,
         source_revision=source.revision,
         completed=state.status == "complete", completion=_completion(state),
-        steps=date_marked([step_line(p, tagged.get(p.id, ""), who) for p in state.steps]),
+        steps=dated([step_line(p, tagged.get(p.id, ""), who) for p in state.steps],
+                    station_time(row["opened_at"])[:10]),
+        record_date=station_time(row["opened_at"])[:10],
         readings=readings,
         tags=tags, handovers=handovers,
         power=power_entries(state, events, numbers, who),

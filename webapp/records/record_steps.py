@@ -28,7 +28,7 @@ class StepLine:
     done_by: Who | None
     done_at: str                # the full station time, "2026-12-01 08:02:00 UTC"
     outcome: str = ""           # what the completing entry recorded, in a few words
-    new_date: bool = True       # the first step done on its date: the table prints the date
+    show_date: bool = True      # done on another date than the record's: the row prints it
 
     @property
     def done_on(self) -> str:
@@ -79,13 +79,11 @@ def tags_by_step(events: Sequence[Mapping[str, Any]]) -> dict[str, str]:
     return {step: "; ".join(words) for step, words in said.items()}
 
 
-def date_marked(lines: list[StepLine]) -> list[StepLine]:
-    """Mark the steps where a new date starts, so each row need only print its time."""
-    marked, last = [], None
-    for line in lines:
-        marked.append(replace(line, new_date=bool(line.done_on) and line.done_on != last))
-        last = line.done_on or last
-    return marked
+def dated(lines: list[StepLine], record_date: str) -> list[StepLine]:
+    """Mark the rows whose date is not the record's (the job's opening date): those print
+    their date with the time, so a row read alone on any page still says when it was done."""
+    return [replace(line, show_date=bool(line.done_on) and line.done_on != record_date)
+            for line in lines]
 
 
 def step_line(progress: StepProgress, tagged: str, who: People) -> StepLine:
@@ -112,7 +110,9 @@ def _outcome(step: Step, event: Mapping[str, Any], tagged: str) -> str:
     if kind == "energised":
         return "energised"
     if isinstance(step, Check) and step.items:
-        return f"{len(step.items)} items confirmed"
+        confirmed = [step.items[i] for i in data.get("items", [])
+                     if isinstance(i, int) and 0 <= i < len(step.items)]
+        return "confirmed: " + "; ".join(f"✓ {item.strip()}" for item in confirmed)
     if isinstance(step, Check) and step.power:
         return f"exciter input {step.power}"
     return ""
@@ -149,9 +149,20 @@ def _limits(step: Step | None) -> str:
     return "—"
 
 
-def _short_name(step_id: str) -> str:
-    """A step's id in words ("plug-torque" -> "plug torque"): the steps table has its text."""
-    return step_id.replace("-", " ")
+STEP_WORDS_LENGTH = 60   # characters: a reading's name fits two lines of its column
+
+
+def step_words(step: Step | None) -> str:
+    """A reading's name: its step's own words, the first sentence, cut at a word near
+    STEP_WORDS_LENGTH with an ellipsis. Never the step's internal id: a step the job no
+    longer has (a revision changed it) is named as such."""
+    if step is None:
+        return "(a step this job's procedure no longer has)"
+    first = step.text.strip().split(". ")[0].rstrip(".")
+    if len(first) <= STEP_WORDS_LENGTH:
+        return first
+    cut = first[:STEP_WORDS_LENGTH + 1].rsplit(" ", 1)[0].rstrip(",;:")
+    return cut + "…"
 
 
 def _retest_words(r: Mapping[str, Any], state: JobState, done: str) -> str:
@@ -195,7 +206,8 @@ def reading_line(r: Mapping[str, Any], state: JobState, numbers: Mapping[str, in
                  who: People) -> ReadingLine:
     entered, converted = _entered(r)
     verdict = r.get("verdict", "")
-    name = _short_name(r["step"]) + (f": {r['fastener']}" if r.get("fastener") else "")
+    name = (step_words(step_of(state, r["step"]))
+            + (f": {r['fastener']}" if r.get("fastener") else ""))
     limits = _count_limits(r) or _limits(step_of(state, r["step"]))
     line = ReadingLine(numbers.get(r["step"], 0), name, r["attempt"],
                        entered, converted, limits, verdict,

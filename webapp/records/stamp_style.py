@@ -14,7 +14,9 @@ from pyhanko.stamp import TextStampStyle
 # The stamp's font: DejaVu Sans, the record's own font (Debian's fonts-dejavu-core), embedded
 # as a subset so a name in any script prints as entered.
 STAMP_FONT = Path("/usr/share/fonts/truetype/dejavu/DejaVuSans.ttf")
-STAMP_FONT_SIZE = 8
+STAMP_FONT_SIZE = 9
+# Line pitch above the size, so stamp lines stay apart when printed and scanned at 150 dpi.
+STAMP_LEADING = 11
 
 # What the stamp font keeps of DejaVu Sans: Latin with its extensions, Greek, Cyrillic and
 # the general punctuation (names as people write them in the regions the fonts cover).
@@ -71,4 +73,4 @@ def stamp_style() -> TextStampStyle:
     return TextStampStyle(
         stamp_text="%(stamp)s", border_width=1, background=None,
         text_box_style=TextBoxStyle(font=InMemoryFont(str(STAMP_FONT), STAMP_FONT_SIZE),
-                                    font_size=STAMP_FONT_SIZE))
+                                    font_size=STAMP_FONT_SIZE, leading=STAMP_LEADING))

@@ -34,7 +34,7 @@ class UnlockedSigner:
 
 
 PIN_MAX_FAILURES = 5
-STAMP_LINE_CHARACTERS = 72  # about what 110 mm holds at 8 pt DejaVu Sans
+STAMP_LINE_CHARACTERS = 72  # about what the 150 mm box holds at 9 pt DejaVu Sans
 PIN_LOCK_MINUTES = 10
 
 

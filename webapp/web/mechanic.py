@@ -14,7 +14,7 @@ from ..domain.gates import ON_LIMIT_WARNING_S
 from ..domain.readings import InputProblem
 from ..domain.release import given_release
 from ..station import recording
-from ..store import engines, people
+from ..store import engines, people, signers
 from ..store import fleet as fleet_store
 from ..store import jobs as job_store
 from .common import SUPERVISOR_EVENTS, authority, db, now, page_or_fragment, person, requires
@@ -81,7 +81,19 @@ def _job_page(job_id: int, error: str | None = None, status: int = 200,
                             station_now=now(), given_release=given_release(job.state),
                             sign=sign_view(db(), job.state, job.state.next_step, person(),
                                            now().date()),
-                            **instrument_choices(db(), job.state.next_step, now().date()))
+                            **instrument_choices(db(), job.state.next_step, now().date()),
+                            signed_record_id=_signed_record_id(job_id, job.state))
+
+
+def _signed_record_id(job_id: int, state: Any) -> str | None:
+    """The id printed on the job's signed PDF, for the screen that links to it (read only
+    once the job is done: the link is shown then)."""
+    if state.next_step is not None:
+        return None
+    from ..records.pdf import printed_record_id
+
+    latest = signers.latest_record(db(), job_id)
+    return printed_record_id(latest["pdf"]) if latest else None
 
 
 @bp.get("/jobs/<int:job_id>")

@@ -34,7 +34,16 @@ def job_log(job_id: int) -> Any:
     return render_template("supervisor/job_log.html", job=job.row, state=job.state,
                            events=events, names=names,
                            refusals=job_store.refusals(db(), job_id),
-                           records=signers.records_of(db(), job_id))
+                           records=[{**r, "record_id": _record_id(r["id"])}
+                                    for r in signers.records_of(db(), job_id)])
+
+
+def _record_id(stored_id: int) -> str | None:
+    """The record id printed on a stored PDF (read from the file itself)."""
+    from ..records.pdf import printed_record_id
+
+    found = signers.record(db(), stored_id)
+    return printed_record_id(found["pdf"]) if found else None
 
 
 def _attention(state: Any) -> tuple[int, int]:
@@ -62,12 +71,13 @@ def review_queue() -> Any:
 
 
 def _review_page(job_id: int, error: str | None = None, status: int = 200) -> Any:
-    from ..records.pdf import record_html
+    from ..records.pdf import printed_record_id, record_html
 
     job = recording.load_job(db(), job_id)
     record = record_html(db(), job_id, now(), signatures=recording.signatures_of(job.state),
                          embedded=True, record_revision=recording.record_revision(job.state))
     certifying = job.state.next_step if awaiting_review(job.state) else None
+    latest = signers.latest_record(db(), job_id)
     preview = (job_statement(job.state, engines.current(db(), job.row["engine_id"]), job_id)[0]
                if certifying else None)
     given = given_release(job.state)
@@ -75,7 +85,8 @@ def _review_page(job_id: int, error: str | None = None, status: int = 200) -> An
                            preview=preview, given=given, progress=job_progress(job.state),
                            record=record, certifying=certifying, error=error,
                            sign=sign_view(db(), job.state, certifying, person(), now().date()),
-                           latest=signers.latest_record(db(), job_id),
+                           latest=latest,
+                           latest_id=printed_record_id(latest["pdf"]) if latest else None,
                            amendable=[(p, name, value) for p in job.state.steps
                                       if p.status == "done" and p.step.kind != "sign"
                                       for name, value in amendable_fields(job.state,
