@@ -51,7 +51,9 @@ case "${1:-}" in
     python_env
     export CHROMIUM_PATH=${CHROMIUM_PATH:-/usr/bin/chromium}
     "$VENV/bin/sparkward" tasks check
-    exec "$VENV/bin/python" -m pytest "$@"
+    # One test process per core (the signed-record tests are CPU-bound); a test file stays
+    # on one worker, so its module fixtures and its live server are built once.
+    exec "$VENV/bin/python" -m pytest -n auto --dist loadfile "$@"
     ;;
   *)
     echo "usage: ./run.sh demo [--host H] [--port P] | ./run.sh test [pytest args]" >&2
