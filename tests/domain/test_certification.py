@@ -12,8 +12,6 @@ from __future__ import annotations
 import io
 
 import pytest
-from pyhanko.pdf_utils import generic
-from pyhanko.pdf_utils.incremental_writer import IncrementalPdfFileWriter
 from pyhanko.pdf_utils.reader import PdfFileReader
 from pyhanko.sign.diff_analysis import ModificationLevel
 from pyhanko.sign.fields import MDPPerm
@@ -21,6 +19,7 @@ from pyhanko.sign.validation import validate_pdf_signature
 from pyhanko_certvalidator import ValidationContext
 
 from tests.domain.test_signing import _make_ca, _make_signer
+from tests.pdf_tamper import appended
 from webapp.records import signing
 from webapp.records.signing import StampBox, sign_record
 
@@ -62,33 +61,6 @@ def _statuses(pdf: bytes, ca) -> list:
     return signing._off_thread(run)
 
 
-def _appended(pdf: bytes, change: str) -> bytes:
-    """A forger's incremental update that leaves every signed byte as it was."""
-    def run():
-        writer = IncrementalPdfFileWriter(io.BytesIO(pdf))
-        if change == "content":
-            stream = generic.StreamObject(stream_data=b"BT /F1 12 Tf 72 72 Td (300) Tj ET")
-            writer.add_stream_to_page(0, writer.add_object(stream))
-        else:   # an annotation laid over the page, as a viewer's "comment" would be
-            page = writer.root["/Pages"]["/Kids"][0]
-            annot = writer.add_object(generic.DictionaryObject({
-                generic.NameObject("/Type"): generic.NameObject("/Annot"),
-                generic.NameObject("/Subtype"): generic.NameObject("/FreeText"),
-                generic.NameObject("/Rect"): generic.ArrayObject(
-                    [generic.FloatObject(v) for v in (72, 72, 300, 100)]),
-                generic.NameObject("/Contents"): generic.TextStringObject("300 lbf·in"),
-                generic.NameObject("/DA"): generic.TextStringObject("/Helv 12 Tf 0 g")}))
-            page_obj = page.get_object()
-            annots = page_obj.get("/Annots", generic.ArrayObject())
-            annots.append(annot)
-            page_obj[generic.NameObject("/Annots")] = annots
-            writer.update_container(page_obj)
-        out = io.BytesIO()
-        writer.write(out)
-        return out.getvalue()
-    return signing._off_thread(run)
-
-
 def test_the_first_signature_certifies_the_revision_for_form_filling_only(certified, ca):
     [(status, level)] = _statuses(certified, ca)
     assert status.intact and status.valid and status.trusted
@@ -108,7 +80,7 @@ def test_a_later_signature_in_a_reserved_box_is_allowed_form_filling(countersign
 @pytest.mark.parametrize("change", ["content", "annotation"])
 def test_an_appended_change_is_a_forbidden_change_of_the_certified_record(countersigned, ca,
                                                                           change):
-    altered = _appended(countersigned, change)
+    altered = appended(countersigned, change)
     for status, _ in _statuses(altered, ca):
         assert status.intact and status.valid        # the signed bytes themselves are intact
         assert status.modification_level == ModificationLevel.OTHER

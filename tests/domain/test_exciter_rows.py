@@ -163,29 +163,23 @@ def _procedure_problems(steps: str) -> list[str]:
     return []
 
 
-def test_the_validator_checks_each_row_of_a_table_like_the_default():
-    problems = _procedure_problems("""
+@pytest.mark.parametrize(("row", "said"), [
+    ("XEX-1: {min: 95, max: 55}", "above max"),
+    ("XEX-2: {min: 70, max: 70}", "both 70"),
+])
+def test_the_validator_checks_each_row_of_a_table_like_the_default(row, said):
+    problems = _procedure_problems(f"""
   - id: count-a
     kind: spark_count
     text: Count A.
     channel: A
     limits:
-      default: {min: 55, max: 95}
+      default: {{min: 55, max: 95}}
       by_part_number:
-        XEX-1: {min: 95, max: 55}
+        {row}
 """)
-    assert any("limits.by_part_number.XEX-1" in p and "above max" in p for p in problems), problems
-    problems = _procedure_problems("""
-  - id: count-a
-    kind: spark_count
-    text: Count A.
-    channel: A
-    limits:
-      default: {min: 55, max: 95}
-      by_part_number:
-        XEX-2: {min: 70, max: 70}
-""")
-    assert any("limits.by_part_number.XEX-2" in p and "both 70" in p for p in problems), problems
+    part = row.split(":")[0]
+    assert any(f"limits.by_part_number.{part}" in p and said in p for p in problems), problems
 
 
 def test_the_validator_checks_each_capacitor_row():

@@ -14,8 +14,6 @@ import re
 
 import pytest
 from click.testing import CliRunner
-from pyhanko.pdf_utils import generic
-from pyhanko.pdf_utils.incremental_writer import IncrementalPdfFileWriter
 from pyhanko.pdf_utils.reader import PdfFileReader
 from pyhanko.pdf_utils.writer import copy_into_new_writer
 from pyhanko.sign.diff_analysis import ModificationLevel
@@ -23,6 +21,7 @@ from pyhanko.sign.validation import validate_pdf_signature
 from pyhanko_certvalidator import ValidationContext
 
 from tests.conftest import DEMO_PINS, csrf_token_of
+from tests.pdf_tamper import appended
 from tests.web.jobs import _event, functional_check_counted
 from webapp.cli import cli
 from webapp.records.identity import asn1_certificate
@@ -60,31 +59,6 @@ def _pyhanko(pdf: bytes, db_path, clock):
         return [(s.intact, s.valid, s.modification_level, s.docmdp_ok) for s in (
             validate_pdf_signature(sig, context) for sig in reader.embedded_signatures
             if sig.sig_object_type == "/Sig")]
-    return _off_thread(run)
-
-
-def _appended(pdf: bytes, change: str) -> bytes:
-    def run():
-        writer = IncrementalPdfFileWriter(io.BytesIO(pdf))
-        page = writer.root["/Pages"]["/Kids"][0].get_object()
-        if change == "content":
-            stream = generic.StreamObject(stream_data=b"BT /F1 12 Tf 72 72 Td (36) Tj ET")
-            writer.add_stream_to_page(0, writer.add_object(stream))
-        else:
-            annot = writer.add_object(generic.DictionaryObject({
-                generic.NameObject("/Type"): generic.NameObject("/Annot"),
-                generic.NameObject("/Subtype"): generic.NameObject("/Square"),
-                generic.NameObject("/Rect"): generic.ArrayObject(
-                    [generic.FloatObject(v) for v in (60, 60, 400, 120)]),
-                generic.NameObject("/IC"): generic.ArrayObject(
-                    [generic.FloatObject(1)] * 3)}))   # a white box over a value
-            annots = page.get("/Annots", generic.ArrayObject())
-            annots.append(annot)
-            page[generic.NameObject("/Annots")] = annots
-            writer.update_container(page)
-        out = io.BytesIO()
-        writer.write(out)
-        return out.getvalue()
     return _off_thread(run)
 
 
@@ -131,7 +105,7 @@ def test_every_change_fails_in_verify_and_in_pyhanko(check, db, db_path, tmp_pat
         altered[spot] ^= 0x01
         altered = bytes(altered)
     elif change in ("content", "annotation"):
-        altered = _appended(latest, change)
+        altered = appended(latest, change, b"36")
     elif change == "re-saved":
         altered = _resaved(latest)
     else:
