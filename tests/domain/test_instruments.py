@@ -17,7 +17,7 @@ from datetime import date, timedelta
 import pytest
 from pydantic import ValidationError
 
-from tests.domain.test_gates import _removal_at_discharge
+from tests.domain.gate_events import _removal_at_discharge
 from webapp.domain import instruments
 from webapp.domain.errors import RuleRefusal
 from webapp.domain.instruments import Instrument

@@ -18,7 +18,7 @@ from pathlib import Path
 
 import pytest
 
-from tests.domain.test_gates import _Job, _removal_at_discharge, _t
+from tests.domain.gate_events import _Job, _removal_at_discharge, _t
 from tests.domain.test_procedures import FILE, check_step, problems_in, procedure_text
 from webapp.domain import isolation
 from webapp.domain.procedure_files import parse_procedure

@@ -6,7 +6,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from tests.domain.test_gates import _event, _Job
+from tests.domain.gate_events import _event, _Job
 from webapp.domain.procedure_files import parse_procedure
 from webapp.records.record_parts import tool_entries
 
