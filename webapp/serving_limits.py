@@ -27,15 +27,15 @@ PER_ADDRESS_LIMIT = 64
 # Close a keep-alive connection idle this long. Tablets tap every few seconds to minutes;
 # a reconnect costs ~1 ms on the LAN, while an idle connection costs a file descriptor.
 # 30 s keeps a working tablet's connection warm between taps (settable).
-IDLE_TIMEOUT_S = 30
+IDLE_TIMEOUT_S = 30.0
 # A client must finish its request line and headers this long after it starts them, however
 # slowly it trickles bytes (a "slowloris" keeps each connection just active enough to
 # beat the idle timeout). A tablet sends its headers in one packet; 10 s allows a weak
 # Wi-Fi link many retransmissions (settable). Waitress has no such limit: added below.
-HEADER_TIMEOUT_S = 10
+HEADER_TIMEOUT_S = 10.0
 # How often the waitress loop looks for idle and slow connections: the two timeouts above
 # are enforced to within this (waitress's default is 30 s).
-CLEANUP_INTERVAL_S = 2
+CLEANUP_INTERVAL_S = 2.0
 # Request headers: a tablet sends about 1 KB (cookie, CSRF token); 64 KB is generous and
 # bounds what a client can make the server buffer before the app sees anything.
 MAX_REQUEST_HEADER_BYTES = 64 * 1024
@@ -43,19 +43,21 @@ MAX_REQUEST_HEADER_BYTES = 64 * 1024
 # a message that names the field; the server's own cut-off sits above the largest of those
 # so the app's clear answer wins, and still stops a 1 GB upload (waitress's default).
 MAX_REQUEST_BODY_BYTES = 32 * 1024 * 1024
-# Worker threads (settable). Measured with bench/load.py on the 2-core station machine:
-# see bench/README.md. SQLite in WAL mode lets every thread read at once; writes take
-# turns behind `store.writing`, so more threads mostly add queueing, not throughput.
-THREADS = 16
+# Worker threads (settable). Measured with bench/load.py at 200 simulated tablets on the
+# 2-core station machine, 8 against 16 against 32, interleaved: 32 gave the shortest p95
+# for step pages and event posts in each round (bench/README.md). A thread waiting for
+# its turn to write, or for the disk, holds no CPU; with more of them the pages go on
+# being served meanwhile. SQLite keeps one connection per thread (3 files each).
+THREADS = 32
 # File descriptors besides the connections: SQLite keeps 3 per thread (database, WAL,
 # shared memory), plus the listening sockets, logs, PDFs being signed, the CA files.
 SPARE_FILES = 256
 # HTTPS (cheroot): one worker thread per request in progress; idle keep-alive connections
 # wait in cheroot's selector without a thread. A client that trickles its request holds a
-# thread until `HTTPS_SOCKET_TIMEOUT_S` passes with no byte: more threads than on HTTP,
+# thread until `HTTPS_SOCKET_TIMEOUT_S` passes with no byte: twice the threads of HTTP,
 # and a short timeout, so a few slow clients cannot take them all.
-HTTPS_THREADS = 32
-HTTPS_SOCKET_TIMEOUT_S = 10
+HTTPS_THREADS = 64
+HTTPS_SOCKET_TIMEOUT_S = 10.0
 
 
 @dataclass(frozen=True)
@@ -71,12 +73,22 @@ class Limits:
 
     @classmethod
     def from_config(cls, config: Any) -> Limits:
-        limits = cls()
-        for name in ("threads", "connection_limit", "per_address_limit", "idle_timeout_s",
-                     "header_timeout_s", "cleanup_interval_s"):
+        """The defaults, with any `SERVER_<FIELD>` key of `config` (a positive number)."""
+        overrides: dict[str, Any] = {}
+        for name, kind in (("threads", int), ("connection_limit", int),
+                           ("per_address_limit", int), ("idle_timeout_s", float),
+                           ("header_timeout_s", float), ("cleanup_interval_s", float)):
             key = "SERVER_" + name.upper()
-            if key in config:
-                limits = replace(limits, **{name: type(getattr(limits, name))(config[key])})
+            if key not in config:
+                continue
+            value = config[key]
+            if isinstance(value, bool) or not isinstance(value, int | float) or value <= 0 \
+                    or (kind is int and value != int(value)):
+                raise click.ClickException(
+                    f"{key} in the instance file must be a positive "
+                    f"{'whole number' if kind is int else 'number'}, not {value!r}")
+            overrides[name] = kind(value)
+        limits = cls(**overrides)
         # The checks run every cleanup interval: keep it below the shorter timeout.
         shortest = min(limits.idle_timeout_s, limits.header_timeout_s)
         return replace(limits, cleanup_interval_s=min(limits.cleanup_interval_s,

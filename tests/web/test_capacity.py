@@ -16,8 +16,12 @@ from collections.abc import Iterator
 from contextlib import ExitStack, contextmanager
 from pathlib import Path
 
+import pytest
+from click.testing import CliRunner
+
 from tests.https_station import free_port, serving_https
-from webapp.serving_limits import CONNECTION_LIMIT, PER_ADDRESS_LIMIT, SPARE_FILES
+from webapp.cli import cli
+from webapp.serving_limits import CONNECTION_LIMIT, PER_ADDRESS_LIMIT, SPARE_FILES, Limits
 
 FLOODER = "127.0.0.1"
 # Linux routes all of 127.0.0.0/8 to the loopback interface (from memory: ip-route's
@@ -214,3 +218,27 @@ def test_https_answers_another_client_while_one_address_floods_it(db_path, tmp_p
         finally:
             connection.close()
         assert time.monotonic() - started < 1.0
+
+
+@pytest.mark.parametrize(("setting", "value"), [
+    ("SERVER_IDLE_TIMEOUT_S", 0), ("SERVER_THREADS", 2.5), ("SERVER_PER_ADDRESS_LIMIT", -1),
+    ("SERVER_HEADER_TIMEOUT_S", '"soon"'), ("SERVER_CONNECTION_LIMIT", "true"),
+])
+def test_a_bad_limit_in_the_instance_file_is_refused_naming_it(db_path, tmp_path, monkeypatch,
+                                                               setting, value):
+    instance = tmp_path / "instance"
+    instance.mkdir()
+    (instance / "sparkward.toml").write_text(f"{setting} = {value}\n")
+    monkeypatch.setenv("SPARKWARD_INSTANCE", str(instance))
+    result = CliRunner().invoke(cli, ["serve", "--db", str(db_path), "--port", str(free_port())])
+    assert result.exit_code == 1, result.output
+    assert setting in result.output and "positive" in result.output
+    assert "serving" not in result.output
+
+
+def test_good_limits_are_taken_and_the_cleanup_keeps_up_with_the_shortest_timeout():
+    limits = Limits.from_config({"SERVER_IDLE_TIMEOUT_S": 3, "SERVER_THREADS": 4,
+                                 "SERVER_HEADER_TIMEOUT_S": 1.5, "OTHER": "ignored"})
+    assert (limits.idle_timeout_s, limits.threads, limits.header_timeout_s) == (3.0, 4, 1.5)
+    assert limits.cleanup_interval_s == 0.75  # half the shortest timeout
+    assert Limits.from_config({}) == Limits()
