@@ -22,6 +22,15 @@ from .serving_limits import (
 )
 
 
+def serve(app: Flask, host: str, port: int, https: bool = False,
+          extra_names: tuple[str, ...] = ()) -> None:
+    """Serve `app` until Ctrl+C: waitress, or cheroot with TLS for `https`."""
+    if https:
+        serve_https(app, host, port, extra_names)
+    else:
+        serve_http(app, host, port)
+
+
 def warm_up() -> None:
     """Load what the first signature would otherwise wait for (WeasyPrint and its fonts, about
     a second; the stamp font, about a second), while the station starts serving."""
@@ -100,15 +109,6 @@ def _limits_line(limits: Limits) -> str:
 
 
 # --- HTTPS: cheroot ---------------------------------------------------------------------
-
-def serve(app: Flask, host: str, port: int, https: bool = False,
-          extra_names: tuple[str, ...] = ()) -> None:
-    """Serve `app` until Ctrl+C: waitress, or cheroot with TLS for `https`."""
-    if https:
-        serve_https(app, host, port, extra_names)
-    else:
-        serve_http(app, host, port)
-
 
 def serve_https(app: Flask, host: str, port: int, extra_names: tuple[str, ...]) -> None:
     """cheroot with TLS 1.2 or newer and the station's own server certificate (waitress has

@@ -108,6 +108,8 @@ def raise_open_files_limit(limits: Limits) -> Limits:
         wanted = min(wanted, hard)
     if wanted > soft:
         resource.setrlimit(resource.RLIMIT_NOFILE, (wanted, hard))
+        click.echo(f"Open-file limit raised from {soft} to {wanted} for "
+                   f"{limits.connection_limit} connections.")
         soft = wanted
     if soft < limits.connection_limit + SPARE_FILES:
         fitted = max(soft - SPARE_FILES, 16)

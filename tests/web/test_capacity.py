@@ -130,6 +130,7 @@ def test_one_address_flooding_cannot_stall_another(db_path, tmp_path):
         soft = int(next(line for line in limits.splitlines()
                         if line.startswith("Max open files")).split()[3])
         assert soft >= CONNECTION_LIMIT + SPARE_FILES
+        assert f"Open-file limit raised from 1024 to {soft}" in (tmp_path / "serve.log").read_text()
 
         flood = _flood(stack, port)
         assert _healthz(port, OTHER_CLIENT)["status"] == "ok"
