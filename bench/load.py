@@ -114,7 +114,7 @@ def bare_app() -> Any:
 def serve_only(which: str, db_path: str, threads: int, port_file: Path) -> None:
     """Run in the server subprocess: the chosen app on the station's waitress."""
     from webapp.serving import station_waitress
-    from webapp.serving_limits import Limits, raise_open_files_limit
+    from webapp.serving.limits import Limits, raise_open_files_limit
 
     app = bare_app() if which == "bare" else create_app(
         {"DB_PATH": db_path, "SECRET_KEY": "bench", "TESTING": False})
@@ -300,7 +300,7 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--db", help=argparse.SUPPRESS)
     parser.add_argument("--port-file", type=Path, help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
-    from webapp.serving_limits import THREADS
+    from webapp.serving.limits import THREADS
 
     threads = args.threads or THREADS
     if args.serve:

@@ -21,7 +21,7 @@ from click.testing import CliRunner
 
 from tests.https_station import free_port, serving_https
 from webapp.cli import cli
-from webapp.serving_limits import CONNECTION_LIMIT, PER_ADDRESS_LIMIT, SPARE_FILES, Limits
+from webapp.serving.limits import CONNECTION_LIMIT, PER_ADDRESS_LIMIT, SPARE_FILES, Limits
 
 FLOODER = "127.0.0.1"
 # Linux routes all of 127.0.0.0/8 to the loopback interface (from memory: ip-route's
@@ -202,7 +202,7 @@ def test_idle_and_slow_connections_are_closed_and_working_ones_kept(db_path, tmp
 
 def test_https_answers_another_client_while_one_address_floods_it(db_path, tmp_path,
                                                                  monkeypatch):
-    # Before serving_cheroot, three connections that said nothing held cheroot's accept
+    # Before serving/cheroot_server.py, three connections that said nothing held cheroot's accept
     # loop in their TLS handshakes and no tablet got an answer for over 15 s.
     monkeypatch.setenv("PYTHONPATH", ROOT)
     with serving_https(db_path, tmp_path) as (port, _), ExitStack() as stack:

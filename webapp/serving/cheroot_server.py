@@ -13,11 +13,11 @@ from __future__ import annotations
 import ssl
 from typing import Any
 
-from cheroot import server as cheroot_server
+from cheroot import server as cheroot_http
 from cheroot import wsgi
 from cheroot.ssl.builtin import BuiltinSSLAdapter
 
-from .serving_limits import (
+from .limits import (
     HTTPS_SOCKET_TIMEOUT_S,
     HTTPS_THREADS,
     MAX_REQUEST_BODY_BYTES,
@@ -39,7 +39,7 @@ class HandshakeInWorkerAdapter(BuiltinSSLAdapter):
         return wrapped, {"wsgi.url_scheme": "https", "HTTPS": "on"}
 
 
-class StationConnection(cheroot_server.HTTPConnection):
+class StationConnection(cheroot_http.HTTPConnection):
     """A connection that gives its address's count back when it closes (once)."""
 
     counted_address: str | None = None

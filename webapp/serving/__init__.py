@@ -1,7 +1,7 @@
 """Serving the station: waitress for HTTP, cheroot for HTTPS, sized so no one client stalls it.
 
-The limits and their reasons are in `serving_limits`; waitress's and cheroot's changes in
-`serving_waitress` and `serving_cheroot`.
+The limits and their reasons are in `limits`; waitress's and cheroot's changes in
+`waitress_server` and `cheroot_server`.
 """
 
 from __future__ import annotations
@@ -14,7 +14,7 @@ from typing import Any
 import click
 from flask import Flask
 
-from .serving_limits import (
+from .limits import (
     MAX_REQUEST_BODY_BYTES,
     MAX_REQUEST_HEADER_BYTES,
     Limits,
@@ -34,7 +34,7 @@ def serve(app: Flask, host: str, port: int, https: bool = False,
 def warm_up() -> None:
     """Load what the first signature would otherwise wait for (WeasyPrint and its fonts, about
     a second; the stamp font, about a second), while the station starts serving."""
-    from .records import pdf, stamp_style
+    from ..records import pdf, stamp_style
 
     pdf.font_configuration()
     stamp_style.stamp_font()
@@ -69,7 +69,7 @@ def station_waitress(app: Any, host: str, port: int, limits: Limits) -> Any:
     from waitress.server import MultiSocketServer
     from waitress.task import ThreadedTaskDispatcher
 
-    from .serving_waitress import StationServer
+    from .waitress_server import StationServer
 
     adj = Adjustments(host=host, port=port, **waitress_options(limits))
     dispatcher = ThreadedTaskDispatcher()
@@ -113,9 +113,9 @@ def _limits_line(limits: Limits) -> str:
 def serve_https(app: Flask, host: str, port: int, extra_names: tuple[str, ...]) -> None:
     """cheroot with TLS 1.2 or newer and the station's own server certificate (waitress has
     no TLS); the certificate is issued or renewed here, before the first request."""
-    from .records.server_identity import ServerNameProblem
-    from .serving_cheroot import station_cheroot
-    from .station.authority import lan_names, station_tls
+    from ..records.server_identity import ServerNameProblem
+    from ..station.authority import lan_names, station_tls
+    from .cheroot_server import station_cheroot
 
     try:
         tls = station_tls(app.config["DB_PATH"], app.config["STATION_NAME"],
@@ -152,7 +152,7 @@ def _announce_https(tls: Any, host: str, port: int) -> None:
     """Where tablets find the station, and how they learn to trust it."""
     from cryptography import x509
 
-    from .records.server_identity import certificate_fingerprint
+    from ..records.server_identity import certificate_fingerprint
 
     alternative = tls.certificate.extensions.get_extension_for_class(
         x509.SubjectAlternativeName).value
@@ -176,6 +176,6 @@ def _announce_https(tls: Any, host: str, port: int) -> None:
 
 
 def _now() -> Any:
-    from .clock import system_clock
+    from ..clock import system_clock
 
     return system_clock()

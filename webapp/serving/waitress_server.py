@@ -1,5 +1,5 @@
 """Waitress with two limits it lacks: open connections per client address, and a deadline
-for a request's headers (see `serving` for the values and why)."""
+for a request's headers (see `limits` for the values and why)."""
 
 from __future__ import annotations
 
@@ -9,7 +9,7 @@ from typing import Any
 from waitress.channel import HTTPChannel
 from waitress.server import TcpWSGIServer
 
-from .serving_limits import AddressCount, Limits
+from .limits import AddressCount, Limits
 
 
 class StationChannel(HTTPChannel):
