@@ -120,20 +120,26 @@ def serve_only(which: str, db_path: str, threads: int, port_file: Path) -> None:
         {"DB_PATH": db_path, "SECRET_KEY": "bench", "TESTING": False})
     limits = raise_open_files_limit(Limits(threads=threads))
     server = station_waitress(app, "127.0.0.1", 0, limits)
-    port_file.write_text(str(server.effective_port))
+    port_file.with_suffix(".tmp").write_text(str(server.effective_port))
+    port_file.with_suffix(".tmp").rename(port_file)  # the client never reads half a number
     server.run()
 
 
 def start_server(which: str, db_path: Path, threads: int, tmp: Path) -> tuple[Any, int]:
+    """Start the server process; its port is 0 until `wait_for_port` reads it."""
     port_file = tmp / f"{which}.port"
     process = subprocess.Popen([sys.executable, __file__, "--serve", which, "--db", str(db_path),
                                 "--threads", str(threads), "--port-file", str(port_file)],
                                env={**os.environ, "PYTHONPATH": str(Path(__file__).parents[1])})
-    deadline = time.monotonic() + 20
+    return process, 0
+
+
+def wait_for_port(process: Any, port_file: Path) -> int:
+    deadline = time.monotonic() + 30
     while not port_file.exists() or not port_file.read_text():
         assert process.poll() is None and time.monotonic() < deadline, "server did not start"
         time.sleep(0.05)
-    return process, int(port_file.read_text())
+    return int(port_file.read_text())
 
 
 def cpu_seconds(pid: int) -> float:
@@ -241,7 +247,8 @@ async def run_tablet(tablet: Tablet, port: int, counted_from: float, ends: float
                 tablet.errors.append(f"GET {status}")
             elif started >= counted_from:
                 tablet.samples["page"].append(time.monotonic() - started)
-            await asyncio.sleep(random.uniform(*THINK_S))
+            # Think, but not past the end of the level: the next level waits for this one.
+            await asyncio.sleep(min(random.uniform(*THINK_S), max(0.0, ends - time.monotonic())))
             if time.monotonic() >= ends or tablet.posted >= len(tablet.plan):
                 continue  # out of steps: this tablet only reads pages from here
             step, kind, data = tablet.plan[tablet.posted]
@@ -292,10 +299,10 @@ def main(argv: list[str] | None = None) -> int:
                         help="counted seconds per level and app, after a 2 s ramp (default 8)")
     parser.add_argument("--threads", type=int, default=None,
                         help="waitress threads (default: the station's THREADS)")
-    parser.add_argument("--sessions", type=int, default=20,
-                        help="log-ins, shared round-robin by the tablets (default 20)")
-    parser.add_argument("--walked", type=int, default=10,
-                        help="steps each tablet's job has done before the run (default 10)")
+    parser.add_argument("--sessions", type=int, default=10,
+                        help="log-ins, shared round-robin by the tablets (default 10)")
+    parser.add_argument("--walked", type=int, default=5,
+                        help="steps each tablet's job has done before the run (default 5)")
     parser.add_argument("--serve", choices=["station", "bare"], help=argparse.SUPPRESS)
     parser.add_argument("--db", help=argparse.SUPPRESS)
     parser.add_argument("--port-file", type=Path, help=argparse.SUPPRESS)
@@ -324,8 +331,10 @@ async def run(args: argparse.Namespace, threads: int) -> int:
               f"of {len(built['plan']) + args.walked} steps, {args.walked} done in each")
         servers = {}
         try:
-            for which in ("station", "bare"):
+            for which in ("station", "bare"):  # both start at once; each waits for its port
                 servers[which] = start_server(which, built["db_path"], threads, tmp)
+            for which, (process, _) in servers.items():
+                servers[which] = (process, wait_for_port(process, tmp / f"{which}.port"))
             port = servers["station"][1]
             login_at = time.monotonic()
             sessions = [await log_in(port, MECHANICS[i % len(MECHANICS)], i)
