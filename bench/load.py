@@ -28,7 +28,8 @@ from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
 
-from measuring import percentile  # bench/ is on sys.path when a bench runs
+from load_client import Connection, Session, log_in  # bench/ is on sys.path
+from measuring import percentile
 from step_page import _event_for, _procedure_yaml
 
 from webapp import create_app, store
@@ -46,7 +47,6 @@ THINK_S = (1.0, 3.0)
 RAMP_S = 2.0  # tablets start spread over this, and nothing is counted before it ends
 TARGET_P95_MS = 100.0
 MECHANICS = ("mech1", "mech2")  # demo data; several tablets share each log-in
-PASSWORDS = {"mech1": "demo-mech1", "mech2": "demo-mech2"}
 
 
 # --- the station and the servers (subprocesses: the server must not share our GIL) ----------
@@ -148,13 +148,7 @@ def cpu_seconds(pid: int) -> float:
     return (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
 
 
-# --- the client: raw asyncio streams, HTTP/1.1 keep-alive ---------------------------------
-
-@dataclass
-class Session:
-    cookie: str = ""
-    token: str = ""
-
+# --- the simulated tablets ---------------------------------------------------------------
 
 @dataclass
 class Tablet:
@@ -169,68 +163,6 @@ class Tablet:
     @property
     def address(self) -> str:  # 127.0.1.1, 127.0.1.2, ...: one client address per tablet
         return f"127.0.{1 + self.number // 250}.{1 + self.number % 250}"
-
-
-class Connection:
-    def __init__(self, port: int, address: str) -> None:
-        self.port, self.address = port, address
-        self.reader: asyncio.StreamReader | None = None
-        self.writer: asyncio.StreamWriter | None = None
-
-    async def request(self, method: str, path: str, headers: dict[str, str] | None = None,
-                      body: bytes = b"") -> tuple[int, dict[str, str], bytes]:
-        if self.writer is None:
-            self.reader, self.writer = await asyncio.open_connection(
-                "127.0.0.1", self.port, local_addr=(self.address, 0))
-        assert self.reader is not None
-        lines = [f"{method} {path} HTTP/1.1", "Host: station"]
-        lines += [f"{k}: {v}" for k, v in (headers or {}).items()]
-        if body or method == "POST":
-            lines.append(f"Content-Length: {len(body)}")
-        self.writer.write(("\r\n".join(lines) + "\r\n\r\n").encode() + body)
-        head = (await self.reader.readuntil(b"\r\n\r\n")).decode("latin-1").split("\r\n")
-        status = int(head[0].split()[1])
-        answer: dict[str, str] = {}
-        for line in head[1:]:
-            if ":" in line:
-                name, value = line.split(":", 1)
-                answer.setdefault(name.strip().lower(), value.strip())
-        data = await self.reader.readexactly(int(answer.get("content-length", "0")))
-        assert "chunked" not in answer.get("transfer-encoding", ""), "chunked: not expected"
-        if answer.get("connection", "").lower() == "close":
-            await self.close()
-        return status, answer, data
-
-    async def close(self) -> None:
-        if self.writer is not None:
-            self.writer.close()
-            self.writer = None
-
-
-async def log_in(port: int, username: str, number: int) -> Session:
-    import re
-
-    connection = Connection(port, f"127.0.9.{1 + number}")
-    try:
-        _, head, page = await connection.request("GET", "/login")
-        cookie = head["set-cookie"].split(";", 1)[0]
-        token = re.search(rb'name="csrf_token"[^>]*value="([^"]+)"', page)
-        assert token, "no csrf token on the log-in page"
-        form = (f"csrf_token={token.group(1).decode()}&username={username}"
-                f"&password={PASSWORDS[username]}").encode()
-        status, head, _ = await connection.request(
-            "POST", "/login", {"Cookie": cookie,
-                               "Content-Type": "application/x-www-form-urlencoded"}, form)
-        assert status == 303, status
-        cookie = head["set-cookie"].split(";", 1)[0]
-        _, head, page = await connection.request("GET", "/fleet", {"Cookie": cookie})
-        # The first page after log-in puts the CSRF secret in the session: a new cookie.
-        cookie = head.get("set-cookie", cookie).split(";", 1)[0]
-        meta = re.search(rb'<meta name="csrf-token" content="([^"]+)"', page)
-        assert meta, "no csrf-token meta after log-in"
-        return Session(cookie, meta.group(1).decode())
-    finally:
-        await connection.close()
 
 
 async def run_tablet(tablet: Tablet, port: int, counted_from: float, ends: float) -> None:
