@@ -8,9 +8,11 @@ import json
 import os
 import resource
 import socket
+import sqlite3
 import ssl
 import subprocess
 import sys
+import threading
 import time
 from collections.abc import Iterator
 from contextlib import ExitStack, contextmanager
@@ -20,6 +22,7 @@ import pytest
 from click.testing import CliRunner
 
 from tests.https_station import free_port, serving_https
+from webapp import store
 from webapp.cli import cli
 from webapp.serving.limits import CONNECTION_LIMIT, PER_ADDRESS_LIMIT, SPARE_FILES, Limits
 
@@ -243,3 +246,42 @@ def test_good_limits_are_taken_and_the_cleanup_keeps_up_with_the_shortest_timeou
     assert (limits.idle_timeout_s, limits.threads, limits.header_timeout_s) == (3.0, 4, 1.5)
     assert limits.cleanup_interval_s == 0.75  # half the shortest timeout
     assert Limits.from_config({}) == Limits()
+
+
+def test_writers_in_one_process_take_turns_instead_of_meeting_a_busy_database(db_path):
+    # SQLite alone makes the second writer sleep-and-retry (or fail at once with no busy
+    # timeout); the store's writer lock makes it wait its turn and go straight in.
+    holding, order = threading.Event(), []
+
+    def write_slowly() -> None:  # a connection belongs to its thread
+        first = store.connect(db_path)
+        first.conn.execute("PRAGMA busy_timeout = 0")  # no retrying: a clash would fail
+        try:
+            with store.writing(first):
+                first.conn.execute("create table turn_test (who text)")
+                holding.set()
+                time.sleep(0.3)
+                first.conn.execute("insert into turn_test values ('first')")
+                order.append("first")
+        finally:
+            first.close()
+
+    second = store.connect(db_path)
+    second.conn.execute("PRAGMA busy_timeout = 0")
+    writer = threading.Thread(target=write_slowly)
+    writer.start()
+    try:
+        assert holding.wait(5)
+        with store.writing(second):
+            second.conn.execute("insert into turn_test values ('second')")
+            order.append("second")
+        assert order == ["first", "second"]
+        rows = [r[0] for r in second.conn.execute("select who from turn_test order by rowid")]
+        assert rows == ["first", "second"]
+        # A nested transaction still fails as SQLite makes it fail, without waiting on itself.
+        with store.writing(second), pytest.raises(sqlite3.OperationalError, match="within"):
+            with store.writing(second):
+                pass
+    finally:
+        writer.join(5)
+        second.close()
