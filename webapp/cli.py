@@ -4,13 +4,12 @@
 from __future__ import annotations
 
 import sys
-import threading
 from pathlib import Path
 
 import click
 from flask import Flask
 
-from . import store
+from . import serving, store
 from .cli_instruments import instruments
 from .clock import system_clock
 from .domain.procedure_files import ProcedureInvalid
@@ -126,7 +125,7 @@ def demo(db_path: Path | None, host: str, port: int, https: bool, extra_names: t
     click.echo("Demo log-ins (username / password / signing PIN / role):")
     for username, password, pin, roles in demo_logins(chosen):
         click.echo(f"  {username:8} {password:14} {pin:8} {roles}")
-    _serve(app, host, port, https, extra_names)
+    serving.serve(app, host, port, https, extra_names)
 
 
 @cli.command(help="Serve the station with a production WSGI server (waitress; cheroot for "
@@ -139,93 +138,7 @@ def demo(db_path: Path | None, host: str, port: int, https: bool, extra_names: t
 def serve(db_path: Path | None, host: str, port: int, https: bool,
           extra_names: tuple[str, ...]) -> None:
     _need_https_for(https, extra_names)
-    _serve(_app(db_path), host, port, https, extra_names)
-
-
-def _warm_up() -> None:
-    """Load what the first signature would otherwise wait for (WeasyPrint and its fonts, about
-    a second; the stamp font, about a second), while the station starts serving."""
-    from .records import pdf, stamp_style
-
-    pdf.font_configuration()
-    stamp_style.stamp_font()
-
-
-def _serve(app: Flask, host: str, port: int, https: bool = False,
-           extra_names: tuple[str, ...] = ()) -> None:
-    if https:
-        _serve_https(app, host, port, extra_names)
-        return
-    from waitress import serve as waitress_serve
-
-    threading.Thread(target=_warm_up, name="sparkward-warm-up", daemon=True).start()
-    shown = "127.0.0.1" if host in ("0.0.0.0", "::") else host
-    click.echo(f"Sparkward station serving {app.config['DB_PATH']}")
-    click.echo(f"Open http://{shown}:{port}/ (press Ctrl+C to stop)", err=False)
-    sys.stdout.flush()
-    waitress_serve(app, host=host, port=port, threads=8, ident="Sparkward")
-
-
-def _url(name: str, port: int) -> str:
-    return f"https://[{name}]:{port}/" if ":" in name else f"https://{name}:{port}/"
-
-
-def _serve_https(app: Flask, host: str, port: int, extra_names: tuple[str, ...]) -> None:
-    """cheroot with TLS 1.2 or newer and the station's own server certificate (waitress has
-    no TLS); the certificate is issued or renewed here, before the first request."""
-    import ssl
-
-    from cheroot import wsgi
-    from cheroot.ssl.builtin import BuiltinSSLAdapter
-    from cryptography import x509
-
-    from .records.server_identity import ServerNameProblem, certificate_fingerprint
-    from .station.authority import lan_names, station_tls
-
-    try:
-        tls = station_tls(app.config["DB_PATH"], app.config["STATION_NAME"],
-                          lan_names(host, extra_names), system_clock())
-    except ServerNameProblem as problem:
-        raise click.ClickException(str(problem)) from None
-    app.config["SESSION_COOKIE_SECURE"] = True  # the log-in cookie never goes out in clear
-    adapter = BuiltinSSLAdapter(str(tls.cert_file), str(tls.key_file),
-                                private_key_password=tls.key_password)
-    adapter.context.minimum_version = ssl.TLSVersion.TLSv1_2
-    server = wsgi.Server((host, port), app, numthreads=8, server_name="Sparkward")
-    server.ssl_adapter = adapter
-    try:
-        server.prepare()  # binds the port: a port in use is said here, not as a traceback
-    except OSError as err:
-        raise click.ClickException(f"cannot listen on {host}:{port}: {err}") from None
-    threading.Thread(target=_warm_up, name="sparkward-warm-up", daemon=True).start()
-
-    alternative = tls.certificate.extensions.get_extension_for_class(
-        x509.SubjectAlternativeName).value
-    addresses = alternative.get_values_for_type(x509.IPAddress)
-    names = alternative.get_values_for_type(x509.DNSName) + [str(a) for a in addresses]
-    # On the LAN, the machine's own addresses first: a tablet reaches those without DNS.
-    shown = ([str(a) for a in addresses
-              if not a.is_loopback and (host == "::" or a.version == 4)]
-             + [n for n in names if n != "localhost" and n not in map(str, addresses)]
-             if host in ("0.0.0.0", "::") else [host]) or ["127.0.0.1"]
-    click.echo(f"Sparkward station serving {app.config['DB_PATH']} over HTTPS")
-    state = "issued now" if tls.issued else "kept"
-    click.echo(f"Server certificate ({state}, valid until "
-               f"{tls.certificate.not_valid_after_utc:%Y-%m-%d}) for: {', '.join(names)}")
-    click.echo("Open " + " or ".join(_url(n, port) for n in shown) + " (press Ctrl+C to stop)")
-    if host in ("127.0.0.1", "localhost", "::1"):
-        click.echo("Listening on this machine only: add --host 0.0.0.0 for tablets on the LAN.")
-    click.echo("Tablets must trust the station's certificate authority first: on each, open "
-               f"{_url(shown[0], port)}station-ca, or copy the file {tls.authority_file}")
-    click.echo(f"  its SHA-256 fingerprint (compare it on the tablet): "
-               f"{certificate_fingerprint(tls.authority_cert)}")
-    sys.stdout.flush()
-    try:
-        server.serve()
-    except KeyboardInterrupt:
-        pass
-    finally:
-        server.stop()
+    serving.serve(_app(db_path), host, port, https, extra_names)
 
 
 @cli.command(help="Check a work record PDF: its signatures, its event chain against the "
