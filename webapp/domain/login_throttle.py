@@ -26,8 +26,8 @@ An attempt refused during a delay checks no password and is not counted, so a wa
 be made longer by knocking on it; a correct password during a delay is refused as well.
 
 Bound (ASVS V2.2.1): from all unknown addresses together, rule 3 lets through 10 failures,
-then waits 1, 2, ... 32 s, then one a minute: at most 75 failures in an hour on one name;
-each known address adds at most 18 (5, then waits 1 s ... 512 s, then one each 15 min).
+then waits 1, 2, ... 32 s, then one a minute: at most 74 failures in an hour on one name;
+each known address adds at most 17 (5, then waits 1 s ... 512 s, then one each 15 min).
 tests/domain/test_login_throttle.py counts both by simulation.
 """
 
