@@ -16,8 +16,16 @@ from .resources import shipped_dir
 
 DEFAULTS: dict[str, Any] = {
     "DB_FILENAME": "sparkward.db",
+    # Log-in throttle (domain/login_throttle.py): failures for a name from one address, and
+    # from one address for any name, before each further try waits 1 s, 2 s, 4 s, ... up to
+    # the longest delay.
     "LOGIN_MAX_FAILURES": 5,
-    "LOGIN_LOCK_MINUTES": 10,
+    "LOGIN_ADDRESS_MAX_FAILURES": 20,
+    "LOGIN_MAX_DELAY_MINUTES": 15,
+    # A session ends after this long unused, and this long after log-in whatever happens
+    # (domain/session_limits.py says why these numbers).
+    "SESSION_IDLE_MINUTES": 12 * 60,
+    "SESSION_ABSOLUTE_HOURS": 12,
     "SESSION_COOKIE_HTTPONLY": True,
     "SESSION_COOKIE_SAMESITE": "Lax",
     "SESSION_REFRESH_EACH_REQUEST": False,  # re-signing the cookie on every tap costs time

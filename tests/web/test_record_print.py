@@ -163,6 +163,7 @@ def test_done_steps_ticked_with_who_and_dates_where_not_the_records_date(
     job.walk_to(steps[len(steps) // 2]["id"])
     opened = clock().date()
     clock.advance(24 * 3600)            # the work goes on the next day (UTC)
+    job.client = login("mech1")         # on a new log-in: yesterday's session has ended
     job.walk_to("performer")
     next_day = clock().date()
     text = _raw_text(_render(app, db, job.id, clock()), tmp_path)

@@ -104,8 +104,9 @@ def test_an_inspector_needs_the_inspect_authorisation(login, db, clock):
     assert 'data-testid="pin"' not in _screen(mech1, job)
 
 
-def test_a_performer_whose_authorisation_expired_is_refused_with_its_date(check):
+def test_a_performer_whose_authorisation_expired_is_refused_with_its_date(check, login):
     check.clock.advance(400 * DAY)           # 2028-01-05: past the demo's 2027-12-31
+    check.client = login("mech1")            # a new log-in: sessions end after 12 h
     refusal = check.refused(sign("sign-selector", "mech1"), "authorisation_expired")
     assert "(expired 2027-12-31)" in refusal["reason"]
     assert refusal["expired_on"] == "2027-12-31"

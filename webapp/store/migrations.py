@@ -187,3 +187,25 @@ def instrument_register(db: Database) -> None:
     }, pk="id", not_null={"instrument_id", "kind", "range_low", "range_high", "range_unit",
                           "calibration_due", "status", "change", "changed_at"})
     db.table("instrument_entries").create_index(["instrument_id", "id"])
+
+
+@MIGRATIONS(name="0009_sessions_and_login_throttle")
+def sessions_and_login_throttle(db: Database) -> None:
+    # Log-in sessions kept on the station: the browser's cookie carries a random token, the
+    # station only its SHA-256 (a copy of the database cannot be used to log in). A session
+    # ends by log-out, by its limits or by an admin; rows stay, with why they ended.
+    db.table("sessions").create({
+        "token_hash": str, "person_id": int, "created_at": str, "last_seen_at": str,
+        "ended_at": str, "ended_why": str, "client_address": str, "user_agent": str,
+    }, pk="token_hash", foreign_keys=[("person_id", "people")],
+        not_null={"person_id", "created_at", "last_seen_at"})
+    db.table("sessions").create_index(["person_id", "ended_at"])
+    db.table("sessions").create_index(["person_id", "client_address"])
+    # Failed log-ins are counted per name, per address and per both; a success or an admin
+    # clears them by marking the rows (kept as the log of failed attempts).
+    failures = db.table("login_failures")
+    failures.add_column("address", str)
+    failures.add_column("cleared_at", str)
+    failures.add_column("cleared_why", str)
+    failures.create_index(["address", "at"])
+    failures.create_index(["username", "address", "at"])

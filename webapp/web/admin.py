@@ -1,23 +1,22 @@
-"""The admin's room: the people enrolled on the station, their roles and what they sign; the
-register of calibrated instruments."""
+"""The admin's room: the people enrolled on the station, their roles and what they sign, their
+sessions and log-in waits; the register of calibrated instruments."""
 
 from __future__ import annotations
 
 from typing import Any
 
-from flask import Blueprint, abort, redirect, render_template, request, url_for
+from flask import Blueprint, abort, current_app, redirect, render_template, request, url_for
 
-from .. import store
 from ..domain.authorisations import PROCEDURE_KINDS, SIGNATURE_KINDS
 from ..domain.instruments import INSTRUMENT_KINDS
 from ..domain.readings import InputProblem
 from ..station import instruments as keeping
-from ..station.accounts import enrol
+from ..station.accounts import end_sessions, enrol, lift_wait, login_waits, revoke_access
 from ..station.authorising import authorise, withdraw
-from ..store import authorisations, people
+from ..store import authorisations, people, sessions
 from ..store import instruments as instrument_register
 from ..store.job_states import NotFound
-from .common import authority, db, now, person, requires
+from .common import authority, db, now, person, requires, session_limits, throttle_policy
 
 bp = Blueprint("admin", __name__)
 
@@ -37,9 +36,14 @@ def people_page() -> Any:
                           now=now(), pin=form.get("pin") or None, authority=authority())
         except ValueError as err:
             error, status = str(err).capitalize() + ".", 422
+    limits, policy = session_limits(current_app), throttle_policy(current_app)
+    open_sessions = sessions.open_sessions_by_person(
+        db(), created_since=now() - limits.absolute, seen_since=now() - limits.idle)
     return render_template("admin/people.html", people=people.all_people(db()),
                            roles=people.ROLES, error=error, added=added,
-                           form=request.form if error else {}), status
+                           form=request.form if error else {}, open_sessions=open_sessions,
+                           waits=login_waits(db(), now(), policy),
+                           policy=policy), status
 
 
 @bp.post("/people/<int:person_id>/revoke")
@@ -47,9 +51,34 @@ def people_page() -> Any:
 def revoke(person_id: int) -> Any:
     if people.person_by_id(db(), person_id) is None:
         abort(404)
-    with store.writing(db()):
-        people.revoke(db(), person_id, now())
+    revoke_access(db(), person_id, now())
     return redirect(url_for("admin.people_page"), code=303)
+
+
+@bp.post("/people/<int:person_id>/sessions/end")
+@requires("admin")
+def end_person_sessions(person_id: int) -> Any:
+    """Log a person out everywhere (a lost tablet, a shared password)."""
+    if people.person_by_id(db(), person_id) is None:
+        abort(404)
+    end_sessions(db(), person_id, now(), f"ended by {person().username}")
+    return redirect(url_for("admin.people_page", _anchor="sessions"), code=303)
+
+
+@bp.post("/login-waits/lift")
+@requires("admin")
+def lift_login_wait() -> Any:
+    """Clear the failed log-ins behind one wait (they stay in the log, marked lifted)."""
+    scope = request.form.get("scope", "")
+    if scope not in ("pair", "name", "address"):
+        abort(400, "scope: one of pair, name, address")
+    username, address = request.form.get("username", ""), request.form.get("address", "")
+    if scope in ("pair", "name") and not username:
+        abort(400, "username: needed to lift a wait on a name")
+    if scope in ("pair", "address") and not address:
+        abort(400, "address: needed to lift a wait on an address")
+    lift_wait(db(), scope=scope, username=username, address=address, now=now(), by=person())
+    return redirect(url_for("admin.people_page", _anchor="login-waits"), code=303)
 
 
 @bp.route("/people/<int:person_id>/authorisations", methods=["GET", "POST"])

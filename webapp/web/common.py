@@ -5,7 +5,7 @@ from __future__ import annotations
 import threading
 import uuid
 from collections.abc import Callable
-from datetime import UTC, datetime
+from datetime import UTC, datetime, timedelta
 from functools import wraps
 from typing import Any, TypeVar
 
@@ -13,7 +13,9 @@ from flask import Flask, abort, current_app, g, redirect, render_template, reque
 from flask_wtf.csrf import CSRFProtect
 
 from .. import store
-from ..store import people
+from ..domain.login_throttle import ThrottlePolicy
+from ..domain.session_limits import SessionLimits
+from ..station import accounts
 from ..store.people import Person
 
 csrf = CSRFProtect()
@@ -24,6 +26,19 @@ SUPERVISOR_EVENTS = ("signed", "returned", "amendment", "tag_transfer_authorised
                      "tag_removal_authorised")
 
 F = TypeVar("F", bound=Callable[..., Any])
+
+SESSION_TOKEN = "session_token"  # the key in Flask's signed cookie that carries the token
+
+
+def session_limits(app: Flask) -> SessionLimits:
+    return SessionLimits(idle=timedelta(minutes=app.config["SESSION_IDLE_MINUTES"]),
+                         absolute=timedelta(hours=app.config["SESSION_ABSOLUTE_HOURS"]))
+
+
+def throttle_policy(app: Flask) -> ThrottlePolicy:
+    return ThrottlePolicy(free_per_pair=app.config["LOGIN_MAX_FAILURES"],
+                          free_per_address=app.config["LOGIN_ADDRESS_MAX_FAILURES"],
+                          longest_delay=timedelta(minutes=app.config["LOGIN_MAX_DELAY_MINUTES"]))
 
 
 def init_database(app: Flask) -> None:
@@ -41,16 +56,22 @@ def init_database(app: Flask) -> None:
         if db is not None and db.conn.in_transaction:
             db.conn.rollback()  # never carry a half-done transaction into the next request
 
+    # The cookie lives no longer than the station's absolute limit for a session.
+    app.config["PERMANENT_SESSION_LIFETIME"] = session_limits(app).absolute
+
     @app.before_request
     def load_person() -> None:
+        """Who is logged in: the session the cookie's token names, if it is still open."""
         g.person = None
-        person_id = session.get("person_id")
-        if person_id is not None:
-            person = people.person_by_id(db(), person_id)
-            if person is not None and person.active:
-                g.person = person
-            else:
-                session.clear()
+        token = session.get(SESSION_TOKEN)
+        if token is None:
+            return
+        g.person = accounts.person_for_session(db(), str(token), now=now(),
+                                               limits=session_limits(current_app))
+        if g.person is None:
+            # The token is dead: drop it but keep the form token, so a tablet's queued
+            # write is answered "log in again" rather than "security token out of date".
+            session.pop(SESSION_TOKEN, None)
 
     @app.template_filter("when")
     def when(iso: str | None) -> str:
