@@ -92,15 +92,24 @@ def body_limit() -> int:
     return int(current_app.config["MAX_BODY_BYTES"])
 
 
+_SECRET_NAMES = ("pin", "password", "csrf_token")
+_SECRET_IN_JSON = re.compile(r'("(?:pin|password|csrf_token)"\s*:\s*)"(?:[^"\\]|\\.)*"')
+
+
 def excerpt() -> str:
-    """The first characters of the request body, for a log line (never the whole body)."""
+    """The first characters of the request body, for a log line: never the whole body, never
+    a PIN or a password (OWASP ASVS 4.0.3 V7.1.1: no credentials in logs)."""
     if (request.content_length or 0) > body_limit():
         return f"({request.content_length} bytes, not read)"
+    if request.mimetype in ("application/x-www-form-urlencoded", "multipart/form-data"):
+        text = "&".join(f"{k}={'***' if k in _SECRET_NAMES else v}"
+                        for k, v in request.form.items(multi=True))
+        return text[:EXCERPT_CHARS]
     try:
         raw = request.get_data(cache=True)[:EXCERPT_CHARS * 4]
     except Exception:  # noqa: BLE001 - a body too large to read is logged as such
         return "(not read)"
-    return raw.decode("utf-8", "replace")[:EXCERPT_CHARS]
+    return _SECRET_IN_JSON.sub(r'\1"***"', raw.decode("utf-8", "replace"))[:EXCERPT_CHARS]
 
 
 def log_refusal(status: int, rule: str, field: str | None = None) -> None:
