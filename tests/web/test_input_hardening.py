@@ -16,8 +16,9 @@ each with its regression test below, and where it is now stopped:
    reached int() (ValueError): only ASCII digits are read.
 7. A line break in the log-in page's `next` query parameter became a Location header
    (ValueError: header newline): control characters in a query are refused (400 naming it).
-8. Taps that are not numbers (a form's JSON `taps` field, or JSON lists inside) reached the
-   rate calculation (TypeError): the shape allows numbers only (422 naming `data.taps...`).
+8. A tag consent naming a person id beyond 2**63 (`to`, JSON or form digits) reached SQLite
+   when the person was looked up (OverflowError): the shape bounds `to` (422 naming `data.to`);
+   the form reads ASCII digits only.
 
 Besides: NaN and Infinity (Python's json accepts them; RFC 8259 section 6 does not) were
 stored and answered as invalid JSON; they are refused with 400 now.
@@ -124,20 +125,40 @@ def test_7_line_break_in_a_query_parameter_is_400_naming_it(client):
         {"field": "query.filter", "problem": answer.get_json()["problems"][0]["problem"]}]
 
 
-def test_8_taps_that_are_not_numbers_are_422(mechanic, db):
-    job = open_removal(mechanic)
-    url = f"/api/jobs/{job['id']}/events"
-    before = counts(db, job["id"])
-    for taps in ([[1.0], [2.0]], [{"t": 1}], ["0.5", "1.0"]):
-        answer = mechanic.post_json(url, event("identify", "sparks_counted", method="taps",
-                                               taps=taps))
-        assert answer.status_code == 422, taps
+def test_taps_that_are_not_numbers_are_422(login, db, clock):
+    from .jobs import Job
+
+    mech1 = login("mech1")
+    check = Job(mech1, db, clock, "ignition-functional-check", channel=None)
+    check.walk_to("count-both")
+    check.start_count("count-both")
+    before = counts(db, check.id)
+    for taps in ([[1.0], [2.0], [3.0]], [{"t": 1}, {"t": 2}], ["0.5", "1.0", "1.5"]):
+        answer = check.post(event("count-both", "sparks_counted", method="taps", taps=taps))
+        assert answer.status_code == 422, (taps, answer.get_json())
         assert answer.get_json()["problems"][0]["field"].startswith("data.taps"), taps
-    answer = mechanic.post_form(f"/jobs/{job['id']}/steps/identify", {
+    answer = mech1.post_form(f"/jobs/{check.id}/steps/count-both", {
         "event_id": str(uuid.uuid4()), "kind": "sparks_counted", "method": "taps",
-        "taps": "[[1], [2], [3]]"})
+        "taps": "[[1], [2], [3]]", "supply_voltage": "28"})
     assert answer.status_code == 422
-    assert counts(db, job["id"]) == before
+    assert counts(db, check.id) == before
+
+
+def test_8_consent_naming_a_person_id_beyond_64_bits_is_422(mechanic, db):
+    from tests.conftest import DEMO_PINS
+
+    job = open_removal(mechanic)
+    before = counts(db, job["id"])
+    answer = mechanic.post_json(f"/api/jobs/{job['id']}/events", event(
+        None, "tag_handed_over", tag="T-1", to=BEYOND_64_BITS, pin=DEMO_PINS["mech1"]))
+    assert answer.status_code == 422
+    assert answer.get_json()["problems"][0]["field"] == "data.to"
+    for to in (str(BEYOND_64_BITS), "²"):
+        answer = mechanic.post_form(f"/jobs/{job['id']}/events", {
+            "event_id": str(uuid.uuid4()), "kind": "tag_handed_over", "tag": "T-1",
+            "to": to, "pin": DEMO_PINS["mech1"]})
+        assert answer.status_code in (409, 422), to
+    assert counts(db, job["id"])[0] == before[0]
 
 
 # --- NaN, Infinity, junk keys, sizes ---------------------------------------------------------

@@ -150,7 +150,7 @@ def _consent_data(kind: str, form: Any) -> dict[str, Any]:
     data: dict[str, Any] = {"tag": form.get("tag", ""), "pin": form.get("pin", "")}
     if kind != "tag_removal_authorised":
         to = form.get("to", "")
-        data["to"] = int(to) if to.isdigit() else to
+        data["to"] = int(to) if to.isascii() and to.isdigit() else to
     if kind != "tag_handed_over":
         data["reason"] = form.get("reason", "")
     return data
