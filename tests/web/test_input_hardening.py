@@ -168,8 +168,8 @@ def test_nan_and_infinity_in_json_are_400_and_nothing_is_stored(mechanic, db):
     url = f"/api/jobs/{job['id']}/events"
     before = counts(db, job["id"])
     for constant in ("NaN", "Infinity", "-Infinity"):
-        text = ('{"id": "%s", "kind": "step_done", "step": "identify", "data": {"x": %s}}'
-                % (uuid.uuid4(), constant))
+        text = (f'{{"id": "{uuid.uuid4()}", "kind": "step_done", "step": "identify", '
+                f'"data": {{"x": {constant}}}}}')
         answer = _raw_json(mechanic, url, text)
         assert answer.status_code == 400, constant
         body = json.loads(answer.get_data(as_text=True), parse_constant=_not_json)

@@ -22,7 +22,7 @@ SHORT = 200      # names, numbers as typed, units, tags, references, PINs
 LONG = 2000      # free text: findings, reasons, how an item was put right
 MAX_TAPS = 2000  # a spark count by taps: a minute at a few hundred snaps a minute
 MAX_ITEMS = 200  # a check step's confirmed items
-MAX_INT = 2**53  # integers a tablet's JavaScript can hold exactly (ECMA-262 Number.MAX_SAFE_INTEGER)
+MAX_INT = 2**53  # what a tablet's JavaScript holds exactly (ECMA-262: Number.MAX_SAFE_INTEGER)
 
 Short = Annotated[str, Field(max_length=SHORT)]
 Long = Annotated[str, Field(max_length=LONG)]

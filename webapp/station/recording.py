@@ -127,9 +127,9 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
         if existing is not None:
             if _same_as_stored(db, existing, job_id, kind, step_id, sent, device_time):
                 return Outcome("duplicate", event=existing)
-            refusal = RuleRefusal("event_id_reused", "This event id was already used for a "
-                                  "different entry; the device must make a new one.")
-            return Outcome("refused", event=existing, refusal=refusal)
+            reused = RuleRefusal("event_id_reused", "This event id was already used for a "
+                                 "different entry; the device must make a new one.")
+            return Outcome("refused", event=existing, refusal=reused)
         job = load_job(db, job_id)
         try:
             at = _circumstances(db, job, kind, step_id, data, device_time, person, now)

@@ -223,7 +223,7 @@ def openapi_document(job_in: type[BaseModel], event_in: type[BaseModel]) -> dict
     data_schemas, shared = _event_data_schemas()
     job_id = [{"name": "job_id", "in": "path", "required": True,
                "schema": {"type": "integer", "minimum": 0, "maximum": 2**63 - 1}}]
-    write = {"security": [{"session": [], "csrf": []}]}
+    write: dict[str, Any] = {"security": [{"session": [], "csrf": []}]}
     return {
         "openapi": "3.1.0",
         "info": {"title": "Sparkward station API", "version": "1",
