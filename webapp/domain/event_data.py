@@ -56,7 +56,8 @@ class TagTakenOver(_Data):
 
 class TagRemoved(_Data):
     tag: Short | None = None
-    absent_owner: Short | None = None  # refused by its own rule (absent_owner_typed)
+    # Refused by its own rule (absent_owner_typed), whatever was typed: a name or a note.
+    absent_owner: Short | Annotated[dict[str, Short], Field(max_length=8)] | None = None
 
 
 class TagHandedOver(_Data):
