@@ -213,7 +213,6 @@ def _is_union_tag(part: Any) -> bool:
 
 
 # How the station keeps what a device sent (for recognising the same entry sent again).
-_EMPTY = (None, "")
 
 
 def _comparable(value: Any) -> Any:
