@@ -31,6 +31,8 @@ DEFAULTS: dict[str, Any] = {
     "SESSION_REFRESH_EACH_REQUEST": False,  # re-signing the cookie on every tap costs time
     "WTF_CSRF_TIME_LIMIT": None,  # the token lives as long as the session
     "STATION_NAME": "Sparkward station",
+    "MAX_BODY_BYTES": 256 * 1024,  # JSON and form bodies (input_guard answers 413 beyond)
+    "MAX_UPLOAD_BYTES": 20 * 1024 * 1024,  # a record PDF sent to "Check a record"
 }
 
 
@@ -73,10 +75,12 @@ def _station_secret(db_path: Path) -> str:
 
 
 def register_extensions(app: Flask) -> None:
+    from .web import input_guard
     from .web.common import csrf, init_database
 
+    input_guard.register(app)  # first: sizes and text checked before anything reads the body
+    init_database(app)  # who is logged in, before the CSRF check: a stranger hears 401
     csrf.init_app(app)
-    init_database(app)
 
 
 def register_blueprints(app: Flask) -> None:

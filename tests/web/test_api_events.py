@@ -236,8 +236,11 @@ def test_openapi_document_lists_every_api_route_and_event_kinds(client, app):
         if rule.rule.startswith("/api/") and rule.rule != "/api/openapi.json":
             path = rule.rule.replace("<int:job_id>", "{job_id}")
             assert path in doc["paths"], path
-    assert doc["components"]["schemas"]["EventIn"]["properties"]["kind"]["enum"] == list(
-        CLIENT_EVENT_KINDS)
+    variants = doc["components"]["schemas"]["EventIn"]["oneOf"]  # one per kind, with its data
+    assert [v["properties"]["kind"]["const"] for v in variants] == list(CLIENT_EVENT_KINDS)
+    for variant in variants:
+        data = variant["properties"]["data"]["$ref"].rsplit("/", 1)[-1]
+        assert doc["components"]["schemas"][data]["additionalProperties"] is False, data
 
 
 def test_healthz_answers_json(client):

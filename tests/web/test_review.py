@@ -200,5 +200,5 @@ def test_a_return_can_ask_for_the_work_again_from_a_step(signed_check, login, db
 def test_an_amendment_is_only_for_a_certified_job(signed_check, login):
     supervisor = login("super")
     answer = supervisor.post_json(f"/api/jobs/{signed_check.id}/events", _event(
-        None, "amendment", what="x", why="y", pin=DEMO_PINS["super"]))
+        None, "amendment", field="x", new="z", why="y", pin=DEMO_PINS["super"]))
     assert answer.status_code == 409 and answer.get_json()["rule"] == "not_certified"

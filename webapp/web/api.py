@@ -10,7 +10,7 @@ from datetime import datetime
 from typing import Any, Literal
 from uuid import UUID
 
-from flask import Blueprint, jsonify, request, url_for
+from flask import Blueprint, current_app, jsonify, request, url_for
 from pydantic import AwareDatetime, BaseModel, ConfigDict, Field, ValidationError
 
 from ..domain.checks import job_progress
@@ -22,6 +22,7 @@ from ..station import recording
 from ..store import engines
 from ..store import fleet as fleet_store
 from .common import SUPERVISOR_EVENTS, authority, db, now, person, public, requires
+from .input_guard import SQLITE_MAX_INT, InputRefused
 from .openapi import openapi_document
 
 bp = Blueprint("api", __name__)
@@ -32,7 +33,7 @@ EventKind = Literal[CLIENT_EVENT_KINDS]  # type: ignore[valid-type]
 class JobIn(BaseModel):
     model_config = ConfigDict(extra="forbid")
     procedure: str = Field(min_length=1)
-    engine: int
+    engine: int = Field(ge=1, le=SQLITE_MAX_INT)
     channel: Literal["A", "B"] | None = None
 
 
@@ -53,7 +54,16 @@ def _malformed(err: ValidationError) -> Any:
 
 
 def _body(model: type[BaseModel]) -> BaseModel:
-    payload = request.get_json(silent=True)
+    """The request's JSON body as `model`; InputRefused (400) when it is not JSON at all."""
+    payload = None
+    if request.is_json:
+        try:
+            payload = current_app.json.loads(request.get_data(cache=True))
+        except InputRefused:
+            raise
+        except ValueError as err:  # not JSON, not UTF-8, or NaN / Infinity
+            raise InputRefused("(body)", f"The body is not valid JSON: {str(err)[:120]}."
+                               ) from None
     if not isinstance(payload, dict):
         raise ValidationError.from_exception_data("body", [
             {"type": "model_type", "loc": (), "input": payload,
@@ -201,6 +211,9 @@ def post_event(job_id: int) -> Any:
                                                      "problem": outcome.problem.message}]}), 422
     if outcome.status == "refused":
         assert outcome.refusal is not None
-        return jsonify(outcome.refusal.as_dict()), 409
+        refused = outcome.refusal.as_dict()
+        if outcome.event is not None:  # an id used before: what it stands for
+            refused["event"] = event_json(outcome.event)
+        return jsonify(refused), 409
     assert outcome.event is not None
     return jsonify(event_json(outcome.event)), 201 if outcome.status == "stored" else 200

@@ -19,6 +19,7 @@ from ..store import fleet as fleet_store
 from ..store import jobs as job_store
 from .common import SUPERVISOR_EVENTS, authority, db, now, page_or_fragment, person, requires
 from .gate_views import gate_context
+from .input_guard import SQLITE_MAX_INT
 from .reading_views import instrument_choices
 from .sign_views import sign_view
 
@@ -62,6 +63,8 @@ def open_job() -> Any:
         engine_id = int(request.form["engine"])
     except (KeyError, ValueError):
         abort(400, "Choose an engine.")
+    if not 0 < engine_id <= SQLITE_MAX_INT:
+        abort(404, "No such engine in the fleet.")
     channel = request.form.get("channel") or None
     job_id = recording.open_job(db(), procedure_id=request.form.get("procedure", ""),
                                 engine_id=engine_id, channel=channel, person=person(),
@@ -105,7 +108,9 @@ def job(job_id: int) -> Any:
 # The form fields each event kind may carry into its data (everything else is ignored).
 def _event_data(kind: str, form: Any) -> dict[str, Any]:
     if kind == "step_done" and "items_offered" in form:
-        return {"items": [int(i) for i in form.getlist("items") if i.isdigit()]}
+        # ASCII digits only: "²".isdigit() is true, and int("²") fails.
+        return {"items": [int(i) for i in form.getlist("items")
+                          if i.isascii() and i.isdigit() and len(i) <= 6]}
     if kind == "breaker_tagged":
         return {"breaker": form.get("breaker", ""), "tag": form.get("tag", "")}
     if kind == "tag_taken_over":
@@ -145,7 +150,7 @@ def _consent_data(kind: str, form: Any) -> dict[str, Any]:
     data: dict[str, Any] = {"tag": form.get("tag", ""), "pin": form.get("pin", "")}
     if kind != "tag_removal_authorised":
         to = form.get("to", "")
-        data["to"] = int(to) if to.isdigit() else to
+        data["to"] = int(to) if to.isascii() and to.isdigit() else to
     if kind != "tag_handed_over":
         data["reason"] = form.get("reason", "")
     return data

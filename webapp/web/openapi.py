@@ -6,9 +6,10 @@ from typing import Any
 
 from pydantic import BaseModel
 
+from ..domain.event_data import EVENT_DATA
 from ..domain.execution import CLIENT_EVENT_KINDS, EVENT_KINDS
 
-EVENT_DATA = (
+EVENT_DATA_WORDS = (
     "What each kind carries in `data`. acknowledged (WARNING/CAUTION step): {}. "
     "step_done: {} or, for a check with items, {\"items\": [index, ...]} with every index. "
     "breaker_tagged (lockout apply step): {\"breaker\": id, \"tag\": number}. "
@@ -77,11 +78,17 @@ _REFUSAL = {
 }
 _MALFORMED = {
     "type": "object", "required": ["rule", "reason", "problems"],
-    "properties": {"rule": {"type": "string", "enum": ["malformed"]},
+    "properties": {"rule": {"type": "string", "enum": ["malformed", "bad_input"]},
                    "reason": {"type": "string"},
                    "problems": {"type": "array", "items": {
                        "type": "object", "properties": {"field": {"type": "string"},
                                                         "problem": {"type": "string"}}}}},
+}
+_REUSED = {
+    "type": "object", "required": ["rule", "reason"],
+    "properties": {"rule": {"type": "string"}, "reason": {"type": "string"},
+                   "event": {"$ref": "#/components/schemas/Event",
+                             "description": "event_id_reused: the event stored under the id"}},
 }
 _EVENT = {
     "type": "object",
@@ -118,7 +125,7 @@ _JOB = {
             "action": {"type": "string", "enum": ["apply", "release"]},
             "breakers": {"type": "array", "items": {"type": "string"}},
             "value": {"type": "string", "enum": ["number", "text", "pass_fail"]},
-            "unit": {"type": "string"}, "limits": {"type": ["object", "null"]},
+            "unit": {"type": ["string", "null"]}, "limits": {"type": ["object", "null"]},
             "conditions": {"type": "array", "items": {"type": "string"}},
             "wear": {"type": "boolean"}, "adapter": {"type": "boolean"}}}},
         "done": {"type": "array", "items": {"type": "string"}},
@@ -173,35 +180,71 @@ def _answer(description: str, schema: dict[str, Any] | str) -> dict[str, Any]:
     return {"description": description, "content": _json(schema)}
 
 
-_COMMON_ERRORS = {"401": {"description": "not logged in"},
-                  "403": {"description": "role not allowed, or CSRF token missing"}}
+def _errors(*, write: bool) -> dict[str, Any]:
+    """What any operation may answer besides its own: no session (401, also ahead of the CSRF
+    check), a role that may not (403); a write also 400 (no or stale CSRF token, a body that is
+    not JSON: NaN, Infinity, lone surrogates, control characters) and 413 (body over 256 KB)."""
+    found = {"401": _answer("not logged in", "Refusal"),
+             "403": _answer("role not allowed", "Refusal"),
+             "400": _answer("a query parameter or the body cannot be used (control "
+                            "characters, not JSON); for a write also a missing CSRF token",
+                            "Refusal")}
+    if write:
+        found["413"] = _answer("body larger than the station takes; nothing stored", "Refusal")
+    return found
+
+
+def _event_data_schemas() -> tuple[dict[str, Any], dict[str, Any]]:
+    """Each kind's data schema (from domain/event_data.py's models) and the models they use."""
+    schemas: dict[str, Any] = {}
+    shared: dict[str, Any] = {}
+    for kind, model in EVENT_DATA.items():
+        schema = model.model_json_schema(ref_template="#/components/schemas/{model}")
+        shared.update(schema.pop("$defs", {}))
+        schemas[f"EventData_{kind}"] = schema
+    return schemas, shared
+
+
+def _event_in(event_in: type[BaseModel]) -> dict[str, Any]:
+    """EventIn as one variant per kind: the kind names the shape of its data."""
+    base = event_in.model_json_schema(ref_template="#/components/schemas/{model}")
+    variants = []
+    for kind in CLIENT_EVENT_KINDS:
+        properties = {**base["properties"], "kind": {"type": "string", "const": kind},
+                      "data": {"$ref": f"#/components/schemas/EventData_{kind}"}}
+        variants.append({"type": "object", "title": f"EventIn_{kind}",
+                         "required": base.get("required", []), "additionalProperties": False,
+                         "properties": properties})
+    return {"description": EVENT_DATA_WORDS, "oneOf": variants,
+            "discriminator": {"propertyName": "kind"}}
 
 
 def openapi_document(job_in: type[BaseModel], event_in: type[BaseModel]) -> dict[str, Any]:
-    event_schema = event_in.model_json_schema(ref_template="#/components/schemas/{model}")
-    event_schema["properties"]["kind"] = {"type": "string", "enum": list(CLIENT_EVENT_KINDS),
-                                          "description": EVENT_DATA}
-    job_id = [{"name": "job_id", "in": "path", "required": True, "schema": {"type": "integer"}}]
-    write = {"security": [{"session": [], "csrf": []}]}
+    data_schemas, shared = _event_data_schemas()
+    job_id = [{"name": "job_id", "in": "path", "required": True,
+               "schema": {"type": "integer", "minimum": 0, "maximum": 2**63 - 1}}]
+    write: dict[str, Any] = {"security": [{"session": [], "csrf": []}]}
     return {
         "openapi": "3.1.0",
         "info": {"title": "Sparkward station API", "version": "1",
                  "description": "Session cookie from /login; every write sends the page's "
-                                "csrf-token as the X-CSRFToken header."},
+                                "csrf-token as the X-CSRFToken header. Bodies up to 256 KB."},
         "components": {
             "securitySchemes": {
                 "session": {"type": "apiKey", "in": "cookie", "name": "session"},
                 "csrf": {"type": "apiKey", "in": "header", "name": "X-CSRFToken"}},
-            "schemas": {"JobIn": job_in.model_json_schema(), "EventIn": event_schema,
+            "schemas": {"JobIn": job_in.model_json_schema(), "EventIn": _event_in(event_in),
                         "Event": _EVENT, "Job": _JOB, "Fleet": _FLEET, "Refusal": _REFUSAL,
-                        "Malformed": _MALFORMED}},
+                        "Malformed": _MALFORMED, "Reused": _REUSED, **data_schemas,
+                        **shared}},
         "paths": {
             "/healthz": {"get": {"summary": "Station health", "responses": {
-                "200": _answer("ok", {"type": "object"})}}},
+                "200": _answer("ok", {"type": "object"}),
+                "400": _answer("a query parameter cannot be used", "Refusal")}}},
             "/api/fleet": {"get": {"summary": "Aircraft, engines and installed components",
                                    "security": [{"session": []}],
                                    "responses": {"200": _answer("the fleet", "Fleet"),
-                                                 **_COMMON_ERRORS}}},
+                                                 **_errors(write=False)}}},
             "/api/jobs": {"post": {
                 "summary": "Open a job with the approved revision of a procedure", **write,
                 "requestBody": {"required": True, "content": _json("JobIn")},
@@ -210,20 +253,27 @@ def openapi_document(job_in: type[BaseModel], event_in: type[BaseModel]) -> dict
                               "409": _answer("refused by a rule (effectivity, channel)",
                                              "Refusal"),
                               "422": _answer("malformed; nothing stored", "Malformed"),
-                              **_COMMON_ERRORS}}},
+                              **_errors(write=True)}}},
             "/api/jobs/{job_id}": {"get": {
                 "summary": "A job's state, derived from its events", "parameters": job_id,
                 "security": [{"session": []}],
                 "responses": {"200": _answer("the job", "Job"),
-                              "404": _answer("no such job", "Refusal"), **_COMMON_ERRORS}}},
+                              "404": _answer("no such job", "Refusal"),
+                              **_errors(write=False)}}},
             "/api/jobs/{job_id}/events": {"post": {
                 "summary": "Record an event (idempotent on its id)", "parameters": job_id,
                 **write, "requestBody": {"required": True, "content": _json("EventIn")},
                 "responses": {"201": _answer("stored", "Event"),
-                              "200": _answer("already stored: the first answer again", "Event"),
+                              "200": _answer("already stored: the same entry sent again "
+                                             "(same job, kind, step, device time and data) "
+                                             "gets the first answer again", "Event"),
                               "404": _answer("no such job", "Refusal"),
-                              "409": _answer("refused by a rule", "Refusal"),
-                              "422": _answer("malformed; nothing stored", "Malformed"),
-                              **_COMMON_ERRORS}}},
+                              "409": _answer("refused by a rule; or the id was used for a "
+                                             "different entry (event_id_reused, with the "
+                                             "stored event)", "Reused"),
+                              "422": _answer("malformed, or data not of its kind's shape "
+                                             "(unknown field, wrong type, too long); "
+                                             "nothing stored", "Malformed"),
+                              **_errors(write=True)}}},
         },
     }
