@@ -341,3 +341,21 @@ def test_a_form_sent_twice_is_stored_once_and_a_changed_one_is_409(mechanic, db)
                                  {**form, "device_time": "2026-12-01T09:00:05.000Z"})
     assert changed.status_code == 409
     assert [e["id"] for e in job_store.events(db, job["id"])].count(event_id) == 1
+
+
+def test_a_resend_is_told_by_what_was_sent_not_only_by_what_was_kept(mechanic, db):
+    """The station keeps what it derived; the request's digest tells a resend (same JSON,
+    whatever its key order or spacing) from a reused id (any change at all). For events
+    stored before digests were kept, the stored fields decide."""
+    job = open_removal(mechanic)
+    url = f"/api/jobs/{job['id']}/events"
+    mechanic.post_json(url, event("identify"))
+    sent = event("selectors-off", items=[0, 1, 2])
+    assert _raw_json(mechanic, url, json.dumps(sent)).status_code == 201
+    respaced = json.dumps(dict(reversed(list(sent.items()))), indent=3)
+    assert _raw_json(mechanic, url, respaced).status_code == 200
+    assert mechanic.post_json(url, {**sent, "data": {"items": [0, 2, 1]}}).status_code == 409
+    db.execute("delete from event_requests where event_id = ?", [sent["id"]])  # an old row
+    db.conn.commit()
+    assert mechanic.post_json(url, sent).status_code == 200
+    assert mechanic.post_json(url, {**sent, "data": {"items": [0, 1]}}).status_code == 409

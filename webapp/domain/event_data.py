@@ -8,6 +8,8 @@ so junk accepted once could never be removed. A new event kind needs its model h
 
 from __future__ import annotations
 
+import hashlib
+import json
 import math
 from collections.abc import Mapping
 from typing import Annotated, Any
@@ -239,6 +241,17 @@ def _comparable(value: Any) -> Any:
 # Fields the station keeps under another name: sent key -> path in the stored data.
 _KEPT_AS = {"instrument_id": ("instrument", "id")}
 _NOT_KEPT = {"pin"}  # used, never stored
+
+
+def request_digest(job_id: int, kind: str, step_id: str | None, sent: Mapping[str, Any],
+                   device_time: str | None) -> str:
+    """SHA-256 of what a device sent for an event, in canonical JSON (sorted keys, no spaces),
+    the PIN left out: a resend byte for byte (an outbox's replay) gives the same digest; any
+    other change of job, kind, step, data or device time gives another."""
+    said = {key: value for key, value in sent.items() if key not in _NOT_KEPT}
+    canonical = json.dumps([job_id, kind, step_id, said, device_time], sort_keys=True,
+                           separators=(",", ":"), ensure_ascii=False, allow_nan=False)
+    return hashlib.sha256(canonical.encode("utf-8")).hexdigest()
 
 
 def same_entry(kind: str, sent: Mapping[str, Any], stored: Mapping[str, Any]) -> bool:

@@ -16,7 +16,7 @@ from ..domain import gates
 from ..domain.chain import GENESIS, event_digest
 from ..domain.checks import Circumstances, check_event, job_progress, needs_engine_tags
 from ..domain.errors import RuleRefusal
-from ..domain.event_data import check_event_data, same_entry
+from ..domain.event_data import check_event_data, request_digest, same_entry
 from ..domain.execution import apply_event, configuration_for
 from ..domain.gates import Tag
 from ..domain.procedure_files import procedure_of_revision
@@ -98,6 +98,7 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
     if problem is not None:  # shape first: junk never reaches the rules or the log
         return Outcome("invalid", problem=problem)
     sent = dict(data)
+    digest = request_digest(job_id, kind, step_id, sent, device_time)
     signing = kind in ("signed", "amendment")
     consenting = kind in gates.CONSENT_KINDS
     pin = str(data.pop("pin", "")) if signing or consenting else None
@@ -125,7 +126,9 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
     with store.writing(db):
         existing = jobs.event(db, event_id)
         if existing is not None:
-            if _same_as_stored(db, existing, job_id, kind, step_id, sent, device_time):
+            kept_digest = jobs.request_digest(db, event_id)
+            if (digest == kept_digest if kept_digest is not None else
+                    _same_as_stored(db, existing, job_id, kind, step_id, sent, device_time)):
                 return Outcome("duplicate", event=existing)
             reused = RuleRefusal("event_id_reused", "This event id was already used for a "
                                  "different entry; the device must make a new one.")
@@ -153,6 +156,7 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
         record = _chain(db, job_id=job_id, event_id=event_id, kind=kind, step_id=step_id,
                         data=data, person_id=person.id, device_time=device_time, now=now,
                         last=job.head)
+        jobs.remember_request(db, event_id, digest)
         after = apply_event(job.state, record)
         if at.engine is not None:
             engines.record_event_effects(db, job.row["engine_id"], at.engine, record)
@@ -171,8 +175,8 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
 
 def _same_as_stored(db: store.Database, existing: dict[str, Any], job_id: int, kind: str,
                     step_id: str | None, sent: dict[str, Any], device_time: str | None) -> bool:
-    """An event sent again (an outbox's replay, a retry after a lost answer) is the stored one
-    when job, kind, step, device time and every field the station kept agree."""
+    """For an event stored before request digests were kept: it is the stored one when job,
+    kind, step, device time and every field the station kept agree."""
     if (existing["job_id"], existing["kind"], existing["step_id"], existing["device_time"]) != (
             job_id, kind, step_id, device_time):
         return False

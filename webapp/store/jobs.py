@@ -86,6 +86,20 @@ def append_event(db: Database, record: dict) -> None:
          record["device_time"], record["received_at"], record["prev_hash"], record["hash"]])
 
 
+def remember_request(db: Database, event_id: str, digest: str) -> None:
+    """Keep the digest of what the device sent for a stored event (see 0010_event_requests)."""
+    db.execute("insert or ignore into event_requests (event_id, digest) values (?, ?)",
+               [event_id, digest])
+
+
+def request_digest(db: Database, event_id: str) -> str | None:
+    """The digest of what the device sent for a stored event; None for events stored before
+    digests were kept."""
+    row = db.execute("select digest from event_requests where event_id = ?",
+                     [event_id]).fetchone()
+    return row[0] if row else None
+
+
 def record_refusal(db: Database, *, event_id: str | None, job_id: int, person_id: int,
                    kind: str, step_id: str | None, data: dict, rule: str, reason: str,
                    now: datetime) -> None:

@@ -209,3 +209,12 @@ def sessions_and_login_throttle(db: Database) -> None:
     failures.add_column("cleared_why", str)
     failures.create_index(["address", "at"])
     failures.create_index(["username", "address", "at"])
+
+
+@MIGRATIONS(name="0010_event_requests")
+def event_requests(db: Database) -> None:
+    # What the device sent for each stored event, as a SHA-256 of its canonical JSON (PIN
+    # left out): a resent id is the same entry only when this matches; the stored data alone
+    # cannot tell, since the station keeps what it derived, not every field sent.
+    db.table("event_requests").create({"event_id": str, "digest": str}, pk="event_id",
+                                      not_null={"digest"})
