@@ -424,7 +424,10 @@
     } catch (error) {
       return "stop";  // still no network
     }
-    if (response.redirected && new URL(response.url).pathname === "/login") {
+    // Sent to log in (a page's redirect, or a 401 for a session that ended): the entry
+    // stays here, and goes once the mechanic has logged in again.
+    if (response.status === 401 ||
+        (response.redirected && new URL(response.url).pathname === "/login")) {
       loginNeeded = true;
       return "stop";
     }
