@@ -66,9 +66,11 @@ def _station_secret(db_path: Path) -> str:
 
 def register_extensions(app: Flask) -> None:
     from .web.common import csrf, init_database
+    from .web.headers import register as register_security_headers
 
     csrf.init_app(app)
     init_database(app)
+    register_security_headers(app)
 
 
 def register_blueprints(app: Flask) -> None:
