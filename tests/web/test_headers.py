@@ -176,11 +176,19 @@ def test_the_log_in_page_and_log_in_answers_are_never_stored(client):
 
 
 def test_the_signed_record_pdf_is_never_stored(login, db, clock):
-    """V8.2.1: a safety record behind a log-in stays out of the tablet's HTTP cache."""
-    mech1, mech2 = login("mech1"), login("mech2")
+    """V8.2.1: a safety record behind a log-in stays out of the tablet's HTTP cache. The
+    review page of the job, waiting for certification, keeps the policy too."""
+    mech1, mech2, supervisor = login("mech1"), login("mech2"), login("super")
     job = functional_check_counted(mech1, mech2, db, clock)
     job.ok(_event("sign-selector", "signed", pin=DEMO_PINS["mech1"]))
-    for person in (mech1, login("super")):
+    job.ok(_event("sign-engine", "signed", pin=DEMO_PINS["mech2"]), client=mech2)
+    review = supervisor.get(f"/review/{job.id}")
+    html = review.get_data(as_text=True)
+    assert 'data-testid="certify-form"' in html and 'data-testid="record-preview"' in html
+    assert_security_headers(review, "review page")
+    assert review.headers["Cache-Control"] == "no-store"
+    assert_no_inline_code(html, "review page")
+    for person in (mech1, supervisor):
         pdf = person.get(f"/jobs/{job.id}/record.pdf")
         assert pdf.status_code == 200 and pdf.mimetype == "application/pdf"
         assert pdf.data.startswith(b"%PDF-")
