@@ -1,6 +1,9 @@
 """Security headers on every answer: content policy, framing, sniffing, referrer, powerful
 features, HSTS over HTTPS, and what a browser may keep in its HTTP cache.
 
+Every answer carries CONTENT_SECURITY_POLICY except a record PDF, which carries only
+PDF_POLICY (no framing): the browser's PDF viewer lives under the PDF's policy (see there).
+
 What may be cached, and why (OWASP ASVS 4.0.3 V8.2.1):
 
 - Everything the station renders or computes (pages, htmx fragments, JSON, record PDFs,
@@ -42,6 +45,13 @@ CONTENT_SECURITY_POLICY = "; ".join((
     "object-src 'none'",
 ))
 
+# A record PDF is no page of ours: Chromium shows it in its own viewer, an <embed> in a
+# page it makes up, and the PDF's policy governs that page: object-src 'none' or a
+# default-src blocks the viewer (Chromium issue 271452; a known cause of "PDFs don't open
+# in Chrome" reports). Not checkable here (headless Chromium has no PDF viewer), so the PDF
+# keeps only what cannot hurt the viewer: no one frames it.
+PDF_POLICY = "frame-ancestors 'none'"
+
 # The microphone (spark counts by ear) and the camera (photos of findings) for the station's
 # own pages only; every other powerful feature off. Only names Chromium knows: an unknown
 # one costs a console warning on every page (tests/e2e/test_csp_browser.py looks; Chromium
@@ -60,7 +70,6 @@ PERMISSIONS_POLICY = ", ".join((
 STRICT_TRANSPORT_SECURITY = "max-age=31536000"
 
 SECURITY_HEADERS = {
-    "Content-Security-Policy": CONTENT_SECURITY_POLICY,
     "X-Frame-Options": "DENY",  # frame-ancestors' older twin, ASVS 4.0.3 V14.4.7
     "X-Content-Type-Options": "nosniff",  # ASVS 4.0.3 V14.4.4
     "Referrer-Policy": "same-origin",  # ASVS 4.0.3 V14.4.6: job URLs stay on the station
@@ -96,6 +105,8 @@ def cache_control_for(path: str, endpoint: str | None) -> str:
 def add_security_headers(response: Response) -> Response:
     for name, value in SECURITY_HEADERS.items():
         response.headers[name] = value
+    response.headers["Content-Security-Policy"] = (
+        PDF_POLICY if response.mimetype == "application/pdf" else CONTENT_SECURITY_POLICY)
     if request.is_secure:
         response.headers["Strict-Transport-Security"] = STRICT_TRANSPORT_SECURITY
     response.headers["Cache-Control"] = cache_control_for(request.path, request.endpoint)
