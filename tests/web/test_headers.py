@@ -94,7 +94,7 @@ def assert_security_headers(answer, url: str, *, secure: bool = False) -> None:
     for off in ("geolocation", "payment", "usb"):
         assert features.get(off) == "()", (url, off)
     assert headers.get("Cross-Origin-Opener-Policy") == "same-origin", url
-    # V14.4.5: HSTS; RFC 6797 7.2: never over plain HTTP. A year: 31536000 s.
+    # V14.4.5: HSTS; RFC 6797 7.2 (from memory): never over plain HTTP. A year: 31536000 s.
     hsts = headers.get("Strict-Transport-Security")
     if secure:
         assert hsts is not None, url
@@ -206,7 +206,7 @@ def test_the_signed_record_pdf_is_never_stored(login, db, clock):
 def test_hsts_only_when_the_request_came_over_https(client, login):
     secure = client.get("/login", base_url="https://localhost")
     assert_security_headers(secure, "/login over https", secure=True)
-    # RFC 6797 6.1.2: includeSubDomains is left out on purpose (a LAN name is shared).
+    # RFC 6797 6.1.2 (from memory): includeSubDomains left out on purpose (headers.py).
     assert "includesubdomains" not in secure.headers["Strict-Transport-Security"].lower()
     assert "Strict-Transport-Security" not in client.get("/login").headers
     person = login("mech1")

@@ -10,9 +10,11 @@ What may be cached, and why (OWASP ASVS 4.0.3 V8.2.1):
   redirects, errors, the log-in page): ``no-store``. They name people, jobs and safety
   records; a shared tablet must not keep them in its HTTP cache. This includes the pages
   the service worker keeps for offline work: the worker stores them through the Cache API,
-  which ignores ``Cache-Control`` (only ``Vary: *`` or a 206 stop ``cache.put``), so
-  ``no-store`` does not take a job off a tablet in the hangar (tests/e2e/test_offline.py
-  works a job offline under these headers); the worker clears its pages at log-out.
+  which ignores ``Cache-Control`` (only ``Vary: *`` or a 206 stop ``cache.put``: the
+  Service Workers spec, from memory), so ``no-store`` does not take a job off a tablet in
+  the hangar (tests/e2e/test_offline.py works a job offline under these headers, and
+  tests/e2e/test_csp_browser.py reloads a no-store page from the worker's copy); the
+  worker clears its pages at log-out.
 - The public files of the installable app and of the station's authority (``/sw.js``, the
   manifest, the CA certificate and its revocation list): ``no-cache``, i.e. kept but
   checked with the station on every use, so a new worker or list is seen at once.
@@ -63,10 +65,11 @@ PERMISSIONS_POLICY = ", ".join((
     "display-capture=()", "idle-detection=()", "screen-wake-lock=()",
 ))
 
-# One year (ASVS 4.0.3 V14.4.5 asks for HSTS; RFC 6797 6.1.1 max-age in seconds). No
+# One year (ASVS 4.0.3 V14.4.5 asks for HSTS; RFC 6797 6.1.1 max-age in seconds, from
+# memory). No
 # includeSubDomains: the station is one host on a LAN name it may share with printers and
 # other devices that speak only HTTP; HSTS is not ours to impose on them. Sent only over
-# HTTPS (RFC 6797 7.2: a host must not send it over plain HTTP).
+# HTTPS (RFC 6797 7.2, from memory: a host must not send it over plain HTTP).
 STRICT_TRANSPORT_SECURITY = "max-age=31536000"
 
 SECURITY_HEADERS = {
