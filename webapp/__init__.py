@@ -77,10 +77,12 @@ def _station_secret(db_path: Path) -> str:
 def register_extensions(app: Flask) -> None:
     from .web import input_guard
     from .web.common import csrf, init_database
+    from .web.headers import register as register_security_headers
 
     input_guard.register(app)  # first: sizes and text checked before anything reads the body
     init_database(app)  # who is logged in, before the CSRF check: a stranger hears 401
     csrf.init_app(app)
+    register_security_headers(app)
 
 
 def register_blueprints(app: Flask) -> None:

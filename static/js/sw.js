@@ -5,7 +5,7 @@
 "use strict";
 
 // Bump when SHELL or this file changes: the new worker fills fresh caches, the old go.
-const VERSION = "v5";
+const VERSION = "v6";
 const SHELL_CACHE = "sparkward-shell-" + VERSION;
 const PAGES_CACHE = "sparkward-pages-" + VERSION;
 const OFFLINE_PAGE = "/offline";  // rendered by the station, cached at install
@@ -95,8 +95,13 @@ async function markedAsSavedCopy(saved) {
   const when = (saved.headers.get(SAVED_AT) || "").replace(/[^0-9A-Za-z:.+-]/g, "");
   const html = (await saved.text()).replace(
     /<head>/i, '<head><meta name="sparkward-saved-copy" content="' + when + '">');
-  return new Response(html, { status: 200,
-                              headers: { "Content-Type": "text/html; charset=utf-8" } });
+  // The copy keeps the station's headers, its Content-Security-Policy above all: a page
+  // from the tablet's cache runs under the same rules as one from the station. The Cache
+  // API kept it although the station said "no-store" (that governs the HTTP cache only).
+  const headers = new Headers(saved.headers);
+  headers.delete("Content-Length");
+  headers.set("Content-Type", "text/html; charset=utf-8");
+  return new Response(html, { status: 200, headers });
 }
 
 // The shell from the cache at once; a fresh copy is fetched behind it for the next load.
