@@ -117,6 +117,12 @@ def log_refusal(status: int, rule: str, field: str | None = None) -> None:
                 rule, f" ({field})" if field else "", excerpt())
 
 
+# Query parameters a route judges by its own rule: the log-in's `next` sends anything that is
+# not a plain path on this station (control characters included) to the home page, so the
+# person is still logged in rather than refused.
+JUDGED_BY_ROUTE = {("auth.login", "next")}
+
+
 def register(app: Flask) -> None:
     """Install the guard: first of the station's before-request steps."""
     app.json = StrictJSONProvider(app)
@@ -130,14 +136,16 @@ def register(app: Flask) -> None:
             abort(413, f"The request body is larger than the station takes here "
                        f"({limit // 1024} KB); nothing was stored.")
         for name, values in request.args.lists():
+            if (request.endpoint, name) in JUDGED_BY_ROUTE:
+                continue
             for value in (name, *values):
                 said = text_problem(value, query=True)
                 if said is not None:
-                    raise InputRefused(f"query.{name[:40]}", f"The query parameter {said}.")
+                    raise InputRefused(f"query.{name[:40]}", f"The query parameter '{name[:40]}' {said}.")
         if request.method in ("POST", "PUT", "PATCH") and request.mimetype in (
                 "application/x-www-form-urlencoded", "multipart/form-data"):
             for name, values in request.form.lists():
                 for value in (name, *values):
                     said = text_problem(value)
                     if said is not None:
-                        raise InputRefused(f"form.{name[:40]}", f"The field {said}.")
+                        raise InputRefused(f"form.{name[:40]}", f"The field '{name[:40]}' {said}.")
