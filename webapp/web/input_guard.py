@@ -141,7 +141,8 @@ def register(app: Flask) -> None:
             for value in (name, *values):
                 said = text_problem(value, query=True)
                 if said is not None:
-                    raise InputRefused(f"query.{name[:40]}", f"The query parameter '{name[:40]}' {said}.")
+                    raise InputRefused(f"query.{name[:40]}",
+                                       f"The query parameter '{name[:40]}' {said}.")
         if request.method in ("POST", "PUT", "PATCH") and request.mimetype in (
                 "application/x-www-form-urlencoded", "multipart/form-data"):
             for name, values in request.form.lists():
