@@ -272,8 +272,8 @@ async def run(args: argparse.Namespace, threads: int) -> int:
             sessions = [await log_in(port, MECHANICS[i % len(MECHANICS)], i)
                         for i in range(min(args.sessions, tablets_max))]
             print(f"{len(sessions)} log-ins through /login in {time.monotonic() - login_at:.1f} s "
-                  f"(each tablet shares one: the session is a signed cookie, so the server "
-                  f"does the same work per request whether it is shared or not)")
+                  f"(each tablet shares one: every request looks its session row up by the "
+                  f"token's hash, the same work whether the row is shared or not)")
             # A tablet shares the log-in of its job's mechanic: tablet n's job was opened by
             # MECHANICS[n % 2], and so was session n % sessions when sessions is even.
             assert len(sessions) % len(MECHANICS) == 0 or len(sessions) == 1

@@ -24,7 +24,7 @@ DEFAULTS: dict[str, Any] = {
     "LOGIN_MAX_DELAY_MINUTES": 15,
     # A session ends after this long unused, and this long after log-in whatever happens
     # (domain/session_limits.py says why these numbers).
-    "SESSION_IDLE_MINUTES": 12 * 60,
+    "SESSION_IDLE_MINUTES": 8 * 60,
     "SESSION_ABSOLUTE_HOURS": 12,
     "SESSION_COOKIE_HTTPONLY": True,
     "SESSION_COOKIE_SAMESITE": "Lax",

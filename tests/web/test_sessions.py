@@ -124,12 +124,22 @@ def test_a_session_ends_after_the_idle_limit_but_use_keeps_it_alive(short_idle_a
     assert not _is_logged_in(mech1.client)
 
 
+def test_by_default_a_tablet_unused_for_a_shift_is_logged_out(clock, mechanic, db):
+    clock.advance(8 * 3600 + 1)           # untouched since log-in, under the 12 h limit
+    assert not _is_logged_in(mechanic.client)
+    [row] = _rows(db, "mech1")
+    assert row["ended_why"] == "idle limit"
+
+
 def test_the_default_limits_end_a_session_twelve_hours_after_log_in(app, clock, mechanic, db):
-    assert app.config["SESSION_IDLE_MINUTES"] == 12 * 60
+    assert app.config["SESSION_IDLE_MINUTES"] == 8 * 60   # a shift (common practice, no source)
     assert app.config["SESSION_ABSOLUTE_HOURS"] == 12  # ASVS 4.0.3 V3.3.2, level 2: 12 hours
-    clock.advance(11 * 3600 + 59 * 60)  # idle for almost a shift: still logged in
+    for _ in range(3):                    # used every 4 hours: never idle for a shift
+        clock.advance(4 * 3600 - 60)
+        assert _is_logged_in(mechanic.client)
+    clock.advance(3 * 60 - 1)             # 11 h 59 min 59 s after log-in: still in
     assert _is_logged_in(mechanic.client)
-    clock.advance(60)  # busy or not, twelve hours after log-in it ends
+    clock.advance(1)  # busy or not, twelve hours after log-in it ends
     assert not _is_logged_in(mechanic.client)
     [row] = _rows(db, "mech1")
     assert row["ended_why"] == "absolute limit"
