@@ -66,10 +66,9 @@ PERMISSIONS_POLICY = ", ".join((
 ))
 
 # One year (ASVS 4.0.3 V14.4.5 asks for HSTS; RFC 6797 6.1.1 max-age in seconds, from
-# memory). No
-# includeSubDomains: the station is one host on a LAN name it may share with printers and
-# other devices that speak only HTTP; HSTS is not ours to impose on them. Sent only over
-# HTTPS (RFC 6797 7.2, from memory: a host must not send it over plain HTTP).
+# memory). No includeSubDomains: the station is one host on a LAN name it may share with
+# printers and other devices that speak only HTTP; HSTS is not ours to impose on them. Sent
+# only over HTTPS (RFC 6797 7.2, from memory: a host must not send it over plain HTTP).
 STRICT_TRANSPORT_SECURITY = "max-age=31536000"
 
 SECURITY_HEADERS = {
