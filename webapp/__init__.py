@@ -5,6 +5,7 @@ from __future__ import annotations
 import os
 import secrets
 import tomllib
+import warnings
 from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
@@ -13,6 +14,11 @@ from flask import Flask
 
 from .clock import system_clock
 from .resources import shipped_dir
+
+# pyHanko imports cryptography's DSA key class, which cryptography 51 marks deprecated when
+# it is looked up; the station never makes or accepts a DSA key (its keys are EC and RSA).
+# Only that message is silenced, so a start-up does not print a warning that asks nothing.
+warnings.filterwarnings("ignore", message="DSA is deprecated", category=UserWarning)
 
 DEFAULTS: dict[str, Any] = {
     "DB_FILENAME": "sparkward.db",
