@@ -7,6 +7,7 @@ no work) served by the same waitress configuration, in the same run. Prints thro
 p50/p95/p99 per request kind and level, and the ratio station / bare.
 
     .venv/bin/python bench/load.py [--levels 20 50 100 200] [--seconds 8] [--threads 16]
+                                   [--workers 1] [--idle-hog 0]
 
 Localhost only; bounded: each level runs `--seconds` (plus a 2 s ramp) per app.
 """
@@ -28,7 +29,7 @@ from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
 
-from load_client import Connection, Session, log_in  # bench/ is on sys.path
+from load_client import Connection, IdleHog, Session, log_in  # bench/ is on sys.path
 from measuring import percentile
 from step_page import _event_for, _procedure_yaml
 
@@ -111,25 +112,31 @@ def bare_app() -> Any:
     return app
 
 
-def serve_only(which: str, db_path: str, threads: int, port_file: Path) -> None:
-    """Run in the server subprocess: the chosen app on the station's waitress."""
+def serve_only(which: str, db_path: str, limits: Any, port_file: Path) -> None:
+    """Run in the server subprocess: the chosen app as `sparkward serve` runs it (waitress in
+    `limits.workers` processes on one listening socket)."""
     from webapp.serving import station_waitress
-    from webapp.serving.limits import Limits, raise_open_files_limit
+    from webapp.serving.limits import raise_open_files_limit
+    from webapp.serving.workers import bind_listeners, serve_in_workers
 
     app = bare_app() if which == "bare" else create_app(
         {"DB_PATH": db_path, "SECRET_KEY": "bench", "TESTING": False})
-    limits = raise_open_files_limit(Limits(threads=threads))
-    server = station_waitress(app, "127.0.0.1", 0, limits)
-    port_file.with_suffix(".tmp").write_text(str(server.effective_port))
+    limits = raise_open_files_limit(limits)
+    listeners = bind_listeners("127.0.0.1", 0)
+    port_file.with_suffix(".tmp").write_text(str(listeners[0].getsockname()[1]))
     port_file.with_suffix(".tmp").rename(port_file)  # the client never reads half a number
-    server.run()
+    if limits.workers == 1:
+        station_waitress(app, "127.0.0.1", 0, limits, listeners=listeners).run()
+    else:
+        serve_in_workers(app, listeners, limits)
 
 
-def start_server(which: str, db_path: Path, threads: int, tmp: Path) -> tuple[Any, int]:
+def start_server(which: str, db_path: Path, limits: Any, tmp: Path) -> tuple[Any, int]:
     """Start the server process; its port is 0 until `wait_for_port` reads it."""
     port_file = tmp / f"{which}.port"
     process = subprocess.Popen([sys.executable, __file__, "--serve", which, "--db", str(db_path),
-                                "--threads", str(threads), "--port-file", str(port_file)],
+                                "--threads", str(limits.threads), "--workers",
+                                str(limits.workers), "--port-file", str(port_file)],
                                env={**os.environ, "PYTHONPATH": str(Path(__file__).parents[1])})
     return process, 0
 
@@ -143,9 +150,17 @@ def wait_for_port(process: Any, port_file: Path) -> int:
 
 
 def cpu_seconds(pid: int) -> float:
-    """User + system CPU time of a process (Linux /proc/<pid>/stat, fields 14 and 15)."""
-    fields = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()
-    return (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
+    """User + system CPU time of a process and its worker processes (Linux /proc/<pid>/stat,
+    fields 14 and 15; a worker is a process whose parent, field 4, is `pid`)."""
+    total = 0.0
+    for stat in Path("/proc").glob("[0-9]*/stat"):
+        try:
+            fields = stat.read_text().rsplit(")", 1)[1].split()
+        except OSError:
+            continue  # it ended while we looked
+        if stat.parent.name == str(pid) or fields[1] == str(pid):
+            total += (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
+    return total
 
 
 # --- the simulated tablets ---------------------------------------------------------------
@@ -200,12 +215,14 @@ async def run_tablet(tablet: Tablet, port: int, counted_from: float, ends: float
         await connection.close()
 
 
-async def run_level(tablets: list[Tablet], port: int, seconds: float) -> float:
+async def run_level(tablets: list[Tablet], port: int, seconds: float,
+                    hog: IdleHog | None) -> float:
     for tablet in tablets:
         tablet.samples = {"page": [], "post": []}
     counted_from = time.monotonic() + RAMP_S
     ends = counted_from + seconds
-    await asyncio.gather(*(run_tablet(t, port, counted_from, ends) for t in tablets))
+    holding = [hog.hold(ends - time.monotonic())] if hog else []
+    await asyncio.gather(*holding, *(run_tablet(t, port, counted_from, ends) for t in tablets))
     return ends - counted_from
 
 
@@ -231,26 +248,31 @@ def main(argv: list[str] | None = None) -> int:
                         help="counted seconds per level and app, after a 2 s ramp (default 8)")
     parser.add_argument("--threads", type=int, default=None,
                         help="waitress threads (default: the station's THREADS)")
+    parser.add_argument("--workers", type=int, default=None,
+                        help="server processes (default: the station's WORKERS)")
     parser.add_argument("--sessions", type=int, default=10,
                         help="log-ins, shared round-robin by the tablets (default 10)")
     parser.add_argument("--walked", type=int, default=5,
                         help="steps each tablet's job has done before the run (default 5)")
+    parser.add_argument("--idle-hog", type=int, default=99,
+                        help="idle connections one misbehaving client holds open from one "
+                             "address through every run (default 99; 0 for none)")
     parser.add_argument("--serve", choices=["station", "bare"], help=argparse.SUPPRESS)
     parser.add_argument("--db", help=argparse.SUPPRESS)
     parser.add_argument("--port-file", type=Path, help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
-    from webapp.serving.limits import THREADS
+    from webapp.serving.limits import THREADS, WORKERS, Limits
 
-    threads = args.threads or THREADS
+    limits = Limits(threads=args.threads or THREADS, workers=args.workers or WORKERS)
     if args.serve:
-        serve_only(args.serve, args.db, threads, args.port_file)
+        serve_only(args.serve, args.db, limits, args.port_file)
         return 0
     if max(args.levels) > 1000 or args.seconds > 60 or min(args.levels) < 1:
         parser.error("levels 1..1000 tablets, at most 60 s each")
-    return asyncio.run(run(args, threads))
+    return asyncio.run(run(args, limits))
 
 
-async def run(args: argparse.Namespace, threads: int) -> int:
+async def run(args: argparse.Namespace, limits: Any) -> int:
     tablets_max = max(args.levels)
     rounds = int(len(args.levels) * (args.seconds + RAMP_S) / THINK_S[0]) + 5
     with tempfile.TemporaryDirectory(prefix="sparkward-load-") as tmpname:
@@ -264,7 +286,7 @@ async def run(args: argparse.Namespace, threads: int) -> int:
         servers = {}
         try:
             for which in ("station", "bare"):  # both start at once; each waits for its port
-                servers[which] = start_server(which, built["db_path"], threads, tmp)
+                servers[which] = start_server(which, built["db_path"], limits, tmp)
             for which, (process, _) in servers.items():
                 servers[which] = (process, wait_for_port(process, tmp / f"{which}.port"))
             port = servers["station"][1]
@@ -289,8 +311,10 @@ async def run(args: argparse.Namespace, threads: int) -> int:
                         for tablet in tablets:
                             tablet.posted = progress.get(tablet.number, 0)
                     client_cpu, server_cpu = time.process_time(), cpu_seconds(process.pid)
-                    counted = await run_level(tablets, port, args.seconds)
+                    hog = IdleHog(port, args.idle_hog) if args.idle_hog else None
+                    counted = await run_level(tablets, port, args.seconds, hog)
                     result = summary(tablets, counted)
+                    result["hog"] = (hog.most_held, hog.opened, hog.cut) if hog else None
                     result["cpu"] = (time.process_time() - client_cpu,
                                      cpu_seconds(process.pid) - server_cpu)
                     results[(which, level)] = result
@@ -300,15 +324,16 @@ async def run(args: argparse.Namespace, threads: int) -> int:
             for process, _ in servers.values():
                 process.terminate()
                 process.wait(timeout=10)
-    report(args, threads, results)
+    report(args, limits, results)
     return 1 if any(results[(w, lv)]["errors"] for w in ("station", "bare")
                     for lv in args.levels) else 0
 
 
-def report(args: argparse.Namespace, threads: int, results: dict[tuple[str, int], Any]) -> None:
+def report(args: argparse.Namespace, limits: Any, results: dict[tuple[str, int], Any]) -> None:
     cores = os.cpu_count()
-    print(f"\nwaitress, {threads} threads; {cores} cores shared by the server and this load "
-          f"generator (CPU seconds of each below); think {THINK_S[0]:g}-{THINK_S[1]:g} s; "
+    print(f"\nwaitress, {limits.workers} process(es) of {limits.threads} threads; {cores} cores "
+          f"shared by the server and this load generator (CPU seconds of each below); "
+          f"think {THINK_S[0]:g}-{THINK_S[1]:g} s; "
           f"{args.seconds:g} s counted per level after a {RAMP_S:g} s ramp")
     print("page = GET /jobs/<id> (station) or a small page (bare); post = POST an event "
           "(station, 201 each) or a small JSON POST (bare)\n")
@@ -329,10 +354,18 @@ def report(args: argparse.Namespace, threads: int, results: dict[tuple[str, int]
                           for pairs in (zip(ours[k], bare[k], strict=True)
                                         for k in ("page", "post")))
               + f"  {ours['rps'] / bare['rps']:.2f}")
+    if args.idle_hog:
+        print(f"\nmeanwhile one client at 127.0.8.1 kept trying to hold {args.idle_hog} idle "
+              f"connections (never sending a byte; each one cut was opened again after 0.2 s):")
+        for level in args.levels:
+            held, opened, cut = results[("station", level)]["hog"]
+            print(f"{level:>7} tablets: at most {held} open at once on its side, "
+                  f"{opened} opened, {cut} cut by the station")
     top = results[("station", max(args.levels))]
     met = all(top[k][1] < TARGET_P95_MS for k in ("page", "post"))
     print(f"\ntarget: p95 < {TARGET_P95_MS:g} ms for step pages and event posts at "
-          f"{max(args.levels)} tablets: {'met' if met else 'NOT met'} "
+          f"{max(args.levels)} tablets{' beside the idle client' if args.idle_hog else ''}: "
+          f"{'met' if met else 'NOT met'} "
           f"(page {top['page'][1]:.1f} ms, post {top['post'][1]:.1f} ms)")
     errors = [e for r in results.values() for e in r["errors"]]
     if errors:

@@ -78,3 +78,40 @@ async def log_in(port: int, username: str, number: int) -> Session:
         return Session(cookie, meta.group(1).decode())
     finally:
         await connection.close()
+
+
+class IdleHog:
+    """A misbehaving client: `count` connections from one address that never send a byte,
+    each opened again as soon as the station closes it (its idle and header deadlines and
+    its per-address cap close them). Counts what it opened and what the station cut."""
+
+    def __init__(self, port: int, count: int, address: str = "127.0.8.1") -> None:
+        self.port, self.count, self.address = port, count, address
+        self.opened = self.cut = self.most_held = 0
+        self._held: set[asyncio.StreamWriter] = set()
+
+    async def _one(self, ends: float) -> None:
+        loop = asyncio.get_running_loop()
+        while loop.time() < ends:
+            try:
+                reader, writer = await asyncio.open_connection(
+                    "127.0.0.1", self.port, local_addr=(self.address, 0))
+            except OSError:
+                await asyncio.sleep(0.2)
+                continue
+            self.opened += 1
+            self._held.add(writer)
+            self.most_held = max(self.most_held, len(self._held))
+            try:
+                await asyncio.wait_for(reader.read(1), max(0.0, ends - loop.time()))
+                self.cut += 1  # the station closed it (read gives b"" at its end)
+                await asyncio.sleep(0.2)  # and the hog comes straight back
+            except (TimeoutError, OSError):
+                pass
+            finally:
+                self._held.discard(writer)
+                writer.close()
+
+    async def hold(self, seconds: float) -> None:
+        ends = asyncio.get_running_loop().time() + seconds
+        await asyncio.gather(*(self._one(ends) for _ in range(self.count)))

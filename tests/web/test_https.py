@@ -119,8 +119,11 @@ def test_the_station_serves_https_that_only_its_ca_vouches_for(https_station, db
         body = answer.read().decode()
         assert answer.status == 200
         assert 'data-testid="login"' in body
-        # The log-in cookie is marked Secure: it never goes out over plain HTTP.
-        assert "Secure" in answer.getheader("Set-Cookie", "")
+        # The log-in cookie is marked Secure (it never goes out over plain HTTP) and carries
+        # the __Host- prefix, which browsers keep only for this host and the whole path.
+        cookie = answer.getheader("Set-Cookie", "")
+        assert cookie.startswith("__Host-session="), cookie
+        assert "Secure" in cookie and "Path=/;" in cookie + ";" and "Domain" not in cookie
         assert connection.sock.version() in ("TLSv1.2", "TLSv1.3")
         served = connection.sock.getpeercert(binary_form=True)
     finally:

@@ -62,22 +62,33 @@ def waitress_options(limits: Limits) -> dict[str, Any]:
     }
 
 
-def station_waitress(app: Any, host: str, port: int, limits: Limits) -> Any:
+def station_waitress(app: Any, host: str, port: int, limits: Limits,
+                     listeners: list[Any] | None = None, addresses: Any = None) -> Any:
     """A waitress server for `app` with the per-address cap and the header deadline; call
-    `.run()` to serve, `.close()` to stop. Port 0 picks a free port (`.effective_port`)."""
+    `.run()` to serve, `.close()` to stop. Port 0 picks a free port (`.effective_port`).
+    With `listeners` it serves those already-bound sockets (a worker process's share) and
+    counts addresses in `addresses` (shared by the workers)."""
     from waitress.adjustments import Adjustments
     from waitress.server import MultiSocketServer
     from waitress.task import ThreadedTaskDispatcher
 
     from .waitress_server import StationServer
 
-    adj = Adjustments(host=host, port=port, **waitress_options(limits))
+    adj = Adjustments(host=host or "127.0.0.1", port=port, **waitress_options(limits))
     dispatcher = ThreadedTaskDispatcher()
     dispatcher.set_thread_count(adj.threads)
     socket_map: dict[int, Any] = {}
-    servers = [StationServer(app, socket_map, dispatcher=dispatcher, adj=adj,
-                             sockinfo=sockinfo, limits=limits)
-               for sockinfo in adj.listen]  # "localhost" may listen on IPv4 and IPv6
+    if listeners is None:
+        servers = [StationServer(app, socket_map, dispatcher=dispatcher, adj=adj,
+                                 sockinfo=sockinfo, limits=limits, addresses=addresses)
+                   for sockinfo in adj.listen]  # "localhost" may listen on IPv4 and IPv6
+    else:
+        servers = [StationServer(app, socket_map, _sock=listener, bind_socket=False,
+                                 sockinfo=(listener.family, listener.type, listener.proto,
+                                           listener.getsockname()),
+                                 dispatcher=dispatcher, adj=adj, limits=limits,
+                                 addresses=addresses)
+                   for listener in listeners]
     if len(servers) == 1:
         return servers[0]
     multi = MultiSocketServer(socket_map, adj,
@@ -88,22 +99,34 @@ def station_waitress(app: Any, host: str, port: int, limits: Limits) -> Any:
 
 
 def serve_http(app: Flask, host: str, port: int) -> None:
+    """Waitress in `limits.workers` processes (one: this process) on one listening socket."""
+    from ..station.authority import station_authority
+    from .workers import bind_listeners, serve_in_workers
+
     limits = raise_open_files_limit(Limits.from_config(app.config))
+    if limits.workers > 1:
+        # Made (or loaded) once here, so two workers never both create the station's CA.
+        station_authority(app.config["DB_PATH"], app.config["STATION_NAME"], _now())
     try:
-        server = station_waitress(app, host, port, limits)
+        listeners = bind_listeners(host, port)
     except OSError as err:
         raise click.ClickException(f"cannot listen on {host}:{port}: {err}") from None
-    _start_warm_up()
     shown = "127.0.0.1" if host in ("0.0.0.0", "::") else host
     click.echo(f"Sparkward station serving {app.config['DB_PATH']}")
     click.echo(_limits_line(limits))
     click.echo(f"Open http://{shown}:{port}/ (press Ctrl+C to stop)")
     sys.stdout.flush()
-    server.run()
+    if limits.workers == 1:
+        server = station_waitress(app, host, port, limits, listeners=listeners)
+        _start_warm_up()
+        server.run()
+    else:
+        serve_in_workers(app, listeners, limits, on_worker_start=_start_warm_up)
 
 
 def _limits_line(limits: Limits) -> str:
-    return (f"Limits: {limits.threads} threads, {limits.connection_limit} connections "
+    return (f"Limits: {limits.workers} worker process{'es' if limits.workers > 1 else ''} "
+            f"of {limits.threads} threads, {limits.connection_limit} connections "
             f"({limits.per_address_limit} per address), idle connections closed after "
             f"{limits.idle_timeout_s:g} s, request headers within {limits.header_timeout_s:g} s")
 
@@ -123,6 +146,12 @@ def serve_https(app: Flask, host: str, port: int, extra_names: tuple[str, ...]) 
     except ServerNameProblem as problem:
         raise click.ClickException(str(problem)) from None
     app.config["SESSION_COOKIE_SECURE"] = True  # the log-in cookie never goes out in clear
+    # The __Host- prefix makes the browser refuse the cookie unless it is Secure, for this
+    # host only (no Domain) and for the whole path: a neighbour on the LAN cannot plant one
+    # (OWASP ASVS 4.0.3 V3.4.4).
+    app.config["SESSION_COOKIE_NAME"] = "__Host-session"
+    app.config["SESSION_COOKIE_DOMAIN"] = None
+    app.config["SESSION_COOKIE_PATH"] = "/"
     limits = raise_open_files_limit(Limits.from_config(app.config))
     server = station_cheroot(app, host, port, tls, limits)
     try:
@@ -131,7 +160,7 @@ def serve_https(app: Flask, host: str, port: int, extra_names: tuple[str, ...]) 
         raise click.ClickException(f"cannot listen on {host}:{port}: {err}") from None
     _start_warm_up()
     click.echo(f"Sparkward station serving {app.config['DB_PATH']} over HTTPS")
-    click.echo(_limits_line(replace(limits, threads=server.numthreads,
+    click.echo(_limits_line(replace(limits, workers=1, threads=server.numthreads,
                                     idle_timeout_s=server.timeout,
                                     header_timeout_s=server.timeout)))
     _announce_https(tls, host, port)

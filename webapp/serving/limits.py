@@ -6,9 +6,11 @@ Every limit is a named constant; a station can change the ones marked "settable"
 
 from __future__ import annotations
 
+import os
 import resource
 import threading
 import time
+import zlib
 from collections import Counter
 from dataclasses import dataclass, replace
 from typing import Any
@@ -57,6 +59,14 @@ SPARE_FILES = 256
 # thread until `HTTPS_SOCKET_TIMEOUT_S` passes with no byte: twice the threads of HTTP,
 # and a short timeout, so a few slow clients cannot take them all.
 HTTPS_THREADS = 64
+# HTTP worker processes (settable). Python runs one thread at a time per process, so one
+# process used about one core of the two however many threads it had: at 200 simulated
+# tablets it sat near 0.75 of a core and the posts' p95 strayed past 100 ms (bench/README.md).
+# One process per core lets both serve; they share the listening socket (the kernel
+# hands each new connection to a process that is waiting in accept, so the idler one
+# takes more), the per-address count (`SharedAddressCount`) and the writer queue (an
+# flock, store/writer_lock.py). Each process keeps its own threads and connection share.
+WORKERS = max(1, min(os.cpu_count() or 1, 4))
 HTTPS_SOCKET_TIMEOUT_S = 10.0
 
 
@@ -70,6 +80,7 @@ class Limits:
     idle_timeout_s: float = IDLE_TIMEOUT_S
     header_timeout_s: float = HEADER_TIMEOUT_S
     cleanup_interval_s: float = CLEANUP_INTERVAL_S
+    workers: int = WORKERS
 
     @classmethod
     def from_config(cls, config: Any) -> Limits:
@@ -77,7 +88,8 @@ class Limits:
         overrides: dict[str, Any] = {}
         for name, kind in (("threads", int), ("connection_limit", int),
                            ("per_address_limit", int), ("idle_timeout_s", float),
-                           ("header_timeout_s", float), ("cleanup_interval_s", float)):
+                           ("header_timeout_s", float), ("cleanup_interval_s", float),
+                           ("workers", int)):
             key = "SERVER_" + name.upper()
             if key not in config:
                 continue
@@ -136,14 +148,53 @@ class AddressCount:
             else:
                 self._open[address] += 1
                 refused = False
-        if refused and time.monotonic() - self._warned.get(address, -1e9) > 60:
+        if refused:
+            self._warn(address)
+        return not refused
+
+    def _warn(self, address: str) -> None:
+        if time.monotonic() - self._warned.get(address, -1e9) > 60:
             self._warned[address] = time.monotonic()  # once a minute, not once a connection
             click.echo(f"Refusing connections from {address}: it has {self.limit} open "
                        "(the per-address limit)", err=True)
-        return not refused
 
     def release(self, address: str) -> None:
         with self._lock:
             self._open[address] -= 1
             if self._open[address] <= 0:
                 del self._open[address]
+
+
+class SharedAddressCount(AddressCount):
+    """`AddressCount` in memory shared by forked worker processes: counts in a fixed table
+    of buckets (an address's bucket from its CRC-32), under one lock across processes. Two
+    addresses that share a bucket share its limit too: stricter, never looser (with 65,536
+    buckets and 200 tablets, a few pairs of tablets at most, each far under its limit)."""
+
+    BUCKETS = 65536
+
+    def __init__(self, limit: int) -> None:
+        import multiprocessing
+
+        super().__init__(limit)
+        context = multiprocessing.get_context("fork")
+        self._counts = context.RawArray("i", self.BUCKETS)
+        self._lock = context.Lock()  # type: ignore[assignment]
+
+    def _bucket(self, address: str) -> int:
+        return zlib.crc32(address.encode()) % self.BUCKETS
+
+    def admit(self, address: str) -> bool:
+        bucket = self._bucket(address)
+        with self._lock:
+            admitted = self._counts[bucket] < self.limit
+            if admitted:
+                self._counts[bucket] += 1
+        if not admitted:
+            self._warn(address)
+        return admitted
+
+    def release(self, address: str) -> None:
+        bucket = self._bucket(address)
+        with self._lock:
+            self._counts[bucket] = max(0, self._counts[bucket] - 1)

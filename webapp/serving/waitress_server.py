@@ -41,8 +41,9 @@ class StationServer(TcpWSGIServer):
     """Waitress's TCP server, refusing an address's connections beyond its limit and
     closing connections whose headers take longer than the deadline."""
 
-    def __init__(self, *args: Any, limits: Limits, **kw: Any) -> None:
-        self.addresses = AddressCount(limits.per_address_limit)
+    def __init__(self, *args: Any, limits: Limits, addresses: AddressCount | None = None,
+                 **kw: Any) -> None:
+        self.addresses = addresses or AddressCount(limits.per_address_limit)
         self.header_timeout_s = limits.header_timeout_s
         super().__init__(*args, **kw)
 

@@ -9,7 +9,6 @@ procedures, jobs.
 from __future__ import annotations
 
 import sqlite3
-import threading
 from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
@@ -18,6 +17,7 @@ from sqlite_utils import Database
 from sqlite_utils.db import Table
 
 from .migrations import MIGRATIONS
+from .writer_lock import writer_lock
 
 BUSY_TIMEOUT_MS = 5000
 
@@ -30,23 +30,11 @@ def new_row_id(table: Table) -> int:
     return int(table.last_pk)
 
 
-# One lock per database file for this process's writers (see `writing`). Re-entrant, so a
-# nested `writing` still fails as SQLite makes it fail, instead of waiting on itself.
-_WRITER_LOCKS: dict[str, threading.RLock] = {}
-_WRITER_LOCKS_GUARD = threading.Lock()
-
-
-def _writer_lock(path: str | Path) -> threading.RLock:
-    key = str(Path(path).resolve())
-    with _WRITER_LOCKS_GUARD:
-        return _WRITER_LOCKS.setdefault(key, threading.RLock())
-
-
 def connect(path: str | Path) -> Database:
     """Open the database with the station's pragmas (durable, checked, patient)."""
     conn = sqlite3.connect(str(path), timeout=BUSY_TIMEOUT_MS / 1000)
     db = Database(conn)
-    db.writer_lock = _writer_lock(path)  # type: ignore[attr-defined]
+    db.writer_lock = writer_lock(path)  # type: ignore[attr-defined]
     conn.execute(f"PRAGMA busy_timeout = {BUSY_TIMEOUT_MS}")
     conn.execute("PRAGMA foreign_keys = ON")
     # FULL: an acknowledged event survives a power cut (NORMAL may lose the last one in WAL).
@@ -72,16 +60,11 @@ def migrate(db: Database) -> list[str]:
 
 @contextmanager
 def writing(db: Database) -> Iterator[Database]:
-    """A read-then-write transaction taken with BEGIN IMMEDIATE.
-
-    Writers in this process first queue on a lock of their own: SQLite's busy handler
-    waits for a held write lock by sleeping in growing steps (up to 100 ms) rather than
-    being woken, so under many tablets' writes the waiters, not the writes, made the slow
-    answers (bench/load.py). Another process still meets the busy timeout as before.
-    """
+    """A read-then-write transaction taken with BEGIN IMMEDIATE, after the station's own
+    writer queue (`writer_lock`: woken at once, where SQLite's busy handler sleeps)."""
     lock = getattr(db, "writer_lock", None)
     if lock is None:
-        lock = db.writer_lock = _writer_lock(_main_file(db))  # type: ignore[attr-defined]
+        lock = db.writer_lock = writer_lock(_main_file(db))  # type: ignore[attr-defined]
     with lock:
         db.conn.execute("BEGIN IMMEDIATE")
         try:

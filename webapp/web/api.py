@@ -150,7 +150,8 @@ def healthz() -> Any:
 @bp.get("/api/openapi.json")
 @public
 def openapi() -> Any:
-    return jsonify(openapi_document(JobIn, EventIn))
+    return jsonify(openapi_document(JobIn, EventIn,
+                                    current_app.config["SESSION_COOKIE_NAME"]))
 
 
 @bp.get("/api/fleet")

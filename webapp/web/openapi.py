@@ -219,7 +219,9 @@ def _event_in(event_in: type[BaseModel]) -> dict[str, Any]:
             "discriminator": {"propertyName": "kind"}}
 
 
-def openapi_document(job_in: type[BaseModel], event_in: type[BaseModel]) -> dict[str, Any]:
+def openapi_document(job_in: type[BaseModel], event_in: type[BaseModel],
+                     cookie_name: str = "session") -> dict[str, Any]:
+    """The document; `cookie_name` is the session cookie's (`__Host-session` over HTTPS)."""
     data_schemas, shared = _event_data_schemas()
     job_id = [{"name": "job_id", "in": "path", "required": True,
                "schema": {"type": "integer", "minimum": 0, "maximum": 2**63 - 1}}]
@@ -231,7 +233,7 @@ def openapi_document(job_in: type[BaseModel], event_in: type[BaseModel]) -> dict
                                 "csrf-token as the X-CSRFToken header. Bodies up to 256 KB."},
         "components": {
             "securitySchemes": {
-                "session": {"type": "apiKey", "in": "cookie", "name": "session"},
+                "session": {"type": "apiKey", "in": "cookie", "name": cookie_name},
                 "csrf": {"type": "apiKey", "in": "header", "name": "X-CSRFToken"}},
             "schemas": {"JobIn": job_in.model_json_schema(), "EventIn": _event_in(event_in),
                         "Event": _EVENT, "Job": _JOB, "Fleet": _FLEET, "Refusal": _REFUSAL,
