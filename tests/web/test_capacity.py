@@ -5,23 +5,19 @@ from __future__ import annotations
 
 import http.client
 import json
-import os
-import resource
 import socket
 import sqlite3
 import ssl
-import subprocess
-import sys
 import threading
 import time
-from collections.abc import Iterator
-from contextlib import ExitStack, contextmanager
+from contextlib import ExitStack
 from pathlib import Path
 
 import pytest
 from click.testing import CliRunner
 
 from tests.https_station import free_port, serving_https
+from tests.station_process import ROOT, healthz, serving
 from webapp import store
 from webapp.cli import cli
 from webapp.serving.limits import CONNECTION_LIMIT, PER_ADDRESS_LIMIT, SPARE_FILES, Limits
@@ -31,45 +27,6 @@ FLOODER = "127.0.0.1"
 # default local table), so a client bound here is another address to the server.
 OTHER_CLIENT = "127.0.0.2"
 IDLE, SLOW = 150, 20  # the flood: connections that send nothing, and half a request line
-# The server runs this checkout's code, whatever the venv's editable install points at.
-ROOT = str(Path(__file__).resolve().parents[2])
-
-
-@contextmanager
-def serving(db_path: Path, folder: Path, settings: dict[str, float] | None = None,
-            open_files_soft: int | None = None) -> Iterator[tuple[int, subprocess.Popen]]:
-    """`sparkward serve` on a free port, `settings` in the instance file; yields (port,
-    process) once it accepts connections, and stops it afterwards."""
-    port = free_port()
-    instance = folder / "instance"
-    instance.mkdir(exist_ok=True)
-    (instance / "sparkward.toml").write_text(
-        "".join(f"{key} = {value}\n" for key, value in (settings or {}).items()))
-    env = {**os.environ, "SPARKWARD_INSTANCE": str(instance), "PYTHONUNBUFFERED": "1",
-           "PYTHONPATH": ROOT}
-    env.pop("SPARKWARD_DB", None)
-    log = folder / "serve.log"
-
-    def lower_open_files() -> None:  # as a fresh login shell would start it
-        if open_files_soft is not None:
-            resource.setrlimit(resource.RLIMIT_NOFILE,
-                               (open_files_soft, resource.getrlimit(resource.RLIMIT_NOFILE)[1]))
-
-    with log.open("w") as output:
-        server = subprocess.Popen(
-            [str(Path(sys.executable).with_name("sparkward")), "serve", "--port", str(port),
-             "--db", str(db_path)], stdout=output, stderr=subprocess.STDOUT, env=env,
-            cwd=folder, preexec_fn=lower_open_files)
-    try:
-        deadline = time.monotonic() + 15
-        while "press Ctrl+C" not in log.read_text():
-            assert server.poll() is None, log.read_text()
-            assert time.monotonic() < deadline, "not serving in 15 s:\n" + log.read_text()
-            time.sleep(0.1)
-        yield port, server
-    finally:
-        server.terminate()
-        server.wait(timeout=10)
 
 
 def _flood(stack: ExitStack, port: int) -> list[socket.socket]:
@@ -82,22 +39,6 @@ def _flood(stack: ExitStack, port: int) -> list[socket.socket]:
             sock.sendall(b"GET /healthz HT")
         sockets.append(sock)
     return sockets
-
-
-def _healthz(port: int, source: str, timeout: float = 1.0) -> dict:
-    """GET /healthz on a fresh connection from `source`; fails unless answered in `timeout`."""
-    connection = http.client.HTTPConnection("127.0.0.1", port, timeout=timeout,
-                                            source_address=(source, 0))
-    started = time.monotonic()
-    try:
-        connection.request("GET", "/healthz")
-        answer = connection.getresponse()
-        body = answer.read()
-    finally:
-        connection.close()
-    assert time.monotonic() - started < timeout
-    assert answer.status == 200
-    return json.loads(body)
 
 
 def _closed_by_server(sock: socket.socket, wait: float) -> bool:
@@ -126,8 +67,9 @@ def _open_count(sockets: list[socket.socket], expected: int) -> int:
 
 
 def test_one_address_flooding_cannot_stall_another(db_path, tmp_path):
-    with serving(db_path, tmp_path, open_files_soft=1024) as (port, server), \
-            ExitStack() as stack:
+    # Two worker processes: the flooder's share is counted across both.
+    with serving(db_path, tmp_path, {"SERVER_WORKERS": 2},
+                 open_files_soft=1024) as (port, server), ExitStack() as stack:
         # The server raised its own open-file limit to cover its connection limit.
         limits = Path(f"/proc/{server.pid}/limits").read_text()
         soft = int(next(line for line in limits.splitlines()
@@ -136,12 +78,12 @@ def test_one_address_flooding_cannot_stall_another(db_path, tmp_path):
         assert f"Open-file limit raised from 1024 to {soft}" in (tmp_path / "serve.log").read_text()
 
         flood = _flood(stack, port)
-        assert _healthz(port, OTHER_CLIENT)["status"] == "ok"
+        assert healthz(port, OTHER_CLIENT)["status"] == "ok"
         # The flooder keeps exactly its share; the rest were closed at once.
         assert _open_count(flood, PER_ADDRESS_LIMIT) == PER_ADDRESS_LIMIT
         fresh = stack.enter_context(socket.create_connection((FLOODER, port), timeout=2))
         assert _closed_by_server(fresh, 2.0)
-        assert _healthz(port, OTHER_CLIENT)["status"] == "ok"
+        assert healthz(port, OTHER_CLIENT)["status"] == "ok"
 
         # Once its connections close, the address counts from zero again.
         for sock in flood:
@@ -149,7 +91,7 @@ def test_one_address_flooding_cannot_stall_another(db_path, tmp_path):
         deadline = time.monotonic() + 3
         while True:
             try:
-                assert _healthz(port, FLOODER)["status"] == "ok"
+                assert healthz(port, FLOODER)["status"] == "ok"
                 break
             except (ConnectionError, http.client.RemoteDisconnected):
                 assert time.monotonic() < deadline, "the address stayed refused"
@@ -162,7 +104,7 @@ def test_the_station_holds_more_than_waitress_default_of_100_connections(db_path
     with serving(db_path, tmp_path, {"SERVER_PER_ADDRESS_LIMIT": 1000}) as (port, _), \
             ExitStack() as stack:
         flood = _flood(stack, port)
-        assert _healthz(port, FLOODER)["status"] == "ok"
+        assert healthz(port, FLOODER)["status"] == "ok"
         assert _open_count(flood, IDLE + SLOW) == IDLE + SLOW
 
 
