@@ -92,9 +92,21 @@ def register_extensions(app: Flask) -> None:
 
 
 def register_blueprints(app: Flask) -> None:
-    from .web import admin, api, auth, fleet, mechanic, procedures, pwa, station, supervisor
+    from .web import (
+        admin,
+        api,
+        auth,
+        carry,
+        fleet,
+        mechanic,
+        procedures,
+        pwa,
+        station,
+        supervisor,
+    )
 
-    for room in (auth, mechanic, fleet, api, procedures, supervisor, admin, pwa, station):
+    for room in (auth, mechanic, carry, fleet, api, procedures, supervisor, admin, pwa,
+                 station):
         app.register_blueprint(room.bp)
 
 

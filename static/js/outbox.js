@@ -332,9 +332,14 @@
   var channel = "BroadcastChannel" in window ? new BroadcastChannel("sparkward-outbox") : null;
   function changed() {
     if (channel) channel.postMessage("changed");
+    // This page's tablet copy of the job (static/js/tablet_job.js) follows the outbox.
+    document.dispatchEvent(new CustomEvent("sparkward:outbox-changed"));
     return render();
   }
-  if (channel) channel.onmessage = function () { render(); };
+  if (channel) channel.onmessage = function () {
+    document.dispatchEvent(new CustomEvent("sparkward:outbox-changed"));
+    render();
+  };
 
   // ---- Keeping an entry ----
   function queueFrom(detail, behind) {
@@ -346,8 +351,8 @@
         ? "It waits behind the entries made before it; all are sent, in order, as soon " +
           "as the station can be reached."
         : "It is sent, in order, as soon as the station can be reached.";
-      say(lead, how + " The next step appears once the station has it: the station checks " +
-        "every entry when it arrives, and nothing is passed on this tablet.");
+      say(lead, how + " The station checks every entry when it arrives, and its answer " +
+        "wins; where the tablet carries the job, the next step is shown from its copy.");
       return changed();
     }).then(function () {
       if (behind) replay();

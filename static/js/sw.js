@@ -5,7 +5,7 @@
 "use strict";
 
 // Bump when SHELL or this file changes: the new worker fills fresh caches, the old go.
-const VERSION = "v6";
+const VERSION = "v7";
 const SHELL_CACHE = "sparkward-shell-" + VERSION;
 const PAGES_CACHE = "sparkward-pages-" + VERSION;
 const OFFLINE_PAGE = "/offline";  // rendered by the station, cached at install
@@ -15,6 +15,7 @@ const SHELL = [
   "/static/vendor/htmx-2.0.11.min.js",
   "/static/js/sparkward.js",
   "/static/js/outbox.js",
+  "/static/js/tablet_job.js",
   "/static/icon.svg",
   "/manifest.webmanifest",
   OFFLINE_PAGE,

@@ -7,6 +7,7 @@ import time
 from datetime import UTC, datetime
 
 import pytest
+from playwright.sync_api import Error as PlaywrightError
 from werkzeug.serving import make_server
 
 from webapp import create_app
@@ -44,10 +45,21 @@ def wait_until(page, predicate: str, timeout_s: float = 10.0) -> None:
     value) until it is true; fail after `timeout_s`. Never give an async predicate to
     `page.wait_for_function`: its promise is truthy, so that wait returns at once."""
     deadline = time.monotonic() + timeout_s
-    while not page.evaluate(predicate):
+    while not _evaluated(page, predicate):
         if time.monotonic() > deadline:
             raise AssertionError(f"still false after {timeout_s} s: {predicate}")
         page.wait_for_timeout(50)
+
+
+def _evaluated(page, predicate: str):
+    """The predicate's value, or False while the page is between two documents (a reload
+    under way destroys the context the predicate ran in: the next poll asks the new one)."""
+    try:
+        return page.evaluate(predicate)
+    except PlaywrightError as error:
+        if "context was destroyed" in str(error) or "navigat" in str(error):
+            return False
+        raise
 
 
 def tap(page, selector: str) -> None:

@@ -69,6 +69,8 @@ def pages_of(app, role: str | None, job_ids: list[int]) -> list[str]:
             continue
         if rule.rule.startswith("/api/") or rule.rule == "/healthz" or FILE_NAME.search(rule.rule):
             continue
+        if rule.endpoint.startswith("carry."):  # JSON: the steps a tablet carries
+            continue
         for job_id in (job_ids if "job_id" in rule.arguments else [None]):
             url = rule.build({**SAMPLE_ARGS, "job_id": job_id}, append_unknown=False)[1]
             if url not in urls:

@@ -4,6 +4,7 @@ station once and in order, and what the station refuses is shown, never dropped.
 from __future__ import annotations
 
 import time
+import uuid
 
 import pytest
 from playwright.sync_api import expect
@@ -16,7 +17,9 @@ from .test_tablet_grade import VIEWPORTS, _audit
 
 # Async predicates: polled with `wait_until` (page.evaluate awaits them), never given to
 # page.wait_for_function (whose truthy promise would end the wait at once).
-OUTBOX_EMPTY = ("async () => (await window.sparkwardOutbox.entries()).length === 0")
+# (Between a reload and the new page's deferred scripts there is no outbox yet: not empty.)
+OUTBOX_EMPTY = ("async () => !!window.sparkwardOutbox && "
+                "(await window.sparkwardOutbox.entries()).length === 0")
 PAGE_SAVED = ("async () => !!(await caches.match(location.href))")
 WORKER_IN_CHARGE = ("() => navigator.serviceWorker.controller !== null && "
                     "navigator.serviceWorker.controller.state === 'activated'")
@@ -84,18 +87,19 @@ def test_a_step_done_offline_waits_on_the_tablet_then_reaches_the_station_once(
     expect(count).to_have_text("1 entry waiting to reach the station")
     saved = page.get_by_test_id("outbox-saved")
     expect(saved).to_contain_text("Saved on this tablet — not yet at the station.")
-    expect(saved).to_contain_text("The next step appears once the station has it")
-    expect(step).to_have_attribute("data-step-kind", "warning")  # nothing passed offline
-    expect(page.get_by_test_id("queued-note")).to_be_visible()
+    expect(saved).to_contain_text("The station checks every entry when it arrives")
+    # The next step comes from the tablet's copy of the job, marked as such.
+    expect(step).to_have_attribute("data-step-kind", "lockout")
+    expect(page.get_by_test_id("tablet-copy")).to_contain_text("not yet at the station")
     _audit(page, "entry saved on the tablet")
     assert _stored(db_path, job_id, event_id) == []
 
-    page.reload()  # still offline: the worker's copy of the job page
+    page.reload()  # still offline: the worker's copy of the job page, and the tablet's copy
     expect(page.get_by_test_id("outbox-notice")).to_contain_text(
         "copy of this page saved on this tablet")
-    expect(step).to_have_attribute("data-step-kind", "warning")
+    expect(step).to_have_attribute("data-step-kind", "lockout")
     expect(count).to_have_text("1 entry waiting to reach the station")
-    expect(page.get_by_test_id("queued-note")).to_be_visible()
+    expect(page.get_by_test_id("progress-kept-lethal-energy-breakers")).to_be_visible()
     _audit(page, "saved copy of the job page, offline")
 
     # A page never opened on this tablet: the station's offline page, with the safety notice
@@ -161,7 +165,7 @@ def test_an_entry_delivered_twice_is_stored_once(browser, live_server, db_path):
 
 
 def test_an_entry_the_station_refuses_on_replay_is_listed_with_its_reason(
-        browser, live_server, db_path):
+        browser, live_server, db_path, station_api):
     context, network, page = _removal_on_a_tablet(browser, live_server, "phone-portrait")
     tap(page, "[data-testid=acknowledge]")
     expect(page.get_by_test_id("step")).to_have_attribute("data-step-kind", "lockout")
@@ -169,12 +173,16 @@ def test_an_entry_the_station_refuses_on_replay_is_listed_with_its_reason(
     count = page.get_by_test_id("outbox-count")
 
     network.cut()
+    # Meanwhile a second mechanic on the same job tags IGN-A at the station: the tablet
+    # cannot know, so its own tag on IGN-A is kept, and refused when it arrives.
+    answer = station_api("mech2").post_json(f"/api/jobs/{job_id}/events", {
+        "id": str(uuid.uuid4()), "kind": "breaker_tagged", "step": "breakers",
+        "data": {"breaker": "IGN-A", "tag": "T-9"}})
+    assert answer.status_code == 201, answer.get_data(as_text=True)
     page.fill("[data-testid=tag-number-IGN-A]", "T-1")
+    done_id = page.input_value("form:has([data-testid=tag-IGN-A]) [name=event_id]")
     tap(page, "[data-testid=tag-IGN-A]")
     expect(count).to_have_text("1 entry waiting to reach the station")
-    done_id = page.input_value("form:has([data-testid=done]) [name=event_id]")
-    tap(page, "[data-testid=done]")  # IGN-B is not tagged: the station will refuse this
-    expect(count).to_have_text("2 entries waiting to reach the station")
 
     network.restore()
     refused = page.get_by_test_id("outbox-refused")
@@ -190,7 +198,7 @@ def test_an_entry_the_station_refuses_on_replay_is_listed_with_its_reason(
     finally:
         db.close()
     expect(page.get_by_test_id("refused-reason")).to_have_text(reason)
-    expect(page.get_by_test_id("refused-entry")).to_contain_text("Tag every breaker first")
+    expect(page.get_by_test_id("refused-entry")).to_contain_text("IGN-A")
     _audit(page, "an entry not accepted by the station")
     assert _stored(db_path, job_id, done_id) == []
 

@@ -17,6 +17,7 @@ from ..station import recording
 from ..store import engines, people, signers
 from ..store import fleet as fleet_store
 from ..store import jobs as job_store
+from .carry import carried_state
 from .common import SUPERVISOR_EVENTS, authority, db, now, page_or_fragment, person, requires
 from .gate_views import gate_context
 from .input_guard import SQLITE_MAX_INT
@@ -76,9 +77,11 @@ def _job_page(job_id: int, error: str | None = None, status: int = 200,
               problem: InputProblem | None = None, entered: Any = None) -> Any:
     job = recording.load_job(db(), job_id)
     names = people.names_by_id(db(), {s.event["person_id"] for s in job.state.steps if s.event})
+    gate = gate_context(db(), job, now())
     return page_or_fragment("mechanic/job.html", "mechanic/_job.html", status=status,
                             job=job.row, state=job.state, current=job.state.next_step,
-                            names=names, error=error, gate=gate_context(db(), job, now()),
+                            names=names, error=error, gate=gate,
+                            carry=carried_state(job, now(), gate, names),
                             warning_s=ON_LIMIT_WARNING_S, problem=problem,
                             entered=entered or {}, today=now().date().isoformat(),
                             station_now=now(), given_release=given_release(job.state),

@@ -1,0 +1,106 @@
+"""The tablet carries the job in real Chromium: offline, the mechanic works on through the
+steps the tablet may record (the WARNING, the lockout with its tags), a reload keeps that
+work, a tag the station would refuse is refused on the tablet, and a step that needs the
+station says so; back online every entry arrives once, in order."""
+
+from __future__ import annotations
+
+import pytest
+from playwright.sync_api import expect
+
+from webapp import store
+from webapp.store import jobs as job_store
+
+from .conftest import open_removal_to_warning, tap, wait_until
+from .test_offline import OUTBOX_EMPTY, PAGE_SAVED, WORKER_IN_CHARGE, Network
+from .test_tablet_grade import VIEWPORTS, _audit
+
+STEPS_KEPT = "async () => !!(await window.sparkwardTabletJob.steps({job}))"
+OUTBOX_SIZE = "async () => (await window.sparkwardOutbox.entries()).length"
+
+
+def _events(db_path, job_id: int) -> list[dict]:
+    db = store.connect(db_path)
+    try:
+        return job_store.events(db, job_id)
+    finally:
+        db.close()
+
+
+@pytest.mark.browser
+def test_offline_the_tablet_works_on_through_the_lockout_and_the_station_gets_it_all_once(
+        browser, live_server, db_path):
+    context = browser.new_context(viewport=VIEWPORTS["tablet-landscape"], has_touch=True)
+    network = Network(context)
+    page = context.new_page()
+    open_removal_to_warning(page, live_server)
+    page.wait_for_function(WORKER_IN_CHARGE, polling=50)
+    page.reload()  # through the worker, which keeps a copy of the job page
+    wait_until(page, PAGE_SAVED)
+    job_id = int(page.get_by_test_id("job").get_attribute("data-job-id"))
+    wait_until(page, STEPS_KEPT.format(job=job_id))  # the job's steps are on the tablet
+    before = len(_events(db_path, job_id))
+    step = page.get_by_test_id("step")
+
+    network.cut()
+    tap(page, "[data-testid=acknowledge]")
+    # The next step appears from the tablet's copy, marked as such.
+    expect(step).to_have_attribute("data-step-id", "breakers")
+    expect(page.get_by_test_id("tablet-copy")).to_contain_text(
+        "1 entry is kept on this tablet, not yet at the station")
+    expect(page.get_by_test_id("progress-kept-lethal-energy-breakers")).to_be_visible()
+    _audit(page, "lockout from the tablet's copy")
+
+    page.fill("[data-testid=tag-number-IGN-A]", "T-7")
+    tap(page, "[data-testid=tag-IGN-A]")
+    expect(page.get_by_test_id("tagged-IGN-A")).to_contain_text("Tagged T-7")
+    # The same tag number on the other breaker: the station's rule, applied on the tablet.
+    page.fill("[data-testid=tag-number-IGN-B]", "T-7")
+    page.click("[data-testid=tag-IGN-B]")
+    expect(page.get_by_test_id("tablet-refusal")).to_have_text(
+        "✗ Tag T-7 already hangs on breaker IGN-A; each tag has its own number.")
+    assert page.evaluate(OUTBOX_SIZE) == 2  # the refused tag was not kept
+    expect(page.get_by_test_id("done")).to_have_text("Tag every breaker first (IGN-B)")
+
+    page.reload()  # still offline: the worker's old copy, brought up to date by the tablet
+    expect(step).to_have_attribute("data-step-id", "breakers")
+    expect(page.get_by_test_id("tagged-IGN-A")).to_contain_text("Tagged T-7")
+    page.fill("[data-testid=tag-number-IGN-B]", "T-8")
+    tap(page, "[data-testid=tag-IGN-B]")
+    expect(page.get_by_test_id("done")).to_have_text(
+        "Lockout confirmed: every breaker open and tagged")
+    tap(page, "[data-testid=done]")
+    expect(step).to_have_attribute("data-step-id", "input-first")
+    tap(page, "[data-testid=continue]")
+    expect(step).to_have_attribute("data-step-id", "disconnect-input")
+    tap(page, "[data-testid=done]")
+    # The discharge wait is the station's to time: the tablet says so and offers nothing.
+    expect(step).to_have_attribute("data-step-kind", "discharge_wait")
+    expect(page.get_by_test_id("needs-station")).to_contain_text("This step needs the station.")
+    expect(page.locator("[data-testid=step] form")).to_have_count(0)
+    assert page.evaluate(OUTBOX_SIZE) == 6
+    assert len(_events(db_path, job_id)) == before  # nothing reached the station yet
+
+    page.close()  # the app closed and opened again, still offline
+    page = context.new_page()
+    page.goto(f"{live_server}/jobs/{job_id}")
+    step = page.get_by_test_id("step")
+    expect(step).to_have_attribute("data-step-kind", "discharge_wait")
+    expect(page.get_by_test_id("progress-kept-breakers")).to_be_visible()
+
+    network.restore()
+    # The entries go; the page then reloads from the station (it was the worker's copy).
+    expect(step).to_have_attribute("data-step-id", "discharge", timeout=30_000)
+    expect(page.get_by_test_id("outbox-count")).to_be_hidden()
+    wait_until(page, OUTBOX_EMPTY)
+    expect(page.get_by_test_id("tablet-copy")).to_have_count(0)  # the station's own screen
+    events = _events(db_path, job_id)[before:]
+    assert [(e["kind"], e["step_id"]) for e in events] == [
+        ("acknowledged", "lethal-energy-breakers"),
+        ("breaker_tagged", "breakers"), ("breaker_tagged", "breakers"),
+        ("step_done", "breakers"), ("step_done", "input-first"),
+        ("step_done", "disconnect-input")]
+    assert [e["data"].get("tag") for e in events if e["kind"] == "breaker_tagged"] == [
+        "T-7", "T-8"]
+    assert len({e["id"] for e in events}) == len(events)
+    context.close()

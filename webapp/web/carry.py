@@ -1,0 +1,115 @@
+"""What a tablet carries of a job, to work on while the station cannot be reached.
+
+Two parts. The job's steps for its configuration are fixed once the job is open (its pinned
+revision, its exciter and plug types): the tablet fetches them once per job
+(`GET /jobs/<id>/carry`), each with its heading and text rendered by the same template as
+the station's page, whether the tablet may record it offline, and the data its offline form
+needs. The job as the station knows it now (steps done, by whom and when, the tags hanging
+on the engine) rides in every job page and fragment (`carried_state`), so each answer from
+the station brings the tablet's copy up to date. The tablet's engine (static/js/
+tablet_job.js) works on from both; the station checks every entry again when it arrives,
+and its answer wins.
+"""
+
+from __future__ import annotations
+
+from datetime import datetime
+from typing import Any
+
+from flask import Blueprint, jsonify, render_template, url_for
+
+from ..domain.execution import JobState, StepProgress
+from ..domain.procedures import Advisory, Check, Lockout, Step
+from ..station import recording
+from .common import db, person, requires
+
+bp = Blueprint("carry", __name__)
+
+# Why a step kind waits for the station, in the mechanic's words. Every kind not named in
+# `_offline` is one of these; the screen shows the reason on the tablet.
+NEEDS_STATION = {
+    "discharge_wait": "The discharge wait is timed by the station's clock: it starts when "
+                      "the station has the disconnection.",
+    "reading": "A reading is judged against its limits, units and instrument by the station.",
+    "torque": "A torque value is judged against its limits by the station.",
+    "spark_count": "A spark count is timed and judged by the station.",
+    "ignition_run": "Energising is held to the exciter's duty cycle by the station's clock.",
+    "part": "A part is checked against the engine's records by the station.",
+    "sign": "A signature needs the station itself: your PIN is never kept on the tablet.",
+    "lead": "Handling the lead needs the station to check when it was last grounded.",
+    "release": "Taking tags off is checked against every job on the engine by the station.",
+}
+
+
+def _offline(step: Step) -> str | None:
+    """None when the tablet may record `step` away from the station, else why not."""
+    if isinstance(step, Advisory):
+        return None
+    if isinstance(step, Check):
+        return NEEDS_STATION["lead"] if step.handles_lead else None
+    if isinstance(step, Lockout):
+        return None if step.action == "apply" else NEEDS_STATION["release"]
+    return NEEDS_STATION.get(step.kind, "This step needs the station.")
+
+
+def _form_data(step: Step) -> dict[str, Any]:
+    """What the tablet's offline form for `step` needs beyond its heading and text."""
+    if isinstance(step, Check):
+        return {"items": list(step.items or []), "power": step.power,
+                "grounds_lead": step.grounds_lead, "ignition_off": step.ignition_off,
+                "opens_item": step.opens_item.text if step.opens_item else None}
+    if isinstance(step, Lockout):
+        return {"action": step.action, "confirm_existing": step.confirm_existing,
+                "breakers": [{"id": b.id, "label": b.label} for b in step.breakers]}
+    return {}
+
+
+def carried_steps(job_id: int) -> dict[str, Any]:
+    job = recording.load_job(db(), job_id)
+    state = job.state
+    steps = []
+    for progress in state.steps:
+        step = progress.step
+        why_not = _offline(step)
+        steps.append({
+            "id": step.id, "kind": step.kind, "number": progress.number,
+            "offline": why_not is None, "needs_station": why_not,
+            "head": render_template("mechanic/_step_head.html", current=progress,
+                                    step=step, state=state),
+            **_form_data(step)})
+    return {"job_id": job_id, "revision": job.row["revision_hash"],
+            "record_url": url_for("mechanic.record", job_id=job_id), "steps": steps}
+
+
+@bp.get("/jobs/<int:job_id>/carry")
+@requires("mechanic", "supervisor")
+def job_steps(job_id: int) -> Any:
+    """The job's steps for the tablet (fixed for the job's life: the tablet keeps them)."""
+    return jsonify(carried_steps(job_id))
+
+
+def carried_state(job: recording.Job, station_now: datetime, gate: dict[str, Any],
+                  names: dict[int, str]) -> dict[str, Any]:
+    """The job as the station knows it at `station_now`, for the tablet's copy."""
+    state: JobState = job.state
+    me = person()
+
+    def done(progress: StepProgress) -> dict[str, Any]:
+        event = progress.event or {}
+        return {"event_id": event.get("id"), "kind": event.get("kind"),
+                "by": names.get(event.get("person_id", 0), "?"),
+                "at": event.get("received_at")}
+
+    nxt = state.next_step
+    return {
+        "format": 1, "job_id": job.row["id"], "revision": job.row["revision_hash"],
+        "head": {"seq": job.head.get("seq"), "hash": job.head.get("hash")},
+        "station_time": station_now.isoformat(), "person_id": me.id,
+        "status": state.status, "next": nxt.id if nxt else None,
+        "completed": {s.id: done(s) for s in state.steps if s.status == "done"},
+        "awaiting_finding": sorted(state.awaiting_finding),
+        "power_off": state.power_off.station.isoformat() if state.power_off else None,
+        "tags": [{"breaker": v.tag.breaker, "number": v.tag.number, "owner": v.owner,
+                  "mine": v.tag.owner_id == me.id, "counts_here": v.counts_here}
+                 for v in gate["tag_list"]],
+    }
