@@ -111,8 +111,11 @@
       if (!step) return;
       var next = order.find(function (id) { return !(id in done); });
       if (f.kind === "breaker_tagged") {
-        tags.push({ breaker: f.breaker, number: String(f.tag || "").trim(), owner: "you",
-                    mine: true, counts_here: true, on_tablet: true });
+        var number = String(f.tag || "").trim();
+        var found = tags.find(function (t) { return t.number === number; });
+        if (found && step.confirm_existing) found.counts_here = true;  // a tag found hanging
+        else tags.push({ breaker: f.breaker, number: number, owner: "you", mine: true,
+                         counts_here: true, this_job: true, on_tablet: true });
         return;
       }
       if (step.id !== next) {
@@ -168,7 +171,7 @@
         here.map(function (t) { return t.number; }).sort().join(", ") +
         " there. Check the number on the tag.";
     }
-    if (here.some(function (t) { return t.counts_here && t.mine; })) {
+    if (here.some(function (t) { return t.this_job; })) {
       return "This job already has a tag on " + breaker + ".";
     }
     return null;
@@ -402,6 +405,8 @@
 
   window.sparkwardTabletJob = {
     refresh: refresh,
+    // The mirrored rules, for the test that holds them to the station's (tests/e2e).
+    rules: { tagRefusal: tagRefusal, completes: completes, breakersLeft: breakersLeft },
     state: function (jobId) { return read("states", jobId); },
     steps: function (jobId) { return read("steps", jobId); },
   };

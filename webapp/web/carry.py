@@ -110,6 +110,7 @@ def carried_state(job: recording.Job, station_now: datetime, gate: dict[str, Any
         "awaiting_finding": sorted(state.awaiting_finding),
         "power_off": state.power_off.station.isoformat() if state.power_off else None,
         "tags": [{"breaker": v.tag.breaker, "number": v.tag.number, "owner": v.owner,
-                  "mine": v.tag.owner_id == me.id, "counts_here": v.counts_here}
+                  "mine": v.tag.owner_id == me.id, "counts_here": v.counts_here,
+                  "this_job": v.tag.job_id == job.row["id"]}
                  for v in gate["tag_list"]],
     }

@@ -1,0 +1,104 @@
+"""The rules the tablet applies offline (static/js/tablet_job.js) give the station's own
+verdicts and words (webapp/domain), case for case, in real Chromium: generated tag entries
+against generated hanging tags, and step completions, each judged by both."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+from hypothesis import HealthCheck, given, seed, settings
+from hypothesis import strategies as st
+
+from webapp.domain import gates
+from webapp.domain.errors import RuleRefusal
+from webapp.domain.procedures import Lockout
+
+from .conftest import log_in
+
+JOB = 7
+BREAKERS = ["IGN-A", "IGN-B", "IGN-C"]
+numbers = st.sampled_from(["T-1", "T-2", " T-1 ", "T-3", "", "   ", "X" * 24, "X" * 25])
+hanging = st.lists(st.tuples(st.sampled_from(["T-1", "T-2", "T-3", "T-4"]),
+                             st.sampled_from(BREAKERS), st.sampled_from([JOB, 8]),
+                             st.booleans()),
+                   max_size=4, unique_by=lambda t: t[0])
+cases = st.tuples(hanging, st.sampled_from(BREAKERS[:2]), numbers, st.booleans())
+
+
+def _station_says(tags, breaker: str, number: str, confirm: bool) -> str | None:
+    step = Lockout(id="breakers", kind="lockout", text="Tag them.", confirm_existing=confirm,
+                   breakers=[{"id": b, "label": b} for b in BREAKERS[:2]])
+    held = {n: gates.Tag(number=n, breaker=b, owner_id=1, job_id=job, applied_by=1,
+                         applied_at="2026-12-01T08:00:00+00:00",
+                         owner_since="2026-12-01T08:00:00+00:00",
+                         confirmed_in=frozenset({JOB}) if confirmed else frozenset())
+            for n, b, job, confirmed in tags}
+    try:
+        gates.check_breaker_tagged(step, {"breaker": breaker, "tag": number}, held, JOB)
+    except RuleRefusal as refusal:
+        return refusal.reason
+    return None
+
+
+def _as_carried(tags) -> list[dict]:
+    """The tags as web/carry.py gives them to the tablet."""
+    return [{"breaker": b, "number": n, "owner": "someone", "mine": False,
+             "counts_here": job == JOB or confirmed, "this_job": job == JOB}
+            for n, b, job, confirmed in tags]
+
+
+@pytest.fixture
+def tablet_page(browser, live_server):
+    context = browser.new_context()
+    page = context.new_page()
+    log_in(page, live_server, "mech1", "demo-mech1")
+    page.wait_for_function("() => !!window.sparkwardTabletJob")
+    yield page
+    context.close()
+
+
+@pytest.mark.browser
+def test_the_tablets_tag_rules_give_the_stations_verdicts_in_its_words(tablet_page):
+    generated = []
+
+    @seed(20261206)
+    @settings(max_examples=300, deadline=None, database=None,
+              suppress_health_check=[HealthCheck.function_scoped_fixture])
+    @given(cases)
+    def collect(case):
+        generated.append(case)
+
+    collect()
+    judged = tablet_page.evaluate(
+        """cases => cases.map(([tags, breaker, number, confirm]) =>
+             window.sparkwardTabletJob.rules.tagRefusal(
+               { tags: tags }, { confirm_existing: confirm }, breaker, number))""",
+        [[_as_carried(tags), breaker, number, confirm]
+         for tags, breaker, number, confirm in generated])
+    differ = [(case, tablet, _station_says(*case)) for case, tablet in zip(generated, judged,
+                                                                          strict=True)
+              if tablet != _station_says(*case)]
+    assert differ == [], json.dumps(differ[:3], indent=1)
+    assert any(v is None for v in judged) and any(v for v in judged)  # both outcomes met
+
+
+@pytest.mark.browser
+def test_a_lockout_counts_as_done_on_the_tablet_exactly_when_the_station_would_pass_it(
+        tablet_page):
+    step = Lockout(id="breakers", kind="lockout", text="Tag them.",
+                   breakers=[{"id": b, "label": b} for b in BREAKERS[:2]])
+    for tags in ([], [("T-1", "IGN-A", JOB, False)],
+                 [("T-1", "IGN-A", JOB, False), ("T-2", "IGN-B", 8, False)],
+                 [("T-1", "IGN-A", JOB, False), ("T-2", "IGN-B", 8, True)],
+                 [("T-1", "IGN-A", 8, True), ("T-2", "IGN-B", JOB, False)]):
+        held = {n: gates.Tag(number=n, breaker=b, owner_id=1, job_id=job, applied_by=1,
+                             applied_at="x", owner_since="x",
+                             confirmed_in=frozenset({JOB}) if c else frozenset())
+                for n, b, job, c in tags}
+        station = gates.lockout_complete(step, held, JOB)
+        tablet = tablet_page.evaluate(
+            "([tags, breakers]) => window.sparkwardTabletJob.rules.breakersLeft("
+            "{ tags: tags }, { breakers: breakers })",
+            [_as_carried(tags), [{"id": b, "label": b} for b in BREAKERS[:2]]])
+        assert tablet == station, tags
