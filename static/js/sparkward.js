@@ -23,7 +23,12 @@
     var s = whole % 60;
     return Math.floor(whole / 60) + ":" + (s < 10 ? "0" : "") + s;
   }
-  var pageStart = Date.now();
+  // Counted from when the station rendered the page: for the tablet's kept copy of a page,
+  // when it was kept (the worker's meta tag), so a reload offline does not start a wait,
+  // a window or a clock over again.
+  var keptAt = document.querySelector('meta[name="sparkward-saved-copy"]');
+  var pageStart = Math.min(Date.now(),
+                           (keptAt && Date.parse(keptAt.getAttribute("content"))) || Date.now());
   function elapsed() { return (Date.now() - pageStart) / 1000; }
   function tick() {
     var gone = elapsed();

@@ -104,3 +104,37 @@ def test_offline_the_tablet_works_on_through_the_lockout_and_the_station_gets_it
         "T-7", "T-8"]
     assert len({e["id"] for e in events}) == len(events)
     context.close()
+
+
+def _seconds(text: str) -> int:
+    minutes, seconds = text.split(":")
+    return int(minutes) * 60 + int(seconds)
+
+
+@pytest.mark.browser
+def test_a_countdown_on_the_kept_copy_goes_on_from_when_the_page_was_kept(
+        browser, live_server):
+    context = browser.new_context(viewport=VIEWPORTS["tablet-landscape"])
+    network = Network(context)
+    page = context.new_page()
+    open_removal_to_warning(page, live_server)
+    tap(page, "[data-testid=acknowledge]")
+    for breaker, tag in (("IGN-A", "T-21"), ("IGN-B", "T-22")):
+        page.fill(f"[data-testid=tag-number-{breaker}]", tag)
+        tap(page, f"[data-testid=tag-{breaker}]")
+    tap(page, "[data-testid=done]")
+    tap(page, "[data-testid=continue]")
+    tap(page, "[data-testid=done]")  # the input is off: the station's wait starts
+    page.wait_for_function(WORKER_IN_CHARGE, polling=50)
+    page.reload()  # the worker keeps this copy; the station's clock stands still
+    wait_until(page, PAGE_SAVED)
+    countdown = page.get_by_test_id("countdown")
+    expect(countdown).to_have_text("2:00")
+
+    page.wait_for_timeout(4000)
+    network.cut()
+    page.reload()  # the kept copy, 4 s later
+    expect(page.get_by_test_id("outbox-notice")).to_contain_text("saved on this tablet")
+    page.wait_for_timeout(300)  # a tick of the page's clock
+    assert _seconds(countdown.inner_text()) <= 117  # not 2:00 again
+    context.close()
