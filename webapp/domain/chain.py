@@ -12,9 +12,16 @@ CHAINED_FIELDS = ("id", "job_id", "seq", "step_id", "kind", "data", "person_id",
                   "device_time", "received_at", "prev_hash")
 
 
+# Chained only when present: an entry that waited on a tablet carries when the tablet sent
+# it (domain/placement.py); every other event's digest is as it always was.
+CHAINED_WHEN_PRESENT = ("device_sent",)
+
+
 def event_digest(event: Mapping[str, Any]) -> str:
     """SHA-256 over the chained fields of one event, as canonical JSON."""
     body = {name: event[name] for name in CHAINED_FIELDS}
+    body.update({name: event[name] for name in CHAINED_WHEN_PRESENT
+                 if event.get(name) is not None})
     text = json.dumps(body, sort_keys=True, separators=(",", ":"), ensure_ascii=False)
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 

@@ -175,7 +175,7 @@ def _plug_at_work(state: JobState) -> dict[str, Any]:
 class Circumstances:
     """What a rule needs beyond the job's own events: clocks, the person, the engine's tags."""
 
-    now: datetime
+    now: datetime      # when the entry was made, by the station's clock (placed: placement.py)
     device_now: datetime | None
     person_id: int
     job_id: int
@@ -188,6 +188,7 @@ class Circumstances:
     whereabouts: Whereabouts = Whereabouts()      # of the serial an install step names
     roles_of: Mapping[int, tuple[str, ...]] = field(default_factory=dict)  # people it names
     instrument: Instrument | None = None  # the register's entry for the ID a reading names
+    counted: bool = False  # `now` was placed by the tablet's count of the entry's wait
 
 
 def needs_engine_tags(state: JobState, kind: str, step_id: str | None) -> bool:
@@ -365,7 +366,8 @@ def _check_other_completion(state: JobState, target: StepProgress, data: Mapping
         fitted = exciter_rows.fitted_exciters(at.engine, state.configuration.components,
                                               _job_channels(state))
         need = gates.discharge_requirement(step, [f.part_number for f in fitted])
-        gates.check_discharge_served(need, state.power_off, at.now, at.device_now)
+        gates.check_discharge_served(need, state.power_off, at.now, at.device_now,
+                                     counted=at.counted)
         if need.capacitor_from:
             return {**data, "capacitor_from": need.capacitor_from}
     elif isinstance(step, IgnitionRun):

@@ -14,7 +14,7 @@ from datetime import datetime
 from functools import cached_property
 from typing import Any, Literal
 
-from . import gates, isolation, torque
+from . import gates, isolation, placement, torque
 from .errors import RuleRefusal
 from .gates import ChannelClock, PowerOff
 from .procedures import (
@@ -246,9 +246,12 @@ def _refuse_mixed_types(procedure: Procedure, at_work: list[Mapping[str, Any]],
 
 
 def _times(event: Mapping[str, Any]) -> PowerOff:
-    device = event.get("device_time")
-    return PowerOff(datetime.fromisoformat(event["received_at"]),
-                    datetime.fromisoformat(device) if device else None)
+    """When the event's moment was, by the station's clock (placed, for an entry that waited
+    on a tablet: domain/placement.py) and by the device's."""
+    received = datetime.fromisoformat(event["received_at"])
+    device = placement.parse(event.get("device_time"))
+    made = placement.made_at(received, device, placement.parse(event.get("device_sent")))
+    return PowerOff(made, device, by_count=made != received)
 
 
 def run_channels(step: IgnitionRun) -> tuple[str, ...]:

@@ -16,6 +16,7 @@ from typing import Any
 from . import energy
 from .errors import RuleRefusal
 from .exciter_rows import capacitor_rows
+from .placement import COUNTED_WAIT_MARGIN_S
 from .procedures import DischargeWait, DutyCycle, Lockout
 from .units import parse_quantity, seconds
 
@@ -227,6 +228,8 @@ class PowerOff:
 
     station: datetime
     device: datetime | None
+    # Placed by the tablet's count of how long its entry waited (domain/placement.py).
+    by_count: bool = False
 
 
 def wait_remaining(required_s: float, power_off: PowerOff, now: datetime,
@@ -239,11 +242,16 @@ def wait_remaining(required_s: float, power_off: PowerOff, now: datetime,
 
 
 def check_discharge_served(requirement: DischargeRequirement, power_off: PowerOff | None,
-                           now: datetime, device_now: datetime | None) -> None:
+                           now: datetime, device_now: datetime | None,
+                           counted: bool = False) -> None:
+    """The wait served by the station's clock and the device's; when either end of it was
+    placed by a tablet's count, with the margin that count asks (domain/placement.py)."""
     if power_off is None:
         raise RuleRefusal("power_not_removed", "The exciter's input is not recorded as "
                           "disconnected: disconnect it first; the wait counts from then.")
-    left = wait_remaining(requirement.required_s, power_off, now, device_now)
+    required = requirement.required_s + (
+        COUNTED_WAIT_MARGIN_S if counted or power_off.by_count else 0.0)
+    left = wait_remaining(required, power_off, now, device_now)
     if left > 0:
         whole = int(left) + (left % 1 > 0)
         raise RuleRefusal("discharge_wait", f"The discharge wait is not over: {_mmss(whole)} "

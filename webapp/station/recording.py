@@ -12,7 +12,7 @@ from datetime import datetime
 from typing import Any, Literal
 
 from .. import store
-from ..domain import gates
+from ..domain import gates, placement
 from ..domain.chain import GENESIS, event_digest
 from ..domain.checks import Circumstances, check_event, job_progress, needs_engine_tags
 from ..domain.errors import RuleRefusal
@@ -49,12 +49,12 @@ class Outcome:
 
 def _chain(db: store.Database, *, job_id: int, event_id: str, kind: str, step_id: str | None,
            data: dict[str, Any], person_id: int, device_time: str | None, now: datetime,
-           last: dict[str, Any] | None) -> dict[str, Any]:
+           last: dict[str, Any] | None, device_sent: str | None = None) -> dict[str, Any]:
     """Append an event linked to `last` (the job's latest event, None for the first)."""
     record = {"id": event_id, "job_id": job_id, "seq": last["seq"] + 1 if last else 1,
               "step_id": step_id, "kind": kind, "data": data, "person_id": person_id,
-              "device_time": device_time, "received_at": now.isoformat(),
-              "prev_hash": last["hash"] if last else GENESIS}
+              "device_time": device_time, "device_sent": device_sent,
+              "received_at": now.isoformat(), "prev_hash": last["hash"] if last else GENESIS}
     record["hash"] = event_digest(record)
     jobs.append_event(db, record)
     return record
@@ -87,13 +87,18 @@ def open_job(db: store.Database, *, procedure_id: str, engine_id: int, channel: 
 def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
                  step_id: str | None, data: dict[str, Any], device_time: str | None,
                  person: Person, now: datetime,
-                 authority: StationAuthority | None = None) -> Outcome:
+                 authority: StationAuthority | None = None,
+                 device_sent: str | None = None) -> Outcome:
     """Check an event against the rules and append it; the same UUID twice stores once.
 
     A signature (`signed`) carries the person's PIN in `data`; it is used to unseal their
     key and sign the PDF record, and is never stored. A tag's hand-over or a supervisor's
     authorisation for an absent owner carries the PIN too: it proves who consents (wrong
-    PINs counted and throttled as for signatures); nothing is signed or printed for it."""
+    PINs counted and throttled as for signatures); nothing is signed or printed for it.
+
+    `device_sent` is the device's clock when it sent an entry that waited on it: with
+    `device_time` it places the entry when it was made (domain/placement.py). It is not part
+    of what makes two sendings the same entry (each sending has its own)."""
     problem = check_event_data(kind, data)
     if problem is not None:  # shape first: junk never reaches the rules or the log
         return Outcome("invalid", problem=problem)
@@ -135,7 +140,8 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
             return Outcome("refused", event=existing, refusal=reused)
         job = load_job(db, job_id)
         try:
-            at = _circumstances(db, job, kind, step_id, data, device_time, person, now)
+            at = _circumstances(db, job, kind, step_id, data, device_time, person, now,
+                                device_sent)
             data = dict(check_event(job.state, kind, step_id, data, at))
         except InputProblem as problem:
             return Outcome("invalid", problem=problem)
@@ -155,7 +161,7 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
                 printed = None  # someone wrote in between: print again, now under the lock
         record = _chain(db, job_id=job_id, event_id=event_id, kind=kind, step_id=step_id,
                         data=data, person_id=person.id, device_time=device_time, now=now,
-                        last=job.head)
+                        last=job.head, device_sent=device_sent)
         jobs.remember_request(db, event_id, digest)
         after = apply_event(job.state, record)
         if at.engine is not None:
@@ -187,14 +193,18 @@ def _same_as_stored(db: store.Database, existing: dict[str, Any], job_id: int, k
 
 def _circumstances(db: store.Database, job: Job, kind: str, step_id: str | None,
                    data: dict[str, Any], device_time: str | None, person: Person,
-                   now: datetime) -> Circumstances:
+                   now: datetime, device_sent: str | None = None) -> Circumstances:
     """What the rules need to know beyond the job's own log (the engine's state and tags, who
-    is who); the engine's state is read once, from its kept value."""
+    is who); the engine's state is read once, from its kept value. The rules' `now` is when
+    the entry was made, placed by the tablet's count for one that waited on it."""
     on_engine = _engine_circumstances(db, job, kind, step_id, data)
     tags = (dict(on_engine["engine"].tags)
             if needs_engine_tags(job.state, kind, step_id) else {})
     roles_of = _named_person(db, data) if kind in gates.CONSENT_KINDS else {}
-    return Circumstances(now=now, device_now=_device_time(device_time), person_id=person.id,
+    device_now = _device_time(device_time)
+    made = placement.made_at(now, device_now, _device_time(device_sent))
+    return Circumstances(now=made, counted=made != now, device_now=device_now,
+                         person_id=person.id,
                          job_id=job.row["id"], tags=tags,
                          names=people.names_by_id(db, {t.owner_id for t in tags.values()}),
                          roles=person.roles, roles_of=roles_of,

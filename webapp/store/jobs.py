@@ -80,10 +80,12 @@ def append_event(db: Database, record: dict) -> None:
     """Append one fully formed event (hash included). Ignores a UUID already stored."""
     db.execute(
         "insert or ignore into events (id, job_id, seq, step_id, kind, data, person_id, "
-        "device_time, received_at, prev_hash, hash) values (?,?,?,?,?,?,?,?,?,?,?)",
+        "device_time, device_sent, received_at, prev_hash, hash) "
+        "values (?,?,?,?,?,?,?,?,?,?,?,?)",
         [record["id"], record["job_id"], record["seq"], record["step_id"], record["kind"],
          json.dumps(record["data"], sort_keys=True), record["person_id"],
-         record["device_time"], record["received_at"], record["prev_hash"], record["hash"]])
+         record["device_time"], record.get("device_sent"), record["received_at"],
+         record["prev_hash"], record["hash"]])
 
 
 def remember_request(db: Database, event_id: str, digest: str) -> None:

@@ -218,3 +218,11 @@ def event_requests(db: Database) -> None:
     # cannot tell, since the station keeps what it derived, not every field sent.
     db.table("event_requests").create({"event_id": str, "digest": str}, pk="event_id",
                                       not_null={"digest"})
+
+
+@MIGRATIONS(name="0012_device_sent")
+def device_sent(db: Database) -> None:
+    # For an entry that waited on a tablet: the tablet's clock when it sent the entry. With
+    # `device_time` (its clock when the entry was made) it gives how long the entry waited,
+    # by the tablet's count (domain/placement.py); chained when present (domain/chain.py).
+    db.table("events").add_column("device_sent", str)

@@ -44,6 +44,8 @@ class EventIn(BaseModel):
     step: str | None = None
     data: dict[str, Any] = Field(default_factory=dict)
     device_time: AwareDatetime | None = None
+    # For an entry that waited on the device: its clock when it sent it (placement.py).
+    sent_time: AwareDatetime | None = None
 
 
 def _malformed(err: ValidationError) -> Any:
@@ -75,6 +77,7 @@ def event_json(event: dict[str, Any]) -> dict[str, Any]:
     return {"id": event["id"], "job": event["job_id"], "seq": event["seq"],
             "step": event["step_id"], "kind": event["kind"], "data": event["data"],
             "person": event["person_id"], "device_time": event["device_time"],
+            "device_sent": event.get("device_sent"),
             "received_at": event["received_at"], "prev_hash": event["prev_hash"],
             "hash": event["hash"]}
 
@@ -204,7 +207,9 @@ def post_event(job_id: int) -> Any:
     outcome = recording.record_event(db(), job_id, event_id=str(body.id), kind=body.kind,
                                      step_id=body.step, data=body.data,
                                      device_time=device_time, person=person(), now=now(),
-                                     authority=authority())
+                                     authority=authority(),
+                                     device_sent=(body.sent_time.isoformat()
+                                                  if body.sent_time else None))
     if outcome.status == "invalid":
         assert outcome.problem is not None
         return jsonify({"rule": "bad_input", "reason": outcome.problem.message + " Nothing "

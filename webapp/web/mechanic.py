@@ -234,7 +234,8 @@ def record(job_id: int, step_id: str | None = None) -> Any:
     outcome = recording.record_event(
         db(), job_id, event_id=event_id, kind=kind, step_id=step_id or form.get("step") or None,
         data=_event_data(kind, form), device_time=_device_time(form.get("device_time")),
-        person=person(), now=now(), authority=authority())
+        person=person(), now=now(), authority=authority(),
+        device_sent=_device_time(form.get("sent_time")))
     if outcome.status == "invalid":
         assert outcome.problem is not None
         return _job_page(job_id, problem=outcome.problem, entered=form, status=422)

@@ -100,6 +100,9 @@ _EVENT = {
         "kind": {"type": "string", "enum": list(EVENT_KINDS)},
         "data": {"type": "object"}, "person": {"type": "integer"},
         "device_time": {"type": ["string", "null"], "format": "date-time"},
+        "device_sent": {"type": ["string", "null"], "format": "date-time",
+                        "description": "the device's clock when it sent an entry that waited "
+                                       "on it (null when sent as made)"},
         "received_at": {"type": "string", "format": "date-time"},
         "prev_hash": {"type": "string", "description": "SHA-256 of the job's previous event"},
         "hash": {"type": "string", "description": "SHA-256 of this event's chained fields"},
