@@ -419,8 +419,11 @@
     token = token || meta("csrf-token") || "";
     var body = new URLSearchParams();
     entry.fields.forEach(function (pair) {
-      body.append(pair[0], pair[0] === "csrf_token" ? token : pair[1]);
+      if (pair[0] !== "sent_time") body.append(pair[0], pair[0] === "csrf_token" ? token : pair[1]);
     });
+    // This tablet's clock now: with the entry's own time, how long it waited here (the
+    // station places it when it was made: webapp/domain/placement.py).
+    body.append("sent_time", new Date().toISOString());
     var response;
     try {
       response = await fetch(entry.url, {

@@ -15,6 +15,8 @@ const SHELL = [
   "/static/vendor/htmx-2.0.11.min.js",
   "/static/js/sparkward.js",
   "/static/js/outbox.js",
+  "/static/js/tablet_rules.js",
+  "/static/js/tablet_steps.js",
   "/static/js/tablet_job.js",
   "/static/icon.svg",
   "/manifest.webmanifest",

@@ -9,11 +9,10 @@
   "use strict";
 
   var DB_NAME = "sparkward-jobs";
-  var MAX_TAG_LENGTH = 24;  // as webapp/domain/gates.py
-  var KEPT = "kept on this tablet, not yet at the station";
-  var CHECKED_ON_ARRIVAL = "When the entries reach the station it checks each again, with " +
-    "what the tablet cannot know here (other jobs on this engine, tags hung since, your " +
-    "authorisations); its answer wins, and anything it refuses is shown here with what to do.";
+  var R = window.sparkwardTabletRules, S = window.sparkwardTabletSteps;
+  var completes = R.completes, tagRefusal = R.tagRefusal, breakersLeft = R.breakersLeft;
+  var waitLeft = R.waitLeft, waitRefusal = R.waitRefusal, mmss = R.mmss;
+  var el = S.el, stepArticle = S.stepArticle, markProgress = S.markProgress;
 
   // ---- The tablet's store: "states" (the station's latest word per job), "steps" ----
   var opened = null;
@@ -105,6 +104,9 @@
     var onTablet = {};
     var tags = state.tags.map(function (t) { return Object.assign({}, t); });
     var doubts = [];
+    // When the input came off, by this tablet's clock: the station's record of it (the
+    // device's time it was made at, else the station's), or a disconnection kept here.
+    var powerOff = state.power_off_device || state.power_off;
     entries.forEach(function (entry) {
       var f = fieldsOf(entry);
       var step = byId[f.step];
@@ -125,209 +127,15 @@
       if (completes(step, f)) {
         done[step.id] = { event_id: entry.event_id, kind: f.kind, at: entry.queued_at };
         onTablet[step.id] = entry;
+        if (step.kind === "check" && step.power === "removed") {
+          powerOff = f.device_time || entry.queued_at;
+        }
       }
     });
     var nextId = order.find(function (id) { return !(id in done); }) || null;
     return { state: state, carried: carried, byId: byId, done: done, onTablet: onTablet,
              tags: tags, next: nextId ? byId[nextId] : null, doubts: doubts,
-             waiting: entries.length };
-  }
-
-  // The event that completes each kind the tablet may record (as domain/execution.py).
-  function completes(step, f) {
-    if (step.kind === "warning" || step.kind === "caution") return f.kind === "acknowledged";
-    if (step.kind === "note" || step.kind === "lockout") return f.kind === "step_done";
-    if (step.kind === "check") {
-      if (f.kind !== "step_done") return false;
-      var ticked = [].concat(f.items || []).map(Number);
-      return (step.items || []).every(function (_, i) { return ticked.indexOf(i) >= 0; });
-    }
-    return false;
-  }
-
-  // ---- Rules the tablet mirrors, in the station's words (webapp/domain/gates.py) ----
-  function tagRefusal(v, step, breaker, raw) {
-    var number = String(raw || "").trim();
-    if (!number) return "Write the number printed on the tag.";
-    if (number.length > MAX_TAG_LENGTH) {
-      return "A tag number is at most " + MAX_TAG_LENGTH + " characters; check what was typed.";
-    }
-    var found = v.tags.find(function (t) { return t.number === number; });
-    if (found && step.confirm_existing) {
-      if (found.breaker !== breaker) {
-        return "Tag " + number + " hangs on " + found.breaker + ", not on " + breaker +
-          ": check the breaker and the number on the tag.";
-      }
-      if (found.counts_here) return "Tag " + number + " already counts for this job.";
-      return null;
-    }
-    if (found) {
-      return "Tag " + number + " already hangs on breaker " + found.breaker +
-        "; each tag has its own number.";
-    }
-    var here = v.tags.filter(function (t) { return t.breaker === breaker; });
-    if (step.confirm_existing && here.length) {
-      return "No tag " + number + " hangs on " + breaker + "; the station has " +
-        here.map(function (t) { return t.number; }).sort().join(", ") +
-        " there. Check the number on the tag.";
-    }
-    if (here.some(function (t) { return t.this_job; })) {
-      return "This job already has a tag on " + breaker + ".";
-    }
-    return null;
-  }
-  function breakersLeft(v, step) {
-    return step.breakers.filter(function (b) {
-      return !v.tags.some(function (t) { return t.breaker === b.id && t.counts_here; });
-    }).map(function (b) { return b.id; });
-  }
-
-  // ---- On screen ----
-  function el(tag, attrs, text) {
-    var node = document.createElement(tag);
-    Object.keys(attrs || {}).forEach(function (k) { node.setAttribute(k, attrs[k]); });
-    if (text !== undefined) node.textContent = text;
-    return node;
-  }
-  function newEventId() {
-    return crypto.randomUUID ? crypto.randomUUID() : String(Date.now()) + Math.random();
-  }
-  function token() {
-    var tag = document.querySelector('meta[name="csrf-token"]');
-    return tag ? tag.getAttribute("content") : "";
-  }
-
-  // A form the outbox knows: the same fields and address as the station's own.
-  function entryForm(v, step, kind, testid, label, extra) {
-    var form = el("form", { "class": "event-form", method: "post",
-                            action: v.carried.record_url, "hx-post": v.carried.record_url,
-                            "hx-target": "#job", "hx-swap": "outerHTML",
-                            "hx-disabled-elt": "find button", "data-tablet-form": "" });
-    [["csrf_token", token()], ["event_id", newEventId()], ["kind", kind], ["step", step.id]]
-      .forEach(function (pair) {
-        form.append(el("input", { type: "hidden", name: pair[0], value: pair[1] }));
-      });
-    form.append(el("input", { type: "hidden", name: "device_time", value: "",
-                              "data-device-time": "" }));
-    if (extra) extra(form);
-    form.append(el("button", { "class": "button primary", type: "submit",
-                               "data-testid": testid }, label));
-    return form;
-  }
-
-  var FORMS = {
-    advisory: function (v, step) {
-      return [entryForm(v, step, "acknowledged", "acknowledge",
-                        "I have read this " + step.kind.toUpperCase() + " and will follow it")];
-    },
-    note: function (v, step) {
-      return [entryForm(v, step, "step_done", "continue", "Read — continue")];
-    },
-    check: function (v, step) {
-      return [entryForm(v, step, "step_done", "done", "Done", function (form) {
-        if (!(step.items || []).length) return;
-        form.append(el("input", { type: "hidden", name: "items_offered", value: "1" }));
-        var set = el("fieldset", { "class": "items" });
-        set.append(el("legend", {}, "Confirm each item"));
-        step.items.forEach(function (item, i) {
-          var label = el("label", { "class": "tick" });
-          label.append(el("input", { type: "checkbox", name: "items", value: String(i),
-                                     required: "", "data-testid": "item-" + i }), " " + item);
-          set.append(label);
-        });
-        form.append(set);
-      })];
-    },
-    lockout: function (v, step) {
-      var list = el("ul", { "class": "breakers" });
-      step.breakers.forEach(function (b) {
-        var item = el("li", { "class": "breaker", "data-testid": "breaker-" + b.id });
-        var name = el("p", { "class": "breaker-name" });
-        name.append(el("strong", {}, b.id), " — " + b.label);
-        item.append(name);
-        var counted = v.tags.filter(function (t) { return t.breaker === b.id && t.counts_here; });
-        counted.forEach(function (t) {
-          item.append(el("p", { "class": "ok", "data-testid": "tagged-" + b.id },
-                         "✓ Tagged " + t.number + (t.on_tablet ? " — " + KEPT : ": " +
-                                                   t.owner + "'s tag")));
-        });
-        if (!counted.length) {
-          item.append(entryForm(v, step, "breaker_tagged", "tag-" + b.id,
-                                "Opened, collared and tagged", function (form) {
-            form.append(el("input", { type: "hidden", name: "breaker", value: b.id }));
-            form.append(el("label", { "for": "tag-" + b.id }, "Tag number on " + b.id));
-            form.append(el("input", { id: "tag-" + b.id, name: "tag", required: "",
-                                      maxlength: String(MAX_TAG_LENGTH), autocomplete: "off",
-                                      "data-testid": "tag-number-" + b.id }));
-          }));
-        }
-        list.append(item);
-      });
-      var left = breakersLeft(v, step);
-      return [list, entryForm(v, step, "step_done", "done", left.length
-        ? "Tag every breaker first (" + left.join(", ") + ")"
-        : "Lockout confirmed: every breaker open and tagged")];
-    },
-  };
-
-  function stepArticle(v, step) {
-    var article = el("article", { "class": "step step-" + step.kind, "data-testid": "step",
-                                  "data-step-id": step.id, "data-step-kind": step.kind,
-                                  "data-tablet-step": "" });
-    var note = el("p", { "class": "tablet-note", "data-testid": "tablet-copy" });
-    note.append(el("strong", {}, "From the tablet's copy of this job:"),
-                " " + v.waiting + (v.waiting === 1 ? " entry is " : " entries are ") + KEPT +
-                ". " + CHECKED_ON_ARRIVAL);
-    article.append(note);
-    var head = document.createElement("template");
-    head.innerHTML = step.head;  // the station's own rendering of the step's text
-    article.append(head.content);
-    if (!step.offline) {
-      var box = el("div", { "class": "waiting", "data-testid": "needs-station" });
-      box.append(el("p", {}, ""));
-      box.firstChild.append(el("strong", {}, "This step needs the station."),
-                            " " + step.needs_station);
-      box.append(el("p", {}, "Your entries so far wait on this tablet and are sent in " +
-        "order when the connection is back; this step can be done then. Do not go on " +
-        "from this screen: keep to the approved procedure."));
-      article.append(box);
-      return article;
-    }
-    var kind = step.kind === "warning" || step.kind === "caution" ? "advisory" : step.kind;
-    FORMS[kind](v, step).forEach(function (node) { article.append(node); });
-    return article;
-  }
-
-  function markProgress(v) {
-    var count = 0;
-    v.carried.steps.forEach(function (s) {
-      var row = document.querySelector("[data-testid=progress-" + CSS.escape(s.id) + "]");
-      if (!row) return;
-      var kept = row.querySelector("[data-tablet-kept]");
-      var atStation = v.state.completed[s.id];
-      if (atStation && row.dataset.status !== "done") {  // a copy older than the station's word
-        row.dataset.status = "done";
-        row.append(el("span", { "class": "meta", "data-testid": "progress-station-" + s.id },
-                      "✓ done at the station: " + atStation.by));
-      }
-      if (s.id in v.onTablet) {
-        count += 1;
-        row.dataset.status = "tablet";
-        if (!kept) {
-          kept = el("span", { "class": "meta", "data-tablet-kept": "",
-                              "data-testid": "progress-kept-" + s.id }, "✓ " + KEPT);
-          row.append(kept);
-        }
-      } else if (kept) {
-        kept.remove();
-      }
-    });
-    var progress = document.querySelector("[data-testid=progress]");
-    if (progress) {
-      var doneHere = Object.keys(v.state.completed).length;
-      progress.textContent = (doneHere + count) + " of " + v.carried.steps.length +
-        " steps done" + (count ? " (" + count + " " + KEPT + ")" : "");
-    }
+             waiting: entries.length, powerOff: powerOff };
   }
 
   // Show the tablet's view in place of the station's step while entries wait.
@@ -387,6 +195,8 @@
                           form.querySelector("[name=tag]").value);
     } else if (step.kind === "lockout" && breakersLeft(current, step).length) {
       reason = "Tag every breaker first (" + breakersLeft(current, step).join(", ") + ").";
+    } else if (step.kind === "discharge_wait") {
+      reason = waitRefusal(waitLeft(current, step, Date.now()));
     }
     if (!reason) return;
     event.preventDefault();
@@ -399,6 +209,20 @@
     said.textContent = "✗ " + reason;
   }, true);
 
+  // The tablet's own countdown: from the disconnection's time, so a reload never restarts it.
+  setInterval(function () {
+    if (!current || !current.next || current.next.kind !== "discharge_wait") return;
+    var shown = document.querySelector("[data-tablet-wait]");
+    if (!shown) return;
+    var left = waitLeft(current, current.next, Date.now());
+    if (left === null) return;
+    shown.textContent = mmss(Math.ceil(left));
+    var label = document.querySelector("[data-tablet-step] [data-testid=countdown-label]");
+    if (label) label.textContent = left > 0 ? "to wait" : "— the wait is over";
+    var button = document.querySelector("[data-tablet-step] [data-testid=done]");
+    if (button && left <= 0 && !button.dataset.queued) button.disabled = false;
+  }, 250);
+
   document.addEventListener("sparkward:outbox-changed", refresh);
   document.addEventListener("htmx:afterSwap", refresh);
   document.addEventListener("DOMContentLoaded", refresh);
@@ -406,7 +230,7 @@
   window.sparkwardTabletJob = {
     refresh: refresh,
     // The mirrored rules, for the test that holds them to the station's (tests/e2e).
-    rules: { tagRefusal: tagRefusal, completes: completes, breakersLeft: breakersLeft },
+    rules: R,
     state: function (jobId) { return read("states", jobId); },
     steps: function (jobId) { return read("steps", jobId); },
   };

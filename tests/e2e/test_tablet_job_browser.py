@@ -5,6 +5,8 @@ station says so; back online every entry arrives once, in order."""
 
 from __future__ import annotations
 
+import re
+
 import pytest
 from playwright.sync_api import expect
 
@@ -29,9 +31,11 @@ def _events(db_path, job_id: int) -> list[dict]:
 
 @pytest.mark.browser
 def test_offline_the_tablet_works_on_through_the_lockout_and_the_station_gets_it_all_once(
-        browser, live_server, db_path):
+        browser, live_server, db_path, station_clock):
     context = browser.new_context(viewport=VIEWPORTS["tablet-landscape"], has_touch=True)
     network = Network(context)
+    # The tablet's clock runs as real time until the test moves it on (Playwright's clock).
+    context.clock.install(time=station_clock())
     page = context.new_page()
     open_removal_to_warning(page, live_server)
     page.wait_for_function(WORKER_IN_CHARGE, polling=50)
@@ -73,24 +77,42 @@ def test_offline_the_tablet_works_on_through_the_lockout_and_the_station_gets_it
     expect(step).to_have_attribute("data-step-id", "input-first")
     tap(page, "[data-testid=continue]")
     expect(step).to_have_attribute("data-step-id", "disconnect-input")
-    tap(page, "[data-testid=done]")
-    # The discharge wait is the station's to time: the tablet says so and offers nothing.
+    tap(page, "[data-testid=done]")  # the input is off: the tablet counts the wait from here
+    # The discharge wait, counted by the tablet's clock: the data's 2 min and the 30 s the
+    # station asks of a wait only a tablet witnessed (domain/placement.py).
     expect(step).to_have_attribute("data-step-kind", "discharge_wait")
+    countdown = page.get_by_test_id("countdown")
+    expect(countdown).to_have_text(re.compile(r"2:(30|29)"))
+    done = page.get_by_test_id("done")
+    expect(done).to_be_disabled()
+    page.clock.fast_forward("01:00")
+    expect(countdown).to_have_text(re.compile(r"1:(30|29)"))
+
+    page.reload()  # the count goes on from the disconnection: a reload does not restart it
+    expect(countdown).to_have_text(re.compile(r"1:(30|29|28)"))
+    expect(done).to_be_disabled()
+    page.clock.fast_forward("01:31")
+    station_clock.advance(151)  # the station's clock keeps the tablet's time (both real)
+    expect(countdown).to_have_text("0:00")
+    tap(page, "[data-testid=done]")
+    # The isolation check is a reading: the station judges it, so the tablet waits here.
+    expect(step).to_have_attribute("data-step-id", "verify-isolation")
     expect(page.get_by_test_id("needs-station")).to_contain_text("This step needs the station.")
     expect(page.locator("[data-testid=step] form")).to_have_count(0)
-    assert page.evaluate(OUTBOX_SIZE) == 6
+    assert page.evaluate(OUTBOX_SIZE) == 7
     assert len(_events(db_path, job_id)) == before  # nothing reached the station yet
 
     page.close()  # the app closed and opened again, still offline
     page = context.new_page()
     page.goto(f"{live_server}/jobs/{job_id}")
     step = page.get_by_test_id("step")
-    expect(step).to_have_attribute("data-step-kind", "discharge_wait")
+    expect(step).to_have_attribute("data-step-id", "verify-isolation")
     expect(page.get_by_test_id("progress-kept-breakers")).to_be_visible()
+    expect(page.get_by_test_id("progress-kept-discharge")).to_be_visible()
 
     network.restore()
     # The entries go; the page then reloads from the station (it was the worker's copy).
-    expect(step).to_have_attribute("data-step-id", "discharge", timeout=30_000)
+    expect(step).to_have_attribute("data-step-id", "verify-isolation", timeout=30_000)
     expect(page.get_by_test_id("outbox-count")).to_be_hidden()
     wait_until(page, OUTBOX_EMPTY)
     expect(page.get_by_test_id("tablet-copy")).to_have_count(0)  # the station's own screen
@@ -99,7 +121,9 @@ def test_offline_the_tablet_works_on_through_the_lockout_and_the_station_gets_it
         ("acknowledged", "lethal-energy-breakers"),
         ("breaker_tagged", "breakers"), ("breaker_tagged", "breakers"),
         ("step_done", "breakers"), ("step_done", "input-first"),
-        ("step_done", "disconnect-input")]
+        ("step_done", "disconnect-input"), ("step_done", "discharge")]
+    # The wait was placed by the tablet's count: the station's copy of it says so.
+    assert events[-1]["device_sent"] is not None
     assert [e["data"].get("tag") for e in events if e["kind"] == "breaker_tagged"] == [
         "T-7", "T-8"]
     assert len({e["id"] for e in events}) == len(events)

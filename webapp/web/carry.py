@@ -18,8 +18,10 @@ from typing import Any
 
 from flask import Blueprint, jsonify, render_template, url_for
 
+from ..domain import exciter_rows, gates
 from ..domain.execution import JobState, StepProgress
-from ..domain.procedures import Advisory, Check, Lockout, Step
+from ..domain.placement import COUNTED_WAIT_MARGIN_S
+from ..domain.procedures import Advisory, Check, DischargeWait, Lockout, Step
 from ..station import recording
 from .common import db, person, requires
 
@@ -28,8 +30,6 @@ bp = Blueprint("carry", __name__)
 # Why a step kind waits for the station, in the mechanic's words. Every kind not named in
 # `_offline` is one of these; the screen shows the reason on the tablet.
 NEEDS_STATION = {
-    "discharge_wait": "The discharge wait is timed by the station's clock: it starts when "
-                      "the station has the disconnection.",
     "reading": "A reading is judged against its limits, units and instrument by the station.",
     "torque": "A torque value is judged against its limits by the station.",
     "spark_count": "A spark count is timed and judged by the station.",
@@ -49,6 +49,8 @@ def _offline(step: Step) -> str | None:
         return NEEDS_STATION["lead"] if step.handles_lead else None
     if isinstance(step, Lockout):
         return None if step.action == "apply" else NEEDS_STATION["release"]
+    if isinstance(step, DischargeWait):
+        return None
     return NEEDS_STATION.get(step.kind, "This step needs the station.")
 
 
@@ -88,6 +90,16 @@ def job_steps(job_id: int) -> Any:
     return jsonify(carried_steps(job_id))
 
 
+def _discharge_waits(state: JobState, gate: dict[str, Any]) -> dict[str, float]:
+    """Seconds each discharge wait still to do asks, for the exciters fitted now."""
+    channels = [state.configuration.channel] if state.configuration.channel else ["A", "B"]
+    fitted = exciter_rows.fitted_exciters(gate["engine"], state.configuration.components,
+                                          channels)
+    parts = [f.part_number for f in fitted]
+    return {s.id: gates.discharge_requirement(s.step, parts).required_s
+            for s in state.steps if isinstance(s.step, DischargeWait) and s.status != "done"}
+
+
 def carried_state(job: recording.Job, station_now: datetime, gate: dict[str, Any],
                   names: dict[int, str]) -> dict[str, Any]:
     """The job as the station knows it at `station_now`, for the tablet's copy."""
@@ -109,6 +121,12 @@ def carried_state(job: recording.Job, station_now: datetime, gate: dict[str, Any
         "completed": {s.id: done(s) for s in state.steps if s.status == "done"},
         "awaiting_finding": sorted(state.awaiting_finding),
         "power_off": state.power_off.station.isoformat() if state.power_off else None,
+        "power_off_device": (state.power_off.device.isoformat()
+                             if state.power_off and state.power_off.device else None),
+        # The discharge wait the station asks now (the fitted exciters' data), and what a
+        # wait counted by the tablet's clock asks on top (domain/placement.py).
+        "discharge": _discharge_waits(state, gate),
+        "counted_margin_s": COUNTED_WAIT_MARGIN_S,
         "tags": [{"breaker": v.tag.breaker, "number": v.tag.number, "owner": v.owner,
                   "mine": v.tag.owner_id == me.id, "counts_here": v.counts_here,
                   "this_job": v.tag.job_id == job.row["id"]}
