@@ -8,7 +8,7 @@ request for it with a 304 itself, after compressing.
 
 from __future__ import annotations
 
-from flask import Flask
+from flask import Flask, Response
 from flask_compress import Compress
 
 COMPRESSED_TYPES = [
@@ -19,17 +19,29 @@ COMPRESSED_TYPES = [
 # zstd (no Safari, so no iPad, when this was written: from memory) nor deflate (long
 # ambiguous between zlib and raw streams: RFC 9110 8.4.1.2, from memory).
 ALGORITHMS = ["br", "gzip"]
+# Files up to this size are read into memory before compressing (see _read_whole_file).
+WHOLE_FILE_LIMIT = 1024 * 1024
 SETTINGS = {
     "COMPRESS_MIMETYPES": COMPRESSED_TYPES,
     "COMPRESS_ALGORITHM": ALGORITHMS,
-    # Files under static/ are sent as streams; compress those too, gzip included.
     "COMPRESS_ALGORITHM_STREAMING": ALGORITHMS,
-    # A stream's ETag is checked again after compression for these endpoints.
-    "COMPRESS_STREAMING_ENDPOINT_CONDITIONAL": ["static", "pwa.manifest"],
     # Below this an encoded body saves less than its headers cost (common practice, no
     # source; Flask-Compress's default).
     "COMPRESS_MIN_SIZE": 500,
 }
+
+
+def _read_whole_file(response: Response) -> Response:
+    """A file answer (static/, the manifest) is a stream; Flask-Compress would compress it as
+    one without closing the file it read (a ResourceWarning per answer) and without a
+    Content-Length. Our files are small: read them whole first, closing the file when the
+    answer closes, so they are compressed as one body with its length and ETag check."""
+    if (response.direct_passthrough and response.mimetype in COMPRESSED_TYPES
+            and response.content_length is not None
+            and response.content_length <= WHOLE_FILE_LIMIT):
+        response.direct_passthrough = False
+        response.make_sequence()
+    return response
 
 
 def register(app: Flask) -> None:
@@ -37,3 +49,4 @@ def register(app: Flask) -> None:
     for key, value in SETTINGS.items():
         app.config.setdefault(key, value)
     Compress(app)
+    app.after_request(_read_whole_file)  # registered after: runs before Compress's hook
