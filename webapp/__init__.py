@@ -81,7 +81,7 @@ def _station_secret(db_path: Path) -> str:
 
 
 def register_extensions(app: Flask) -> None:
-    from .web import input_guard
+    from .web import assets, compression, input_guard
     from .web.common import csrf, init_database
     from .web.headers import register as register_security_headers
 
@@ -89,6 +89,8 @@ def register_extensions(app: Flask) -> None:
     init_database(app)  # who is logged in, before the CSRF check: a stranger hears 401
     csrf.init_app(app)
     register_security_headers(app)
+    assets.register(app)  # static URLs carry their content hash
+    compression.register(app)  # brotli or gzip for text answers
 
 
 def register_blueprints(app: Flask) -> None:

@@ -4,31 +4,33 @@
 // (static/js/outbox.js) carries the writes that could not be sent.
 "use strict";
 
-// Bump when SHELL or this file changes: the new worker fills fresh caches, the old go.
-const VERSION = "v7";
+// Filled in by the station when it serves /sw.js (webapp/web/pwa.py): the shell's files by
+// their content-hashed URLs (every CSS and JS file under static/, the icon, the manifest),
+// and a version made from those hashes and this file. A changed file is a new worker, which
+// fills a fresh shell cache and deletes the old one; nobody bumps anything by hand.
+const VERSION = "unfilled";
+const SHELL_FILES = [];
 const SHELL_CACHE = "sparkward-shell-" + VERSION;
-const PAGES_CACHE = "sparkward-pages-" + VERSION;
+// The pages kept on this tablet outlive a new shell (a page names its files by hash; an
+// older hash is answered with the current file, below). Change only if the way pages are
+// kept changes.
+const PAGES_CACHE = "sparkward-pages-v7";
 const OFFLINE_PAGE = "/offline";  // rendered by the station, cached at install
-const SHELL = [
-  "/static/css/sparkward.css",
-  "/static/css/fleet.css",
-  "/static/vendor/htmx-2.0.11.min.js",
-  "/static/js/sparkward.js",
-  "/static/js/outbox.js",
-  "/static/js/tablet_rules.js",
-  "/static/js/tablet_steps.js",
-  "/static/js/tablet_job.js",
-  "/static/icon.svg",
-  "/manifest.webmanifest",
-  OFFLINE_PAGE,
-];
+const SHELL = [...SHELL_FILES, OFFLINE_PAGE];
+const SHELL_PATHS = new Set(SHELL_FILES.map((href) => new URL(href, self.location.origin).pathname));
+// How long a page load waits for the station before the tablet's copy is shown: on a Wi-Fi
+// that connects but never answers, a mechanic should not stare at a blank screen (common
+// practice, no source; a job page answers in milliseconds on the hangar LAN).
+const STATION_PATIENCE_MS = 4000;
 const MAX_PAGES = 60;  // the most recently opened pages are kept; older ones make room
 const SAVED_AT = "X-Sparkward-Saved-At";
 
 self.addEventListener("install", (event) => {
   event.waitUntil(
+    // Plain requests: a file the page has just loaded comes from the HTTP cache (it is
+    // "immutable" under its hashed URL), so the station sends each shell file once.
     caches.open(SHELL_CACHE)
-      .then((cache) => cache.addAll(SHELL.map((url) => new Request(url, { cache: "reload" }))))
+      .then((cache) => cache.addAll(SHELL))
       .then(() => self.skipWaiting()));
 });
 
@@ -49,30 +51,38 @@ self.addEventListener("fetch", (event) => {
   if (url.origin !== self.location.origin) return;
   if (request.mode === "navigate") {
     event.respondWith(pageFromStation(event, url));
-  } else if (SHELL.includes(url.pathname)) {
-    event.respondWith(shellFile(event, url.pathname));
+  } else if (SHELL_PATHS.has(url.pathname)) {
+    event.respondWith(shellFile(request, url));
   }
 });
 
-// Network first: the station's page when it answers, else this tablet's copy of that URL,
-// else the offline page.
-async function pageFromStation(event, url) {
-  try {
-    const response = await fetch(event.request);
+// Network first, for STATION_PATIENCE_MS: the station's page when it answers in time, else
+// this tablet's copy of that URL, else the offline page. An answer that comes later is
+// still kept for the next time.
+function pageFromStation(event, url) {
+  const answered = fetch(event.request).then((response) => {
+    let keeping = Promise.resolve();
     if (url.pathname === "/login") {
       // Someone logged out (or was sent to log in): their saved pages leave the tablet.
-      event.waitUntil(caches.delete(PAGES_CACHE));
+      keeping = caches.delete(PAGES_CACHE);
     } else if (isPage(response)) {
-      event.waitUntil(keepPage(url.href, response.clone()));
+      keeping = keepPage(url.href, response.clone());
     }
-    return response;
-  } catch (error) {
-    const pages = await caches.open(PAGES_CACHE);
-    const saved = await pages.match(url.href);
-    if (saved) return markedAsSavedCopy(saved);
-    const offline = await caches.match(OFFLINE_PAGE);
-    return offline || Response.error();
-  }
+    return { response, keeping };
+  });
+  event.waitUntil(answered.then((answer) => answer.keeping).catch(() => undefined));
+  const impatience = new Promise((resolve) => setTimeout(resolve, STATION_PATIENCE_MS, null));
+  return Promise.race([answered.then((answer) => answer.response), impatience])
+    .catch(() => null)
+    .then((response) => response || keptCopyOf(url));
+}
+
+async function keptCopyOf(url) {
+  const pages = await caches.open(PAGES_CACHE);
+  const saved = await pages.match(url.href);
+  if (saved) return markedAsSavedCopy(saved);
+  const offline = await caches.match(OFFLINE_PAGE);
+  return offline || Response.error();
 }
 
 function isPage(response) {
@@ -83,6 +93,9 @@ function isPage(response) {
 async function keepPage(href, response) {
   const headers = new Headers(response.headers);
   headers.set(SAVED_AT, new Date().toISOString());
+  // The body kept is the decoded page: its length and encoding no longer apply.
+  headers.delete("Content-Encoding");
+  headers.delete("Content-Length");
   const copy = new Response(await response.blob(), { status: 200, headers });
   const pages = await caches.open(PAGES_CACHE);
   await pages.put(href, copy);
@@ -107,17 +120,18 @@ async function markedAsSavedCopy(saved) {
   return new Response(html, { status: 200, headers });
 }
 
-// The shell from the cache at once; a fresh copy is fetched behind it for the next load.
-async function shellFile(event, path) {
+// The shell from the cache: under its hashed URL a file never changes, so nothing is asked
+// of the station. A URL not kept (a page saved before an update names older hashes) goes to
+// the station, and without network gets this tablet's current version of that file.
+async function shellFile(request, url) {
   const shell = await caches.open(SHELL_CACHE);
-  const cached = await shell.match(path);
-  const fresh = fetch(path, { cache: "no-cache" }).then((response) => {
-    if (response.ok) return shell.put(path, response.clone()).then(() => response);
-    return response;
-  });
-  if (cached) {
-    event.waitUntil(fresh.catch(() => undefined));
-    return cached;
+  const kept = await shell.match(url.href);
+  if (kept) return kept;
+  try {
+    return await fetch(request);
+  } catch (error) {
+    const current = await shell.match(url.pathname, { ignoreSearch: true });
+    if (current) return current;
+    throw error;
   }
-  return fresh;
 }

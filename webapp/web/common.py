@@ -17,6 +17,7 @@ from ..domain.login_throttle import ThrottlePolicy
 from ..domain.session_limits import SessionLimits
 from ..station import accounts
 from ..store.people import Person
+from .assets import HASHED_ENDPOINTS
 
 csrf = CSRFProtect()
 
@@ -63,6 +64,10 @@ def init_database(app: Flask) -> None:
     def load_person() -> None:
         """Who is logged in: the session the cookie's token names, if it is still open."""
         g.person = None
+        if request.endpoint in HASHED_ENDPOINTS:
+            # A file of static/ is the same for everyone: reading the session would add
+            # "Vary: Cookie", and a browser would fetch it again after each log-in.
+            return
         token = session.get(SESSION_TOKEN)
         if token is None:
             return

@@ -18,10 +18,12 @@ What may be cached, and why (OWASP ASVS 4.0.3 V8.2.1):
 - The public files of the installable app and of the station's authority (``/sw.js``, the
   manifest, the CA certificate and its revocation list): ``no-cache``, i.e. kept but
   checked with the station on every use, so a new worker or list is seen at once.
-- ``/static/``: a file whose name carries its version (``vendor/htmx-2.0.11.min.js``) never
-  changes under that name: one year, ``immutable``. The others (our CSS and JS, whose names
-  do not change) are ``no-cache``: revalidated by ETag on every load; the worker keeps its
-  own copy of each in its shell cache for offline use and refreshes it behind the page.
+- ``/static/`` and the manifest: the pages name each file with its content hash
+  (``?v=<hash>``, assets.py), and a file whose name carries its version
+  (``vendor/htmx-2.0.11.min.js``) never changes under that name either: one year,
+  ``immutable``, so a reload asks nothing about them (the worker answers them from its shell
+  cache in any case). A URL without the hash, or with an older one, gets the current file
+  ``no-cache`` (revalidated by ETag): those bytes are not what that URL will always name.
 """
 
 from __future__ import annotations
@@ -29,6 +31,8 @@ from __future__ import annotations
 import re
 
 from flask import Flask, Response, request
+
+from .assets import current_version_requested
 
 # Only the station's own scripts, styles, images, connections, worker and manifest; no
 # inline script or style, no eval, no plug-ins, no framing, no <base> (ASVS 4.0.3 V14.4.3,
@@ -95,11 +99,14 @@ VERSIONED_NAME = re.compile(r"^/static/vendor/[^/]+-\d+\.\d+\.\d+(\.min)?\.js$")
 API_DISPOSITION = 'attachment; filename="api.json"'
 
 
-def cache_control_for(path: str, endpoint: str | None) -> str:
-    """The Cache-Control the station sends for a request to `path` served by `endpoint`."""
+def cache_control_for(path: str, endpoint: str | None, current_hash: bool = False) -> str:
+    """The Cache-Control the station sends for a request to `path` served by `endpoint`;
+    `current_hash`: the request names the file by its current content hash."""
     if endpoint == "static" or path.startswith("/static/"):
-        return IMMUTABLE if VERSIONED_NAME.match(path) else REVALIDATE
+        return IMMUTABLE if current_hash or VERSIONED_NAME.match(path) else REVALIDATE
     if endpoint in PUBLIC_FILES:
+        if current_hash:
+            return IMMUTABLE
         return REVALIDATE
     return NO_STORE
 
@@ -111,7 +118,8 @@ def add_security_headers(response: Response) -> Response:
         PDF_POLICY if response.mimetype == "application/pdf" else CONTENT_SECURITY_POLICY)
     if request.is_secure:
         response.headers["Strict-Transport-Security"] = STRICT_TRANSPORT_SECURITY
-    response.headers["Cache-Control"] = cache_control_for(request.path, request.endpoint)
+    response.headers["Cache-Control"] = cache_control_for(
+        request.path, request.endpoint, current_version_requested())
     if response.mimetype == "application/json" and "Content-Disposition" not in response.headers:
         response.headers["Content-Disposition"] = API_DISPOSITION
     return response
