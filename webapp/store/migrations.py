@@ -218,3 +218,15 @@ def event_requests(db: Database) -> None:
     # cannot tell, since the station keeps what it derived, not every field sent.
     db.table("event_requests").create({"event_id": str, "digest": str}, pk="event_id",
                                       not_null={"digest"})
+
+
+@MIGRATIONS(name="0011_refusal_notices")
+def refusal_notices(db: Database) -> None:
+    # An entry refused because someone else had recorded it first (another tablet's step or
+    # tag) tells that person on their job page: whom to tell, the words, and when they read
+    # it (the row stays as the log of the refusal).
+    refusals = db.table("refusals")
+    refusals.add_column("tell_person_id", int)
+    refusals.add_column("notice", str)
+    refusals.add_column("notice_read_at", str)
+    refusals.create_index(["tell_person_id", "job_id"])
