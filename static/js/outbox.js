@@ -79,6 +79,7 @@
     var form = event.detail.elt.closest("form");
     if (!screen.isStepForm(form)) { screen.say(NOT_SENT, "", true); return; }
     if (screen.carriesSecret(form)) { screen.say(SIGNING_NEEDS_STATION, "", true); return; }
+    status.noAnswer = true;
     queueFrom(event.detail, false);
   }
   document.addEventListener("htmx:sendError", noAnswer);
