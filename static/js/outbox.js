@@ -33,6 +33,8 @@
     "on the tablet: a signature needs the station itself (your PIN is never stored here). " +
     "When the connection is back, look at the job, and sign again if your signature is not " +
     "there.";
+  var NOT_SHOWN = "No answer from the station: this page was not brought up to date. It " +
+    "shows what the station said last.";
   var NOT_SENT = "No answer from the station: this was not kept on the tablet. Try again " +
     "when the connection is back.";
 
@@ -76,6 +78,10 @@
 
   // No network, or no answer within the timeout: the same for the mechanic.
   function noAnswer(event) {
+    if ((event.detail.requestConfig || {}).verb === "get") {
+      screen.say(NOT_SHOWN, "", true);
+      return;
+    }
     var form = event.detail.elt.closest("form");
     if (!screen.isStepForm(form)) { screen.say(NOT_SENT, "", true); return; }
     if (screen.carriesSecret(form)) { screen.say(SIGNING_NEEDS_STATION, "", true); return; }
