@@ -15,6 +15,7 @@ from datetime import datetime
 from typing import Any
 
 from . import (
+    entry_conflicts,
     exciter_rows,
     gates,
     instruments,
@@ -180,7 +181,7 @@ class Circumstances:
     person_id: int
     job_id: int
     tags: Mapping[str, Tag] = field(default_factory=dict)
-    names: Mapping[int, str] = field(default_factory=dict)
+    names: Mapping[int, str] = field(default_factory=dict)  # tags' people, the job's, yours
     roles: tuple[str, ...] = ()
     authorisations: tuple[Authorisation, ...] = ()  # the signer's (not revoked), for `signed`
     engine: EngineState | None = None      # the engine's state (parts, connections, clocks)
@@ -252,7 +253,7 @@ def check_event(state: JobState, kind: str, step_id: str | None, data: Mapping[s
     if kind == "energised":
         gates.check_pre_energising(state.open_gate_steps(), at.tags, at.names)
     if target.status == "done":
-        raise RuleRefusal("already_done", f"Step {target.number} is already done.")
+        raise entry_conflicts.step_already_done(target, kind, data, at.person_id, at.names)
     if kind == COMPLETING_EVENT.get(target.step.kind):
         # Ahead of the order rule, so a jump to such work hears why it is dangerous.
         isolation.check_isolation_verified(state, target.step)
@@ -284,7 +285,8 @@ def _check_in_step(state: JobState, step: Step, kind: str, data: Mapping[str, An
                    at: Circumstances) -> Mapping[str, Any]:
     if isinstance(step, Lockout):
         if kind == "breaker_tagged":
-            return gates.check_breaker_tagged(step, data, at.tags, at.job_id)
+            return gates.check_breaker_tagged(step, data, at.tags, at.job_id, at.person_id,
+                                              at.names)
         if kind == "tag_removal_authorised":
             return tag_handover.check_tag_removal_authorised(step, data, at.tags, at.person_id,
                                                              at.roles, at.job_id)

@@ -13,7 +13,7 @@ from dataclasses import dataclass, replace
 from datetime import datetime
 from typing import Any
 
-from . import energy
+from . import energy, entry_conflicts
 from .errors import RuleRefusal
 from .exciter_rows import capacitor_rows
 from .placement import COUNTED_WAIT_MARGIN_S
@@ -121,10 +121,13 @@ def tag_number(data: Mapping[str, Any]) -> str:
 
 
 def check_breaker_tagged(step: Lockout, data: Mapping[str, Any], tags: Mapping[str, Tag],
-                         job_id: int) -> dict[str, Any]:
+                         job_id: int, person_id: int | None = None,
+                         names: Mapping[int, str] | None = None) -> dict[str, Any]:
     """A breaker of this lockout step opened, collared and tagged with a new tag; or, at a
     step that confirms existing tags, the number of a tag found hanging on it. Returns the
-    data to store (a confirmation names the tag's owner then)."""
+    data to store (a confirmation names the tag's owner then). A refusal because the tag or
+    breaker is recorded already names who recorded it (`names`) and what to do."""
+    names = names or {}
     if step.action != "apply":
         raise RuleRefusal("wrong_event_for_step", "This step removes tags; it does not hang "
                           "new ones.")
@@ -144,16 +147,22 @@ def check_breaker_tagged(step: Lockout, data: Mapping[str, Any], tags: Mapping[s
         return {"breaker": breaker, "tag": number, "confirmed_existing": True,
                 "owner": found.owner_id}
     if found is not None:
-        raise RuleRefusal("tag_in_use", f"Tag {number} already hangs on breaker "
-                          f"{found.breaker}; each tag has its own number.")
+        raise entry_conflicts.tag_already_recorded(number, breaker, found, job_id,
+                                                   _me(person_id), names)
     on_breaker = sorted(t.number for t in tags.values() if t.breaker == breaker)
     if step.confirm_existing and on_breaker:
         # A number that does not match what hangs there is a misread, not a second tag.
         raise RuleRefusal("tag_not_found", f"No tag {number} hangs on {breaker}; the station "
                           f"has {', '.join(on_breaker)} there. Check the number on the tag.")
-    if any(t.breaker == breaker and t.job_id == job_id for t in tags.values()):
-        raise RuleRefusal("already_tagged", f"This job already has a tag on {breaker}.")
+    held = [t for t in tags.values() if t.breaker == breaker and t.job_id == job_id]
+    if held:
+        raise entry_conflicts.breaker_already_tagged(number, breaker, held[0], _me(person_id),
+                                                     names)
     return {"breaker": breaker, "tag": number}
+
+
+def _me(person_id: int | None) -> int:
+    return person_id if person_id is not None else -1  # unknown: nobody's "you"
 
 
 def lockout_complete(step: Lockout, tags: Mapping[str, Tag], job_id: int) -> list[str]:

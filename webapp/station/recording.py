@@ -146,9 +146,13 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
         except InputProblem as problem:
             return Outcome("invalid", problem=problem)
         except RuleRefusal as refusal:
+            # One recorded first (another tablet's step or tag) is told on their job page.
+            first = refusal.details.get("first_person_id")
             jobs.record_refusal(db, event_id=event_id, job_id=job_id, person_id=person.id,
                                 kind=kind, step_id=step_id, data=data, rule=refusal.rule,
-                                reason=refusal.reason, now=now)
+                                reason=refusal.reason, now=now,
+                                tell_person_id=first if isinstance(first, int) else None,
+                                notice=str(refusal.details.get("notice") or "") or None)
             return Outcome("refused", refusal=refusal)
         if pin_proved:
             signers.clear_pin_failures(db, person.id)
@@ -179,6 +183,14 @@ def record_event(db: store.Database, job_id: int, *, event_id: str, kind: str,
     return Outcome("stored", event=record)
 
 
+def notice_read(db: store.Database, job_id: int, refusal_id: int, person: Person,
+                now: datetime) -> bool:
+    """The person told of a refused entry (theirs was recorded first) has read the notice;
+    False when no unread notice of that id is theirs on this job."""
+    with store.writing(db):
+        return jobs.mark_notice_read(db, refusal_id, job_id, person.id, now)
+
+
 def _same_as_stored(db: store.Database, existing: dict[str, Any], job_id: int, kind: str,
                     step_id: str | None, sent: dict[str, Any], device_time: str | None) -> bool:
     """For an event stored before request digests were kept: it is the stored one when job,
@@ -201,12 +213,16 @@ def _circumstances(db: store.Database, job: Job, kind: str, step_id: str | None,
     tags = (dict(on_engine["engine"].tags)
             if needs_engine_tags(job.state, kind, step_id) else {})
     roles_of = _named_person(db, data) if kind in gates.CONSENT_KINDS else {}
+    # Names a refusal may give: the tags' owners and hangers, who did the job's steps, and
+    # the person (a late entry names who recorded first, and tells them who was refused).
+    named = {person.id, *(t.owner_id for t in tags.values()),
+             *(t.applied_by for t in tags.values()),
+             *(s.event["person_id"] for s in job.state.steps if s.event)}
     device_now = _device_time(device_time)
     made = placement.made_at(now, device_now, _device_time(device_sent))
     return Circumstances(now=made, counted=made != now, device_now=device_now,
                          person_id=person.id,
-                         job_id=job.row["id"], tags=tags,
-                         names=people.names_by_id(db, {t.owner_id for t in tags.values()}),
+                         job_id=job.row["id"], tags=tags, names=people.names_by_id(db, named),
                          roles=person.roles, roles_of=roles_of,
                          authorisations=(tuple(authorisations.held_by(db, person.id))
                                          if kind == "signed" else ()),

@@ -104,11 +104,32 @@ def request_digest(db: Database, event_id: str) -> str | None:
 
 def record_refusal(db: Database, *, event_id: str | None, job_id: int, person_id: int,
                    kind: str, step_id: str | None, data: dict, rule: str, reason: str,
-                   now: datetime) -> None:
+                   now: datetime, tell_person_id: int | None = None,
+                   notice: str | None = None) -> None:
+    """Keep a refused event and why; `tell_person_id` is told `notice` on the job's page
+    (someone whose entry came first)."""
     db.table("refusals").insert({
         "event_id": event_id, "job_id": job_id, "person_id": person_id, "kind": kind,
         "step_id": step_id, "data": json.dumps(data, sort_keys=True), "rule": rule,
-        "reason": reason, "received_at": now.isoformat()})
+        "reason": reason, "received_at": now.isoformat(), "tell_person_id": tell_person_id,
+        "notice": notice})
+
+
+def unread_notices(db: Database, job_id: int, person_id: int) -> list[dict]:
+    """Refusals of this job that this person is to be told about and has not yet read."""
+    return list(db.query(
+        "select id, notice, received_at from refusals where job_id = ? and tell_person_id = ? "
+        "and notice is not null and notice_read_at is null order by id", [job_id, person_id]))
+
+
+def mark_notice_read(db: Database, refusal_id: int, job_id: int, person_id: int,
+                     now: datetime) -> bool:
+    """Mark a notice read by the person it is for; False when there is no such notice."""
+    cursor = db.execute(
+        "update refusals set notice_read_at = ? where id = ? and job_id = ? and "
+        "tell_person_id = ? and notice_read_at is null",
+        [now.isoformat(), refusal_id, job_id, person_id])
+    return cursor.rowcount == 1
 
 
 def refusals(db: Database, job_id: int) -> list[dict]:

@@ -220,6 +220,18 @@ def event_requests(db: Database) -> None:
                                       not_null={"digest"})
 
 
+@MIGRATIONS(name="0011_refusal_notices")
+def refusal_notices(db: Database) -> None:
+    # An entry refused because someone else had recorded it first (another tablet's step or
+    # tag) tells that person on their job page: whom to tell, the words, and when they read
+    # it (the row stays as the log of the refusal).
+    refusals = db.table("refusals")
+    refusals.add_column("tell_person_id", int)
+    refusals.add_column("notice", str)
+    refusals.add_column("notice_read_at", str)
+    refusals.create_index(["tell_person_id", "job_id"])
+
+
 @MIGRATIONS(name="0012_device_sent")
 def device_sent(db: Database) -> None:
     # For an entry that waited on a tablet: the tablet's clock when it sent the entry. With

@@ -88,7 +88,8 @@ def _job_page(job_id: int, error: str | None = None, status: int = 200,
                             sign=sign_view(db(), job.state, job.state.next_step, person(),
                                            now().date()),
                             **instrument_choices(db(), job.state.next_step, now().date()),
-                            signed_record_id=_signed_record_id(job_id, job.state))
+                            signed_record_id=_signed_record_id(job_id, job.state),
+                            told=job_store.unread_notices(db(), job_id, person().id))
 
 
 def _signed_record_id(job_id: int, state: Any) -> str | None:
@@ -106,6 +107,20 @@ def _signed_record_id(job_id: int, state: Any) -> str | None:
 @requires("mechanic", "supervisor")
 def job(job_id: int) -> Any:
     return _job_page(job_id)
+
+
+@bp.post("/jobs/<int:job_id>/notices/<int:refusal_id>/read")
+@requires("mechanic", "supervisor")
+def notice_read(job_id: int, refusal_id: int) -> Any:
+    """The person told that another tablet's entry was refused (theirs came first) has
+    read it."""
+    if refusal_id > SQLITE_MAX_INT or job_store.job(db(), job_id) is None:
+        abort(404)
+    if not recording.notice_read(db(), job_id, refusal_id, person(), now()):
+        abort(404, "No such notice for you on this job (it may have been read already).")
+    if request.headers.get("HX-Request") == "true":
+        return _job_page(job_id)
+    return redirect(url_for("mechanic.job", job_id=job_id), code=303)
 
 
 # The form fields each event kind may carry into its data (everything else is ignored).
