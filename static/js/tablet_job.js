@@ -117,7 +117,9 @@
         var found = tags.find(function (t) { return t.number === number; });
         if (found && step.confirm_existing) found.counts_here = true;  // a tag found hanging
         else tags.push({ breaker: f.breaker, number: number, owner: "you", mine: true,
-                         counts_here: true, this_job: true, on_tablet: true });
+                         counts_here: true, this_job: true, on_tablet: true,
+                         job_id: state.job_id, applied_by: "you", applied_by_me: true,
+                         applied_at: f.device_time || entry.queued_at });
         return;
       }
       if (step.id !== next) {

@@ -37,20 +37,51 @@
       if (found.counts_here) return "Tag " + number + " already counts for this job.";
       return null;
     }
-    if (found) {
-      return "Tag " + number + " already hangs on breaker " + found.breaker +
-        "; each tag has its own number.";
-    }
+    if (found) return tagAlreadyRecorded(number, breaker, found);
     var here = v.tags.filter(function (t) { return t.breaker === breaker; });
     if (step.confirm_existing && here.length) {
       return "No tag " + number + " hangs on " + breaker + "; the station has " +
         here.map(function (t) { return t.number; }).sort().join(", ") +
         " there. Check the number on the tag.";
     }
-    if (here.some(function (t) { return t.this_job; })) {
-      return "This job already has a tag on " + breaker + ".";
-    }
+    var held = here.find(function (t) { return t.this_job; });
+    if (held) return breakerAlreadyTagged(number, breaker, held);
     return null;
+  }
+
+  // As webapp/domain/entry_conflicts.py words them.
+  function stationTime(iso) {
+    if (!iso) return "an unknown time";
+    var at = new Date(iso);
+    if (isNaN(at)) return iso;
+    var utc = at.toISOString();
+    return utc.slice(0, 10) + " " + utc.slice(11, 16) + " UTC";
+  }
+  function tagAlreadyRecorded(number, breaker, existing) {
+    if (existing.breaker !== breaker) {
+      return "Tag " + number + " already hangs on breaker " + existing.breaker + "; each tag " +
+        "has its own number. Check the number on the tag you hung on " + breaker + ".";
+    }
+    var who = existing.mine ? "you" : existing.owner;
+    var at = stationTime(existing.applied_at);
+    var where = existing.this_job ? "for this job" : "for job " + existing.job_id;
+    if (existing.mine) {
+      return "Tag " + number + " on " + breaker + " is already recorded " + where +
+        ", as yours, at " + at + ": this entry is not needed and nothing more is to be done.";
+    }
+    return "Your entry of tag " + number + " on " + breaker + " is not recorded: " + who +
+      " recorded tag " + number + " on " + breaker + " " + where + " at " + at + ", so the " +
+      "station has " + who + " as its owner. If you hung tag " + number + ", tell " + who +
+      " and your supervisor now: only the owner on record takes it off.";
+  }
+  function breakerAlreadyTagged(number, breaker, existing) {
+    var who = existing.applied_by_me ? "you" : existing.applied_by;
+    return "Your tag " + number + " on " + breaker + " is not recorded: " + who +
+      " recorded tag " + existing.number + " on " + breaker + " for this job at " +
+      stationTime(existing.applied_at) + " first, and a job holds one tag on a breaker. " +
+      "Take your tag " + number + " off " + breaker + "; the breaker stays locked out under " +
+      "tag " + existing.number + ", which only its owner takes off. Check with " + who +
+      " before you work on the circuit, and follow your shop's lockout/tagout procedure.";
   }
   // Seconds of the discharge wait still to serve by this tablet's clock: the station's
   // requirement plus the margin it asks of a wait a tablet counted (domain/placement.py).

@@ -56,8 +56,9 @@ def test_a_step_entry_answered_500_is_kept_and_arrives_once(browser, station, db
     expect(saved).to_contain_text("It answered 500")
     expect(page.get_by_test_id("outbox-trouble")).to_contain_text("tried again")
     expect(page.get_by_test_id("outbox-send-now")).to_be_visible()
-    expect(page.get_by_test_id("queued-note")).to_be_visible()
-    expect(page.get_by_test_id("step")).to_have_attribute("data-step-kind", "warning")
+    # Kept, so the tablet goes on from its copy of the job (static/js/tablet_job.js).
+    expect(page.get_by_test_id("step")).to_have_attribute("data-step-kind", "lockout")
+    expect(page.get_by_test_id("tablet-copy")).to_contain_text("not yet at the station")
     assert "{" not in saved.inner_text()
     assert _stored(db_path, job_id, event_id) == []
     page.wait_for_timeout(1500)  # tried again behind its back-off, still 500: still kept
@@ -91,7 +92,7 @@ def test_a_step_entry_that_times_out_is_kept_and_arrives_once(browser, station, 
     # Kept exactly like an entry made without network: the same words.
     expect(page.get_by_test_id("outbox-saved")).to_contain_text(
         "Saved on this tablet — not yet at the station.")
-    expect(page.get_by_test_id("queued-note")).to_be_visible()
+    expect(page.get_by_test_id("tablet-copy")).to_contain_text("not yet at the station")
     assert len(_stored(db_path, job_id, event_id)) == 1  # it did reach the station
 
     page.wait_for_timeout(ENTRY_TIMEOUT_S * 1000 + 500)  # a resend that hangs again: kept

@@ -62,7 +62,8 @@ def test_offline_the_tablet_works_on_through_the_lockout_and_the_station_gets_it
     page.fill("[data-testid=tag-number-IGN-B]", "T-7")
     page.click("[data-testid=tag-IGN-B]")
     expect(page.get_by_test_id("tablet-refusal")).to_have_text(
-        "✗ Tag T-7 already hangs on breaker IGN-A; each tag has its own number.")
+        "✗ Tag T-7 already hangs on breaker IGN-A; each tag has its own number. Check the "
+        "number on the tag you hung on IGN-B.")
     assert page.evaluate(OUTBOX_SIZE) == 2  # the refused tag was not kept
     expect(page.get_by_test_id("done")).to_have_text("Tag every breaker first (IGN-B)")
 

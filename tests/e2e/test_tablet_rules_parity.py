@@ -16,12 +16,15 @@ from webapp.domain.procedures import Lockout
 
 from .conftest import log_in
 
-JOB = 7
+JOB, ME = 7, 1
+NAMES = {1: "Aino Varga", 2: "Tomas Reyes"}  # demo names (invented)
+HUNG_AT = "2026-12-01T08:04:09+00:00"
 BREAKERS = ["IGN-A", "IGN-B", "IGN-C"]
 numbers = st.sampled_from(["T-1", "T-2", " T-1 ", "T-3", "", "   ", "X" * 24, "X" * 25])
+# (number, breaker, job, confirmed here, owner, hung by)
 hanging = st.lists(st.tuples(st.sampled_from(["T-1", "T-2", "T-3", "T-4"]),
                              st.sampled_from(BREAKERS), st.sampled_from([JOB, 8]),
-                             st.booleans()),
+                             st.booleans(), st.sampled_from([1, 2]), st.sampled_from([1, 2])),
                    max_size=4, unique_by=lambda t: t[0])
 cases = st.tuples(hanging, st.sampled_from(BREAKERS[:2]), numbers, st.booleans())
 
@@ -29,13 +32,13 @@ cases = st.tuples(hanging, st.sampled_from(BREAKERS[:2]), numbers, st.booleans()
 def _station_says(tags, breaker: str, number: str, confirm: bool) -> str | None:
     step = Lockout(id="breakers", kind="lockout", text="Tag them.", confirm_existing=confirm,
                    breakers=[{"id": b, "label": b} for b in BREAKERS[:2]])
-    held = {n: gates.Tag(number=n, breaker=b, owner_id=1, job_id=job, applied_by=1,
-                         applied_at="2026-12-01T08:00:00+00:00",
-                         owner_since="2026-12-01T08:00:00+00:00",
+    held = {n: gates.Tag(number=n, breaker=b, owner_id=owner, job_id=job, applied_by=hung_by,
+                         applied_at=HUNG_AT, owner_since=HUNG_AT,
                          confirmed_in=frozenset({JOB}) if confirmed else frozenset())
-            for n, b, job, confirmed in tags}
+            for n, b, job, confirmed, owner, hung_by in tags}
     try:
-        gates.check_breaker_tagged(step, {"breaker": breaker, "tag": number}, held, JOB)
+        gates.check_breaker_tagged(step, {"breaker": breaker, "tag": number}, held, JOB,
+                                   person_id=ME, names=NAMES)
     except RuleRefusal as refusal:
         return refusal.reason
     return None
@@ -43,9 +46,11 @@ def _station_says(tags, breaker: str, number: str, confirm: bool) -> str | None:
 
 def _as_carried(tags) -> list[dict]:
     """The tags as web/carry.py gives them to the tablet."""
-    return [{"breaker": b, "number": n, "owner": "someone", "mine": False,
-             "counts_here": job == JOB or confirmed, "this_job": job == JOB}
-            for n, b, job, confirmed in tags]
+    return [{"breaker": b, "number": n, "owner": NAMES[owner], "mine": owner == ME,
+             "counts_here": job == JOB or confirmed, "this_job": job == JOB, "job_id": job,
+             "applied_by": NAMES[hung_by], "applied_by_me": hung_by == ME,
+             "applied_at": HUNG_AT}
+            for n, b, job, confirmed, owner, hung_by in tags]
 
 
 @pytest.fixture
@@ -88,14 +93,14 @@ def test_a_lockout_counts_as_done_on_the_tablet_exactly_when_the_station_would_p
         tablet_page):
     step = Lockout(id="breakers", kind="lockout", text="Tag them.",
                    breakers=[{"id": b, "label": b} for b in BREAKERS[:2]])
-    for tags in ([], [("T-1", "IGN-A", JOB, False)],
-                 [("T-1", "IGN-A", JOB, False), ("T-2", "IGN-B", 8, False)],
-                 [("T-1", "IGN-A", JOB, False), ("T-2", "IGN-B", 8, True)],
-                 [("T-1", "IGN-A", 8, True), ("T-2", "IGN-B", JOB, False)]):
-        held = {n: gates.Tag(number=n, breaker=b, owner_id=1, job_id=job, applied_by=1,
-                             applied_at="x", owner_since="x",
+    for tags in ([], [("T-1", "IGN-A", JOB, False, 1, 1)],
+                 [("T-1", "IGN-A", JOB, False, 1, 1), ("T-2", "IGN-B", 8, False, 2, 2)],
+                 [("T-1", "IGN-A", JOB, False, 1, 1), ("T-2", "IGN-B", 8, True, 2, 2)],
+                 [("T-1", "IGN-A", 8, True, 2, 2), ("T-2", "IGN-B", JOB, False, 2, 1)]):
+        held = {n: gates.Tag(number=n, breaker=b, owner_id=o, job_id=job, applied_by=h,
+                             applied_at=HUNG_AT, owner_since=HUNG_AT,
                              confirmed_in=frozenset({JOB}) if c else frozenset())
-                for n, b, job, c in tags}
+                for n, b, job, c, o, h in tags}
         station = gates.lockout_complete(step, held, JOB)
         tablet = tablet_page.evaluate(
             "([tags, breakers]) => window.sparkwardTabletJob.rules.breakersLeft("

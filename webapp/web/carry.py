@@ -23,6 +23,7 @@ from ..domain.execution import JobState, StepProgress
 from ..domain.placement import COUNTED_WAIT_MARGIN_S
 from ..domain.procedures import Advisory, Check, DischargeWait, Lockout, Step
 from ..station import recording
+from ..store import people
 from .common import db, person, requires
 
 bp = Blueprint("carry", __name__)
@@ -90,6 +91,21 @@ def job_steps(job_id: int) -> Any:
     return jsonify(carried_steps(job_id))
 
 
+def _tags(gate: dict[str, Any], job_id: int, me: int) -> list[dict[str, Any]]:
+    """The tags hanging on the engine, with what the tablet's tag rules word refusals with
+    (domain/entry_conflicts.py: whose tag, who hung it and when, on which job)."""
+    views = gate["tag_list"]
+    names = people.names_by_id(db(), {v.tag.applied_by for v in views}
+                               | {v.tag.owner_id for v in views})
+    return [{"breaker": v.tag.breaker, "number": v.tag.number,
+             "owner": names.get(v.tag.owner_id, "another person"),
+             "mine": v.tag.owner_id == me, "counts_here": v.counts_here,
+             "this_job": v.tag.job_id == job_id, "job_id": v.tag.job_id,
+             "applied_by": names.get(v.tag.applied_by, "another person"),
+             "applied_by_me": v.tag.applied_by == me, "applied_at": v.tag.applied_at}
+            for v in views]
+
+
 def _discharge_waits(state: JobState, gate: dict[str, Any]) -> dict[str, float]:
     """Seconds each discharge wait still to do asks, for the exciters fitted now."""
     channels = [state.configuration.channel] if state.configuration.channel else ["A", "B"]
@@ -127,8 +143,5 @@ def carried_state(job: recording.Job, station_now: datetime, gate: dict[str, Any
         # wait counted by the tablet's clock asks on top (domain/placement.py).
         "discharge": _discharge_waits(state, gate),
         "counted_margin_s": COUNTED_WAIT_MARGIN_S,
-        "tags": [{"breaker": v.tag.breaker, "number": v.tag.number, "owner": v.owner,
-                  "mine": v.tag.owner_id == me.id, "counts_here": v.counts_here,
-                  "this_job": v.tag.job_id == job.row["id"]}
-                 for v in gate["tag_list"]],
+        "tags": _tags(gate, job.row["id"], me.id),
     }
