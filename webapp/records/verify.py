@@ -9,6 +9,7 @@ the record was printed from.
 from __future__ import annotations
 
 import io
+import logging
 import re
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field, replace
@@ -26,6 +27,12 @@ from .signing import (
     signed_fields,
     verify_record,
 )
+
+# pyHanko (0.38 and later) logs a change it finds after a signature as a warning with its
+# traceback; the check's own report says the same in words (the signature does not cover
+# the change), so that log is kept to errors: a person running `sparkward verify` sees the
+# verdict, not a stack.
+logging.getLogger("pyhanko.sign.diff_analysis").setLevel(logging.ERROR)
 
 _RECORD_ID = re.compile(r"SW-(\d{5})-(\d{3})-([0-9A-F]{8})")
 
