@@ -13,6 +13,7 @@
   var completes = R.completes, tagRefusal = R.tagRefusal, breakersLeft = R.breakersLeft;
   var waitLeft = R.waitLeft, waitRefusal = R.waitRefusal, mmss = R.mmss;
   var el = S.el, stepArticle = S.stepArticle, markProgress = S.markProgress;
+  var KINDS = R.KINDS;
 
   // ---- The tablet's store: "states" (the station's latest word per job), "steps" ----
   var opened = null;
@@ -107,6 +108,8 @@
     // When the input came off, by this tablet's clock: the station's record of it (the
     // device's time it was made at, else the station's), or a disconnection kept here.
     var powerOff = state.power_off_device || state.power_off;
+    var v = { state: state, carried: carried, byId: byId, done: done, onTablet: onTablet,
+              tags: tags, doubts: doubts, waiting: entries.length };
     entries.forEach(function (entry) {
       var f = fieldsOf(entry);
       var step = byId[f.step];
@@ -126,7 +129,8 @@
         doubts.push(step.id);  // made for a step that was not next here: the station decides
         return;
       }
-      if (completes(step, f)) {
+      if (KINDS[step.kind] && KINDS[step.kind].onEntry) KINDS[step.kind].onEntry(v, step, f, entry);
+      if (completes(step, f, v)) {
         done[step.id] = { event_id: entry.event_id, kind: f.kind, at: entry.queued_at };
         onTablet[step.id] = entry;
         if (step.kind === "check" && step.power === "removed") {
@@ -135,9 +139,9 @@
       }
     });
     var nextId = order.find(function (id) { return !(id in done); }) || null;
-    return { state: state, carried: carried, byId: byId, done: done, onTablet: onTablet,
-             tags: tags, next: nextId ? byId[nextId] : null, doubts: doubts,
-             waiting: entries.length, powerOff: powerOff };
+    v.next = nextId ? byId[nextId] : null;
+    v.powerOff = powerOff;
+    return v;
   }
 
   // Show the tablet's view in place of the station's step while entries wait.
@@ -199,6 +203,8 @@
       reason = "Tag every breaker first (" + breakersLeft(current, step).join(", ") + ").";
     } else if (step.kind === "discharge_wait") {
       reason = waitRefusal(waitLeft(current, step, Date.now()));
+    } else if (KINDS[step.kind] && KINDS[step.kind].refusal) {
+      reason = KINDS[step.kind].refusal(current, step, form);
     }
     if (!reason) return;
     event.preventDefault();

@@ -7,8 +7,14 @@
 
   var MAX_TAG_LENGTH = 24;  // as webapp/domain/gates.py
 
+  // More step kinds, each in a file of its own loaded after this one and before
+  // tablet_job.js: KINDS[kind] = { completes(step, fields, v), onEntry(v, step, fields,
+  // entry), refusal(v, step, form) -> words or null, form(v, step, entryForm) -> nodes }.
+  var KINDS = {};
+
   // The event that completes each kind the tablet may record (as domain/execution.py).
-  function completes(step, f) {
+  function completes(step, f, v) {
+    if (KINDS[step.kind] && KINDS[step.kind].completes) return KINDS[step.kind].completes(step, f, v);
     if (step.kind === "warning" || step.kind === "caution") return f.kind === "acknowledged";
     if (step.kind === "note" || step.kind === "lockout" || step.kind === "discharge_wait") {
       return f.kind === "step_done";
@@ -113,6 +119,7 @@
   }
 
   window.sparkwardTabletRules = {
+    KINDS: KINDS, stationTime: stationTime,
     MAX_TAG_LENGTH: MAX_TAG_LENGTH, completes: completes, tagRefusal: tagRefusal,
     breakersLeft: breakersLeft, waitLeft: waitLeft, waitRefusal: waitRefusal, mmss: mmss,
   };

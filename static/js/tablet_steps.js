@@ -149,7 +149,8 @@
       return article;
     }
     var kind = step.kind === "warning" || step.kind === "caution" ? "advisory" : step.kind;
-    FORMS[kind](v, step).forEach(function (node) { article.append(node); });
+    var make = FORMS[kind] || (R.KINDS[kind] && R.KINDS[kind].form);
+    make(v, step, entryForm).forEach(function (node) { article.append(node); });
     return article;
   }
 
@@ -185,5 +186,6 @@
     }
   }
 
-  window.sparkwardTabletSteps = { el: el, stepArticle: stepArticle, markProgress: markProgress };
+  window.sparkwardTabletSteps = { el: el, entryForm: entryForm, stepArticle: stepArticle,
+                                  markProgress: markProgress, KEPT: KEPT };
 })();
