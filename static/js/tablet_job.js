@@ -130,13 +130,15 @@
         return;
       }
       if (KINDS[step.kind] && KINDS[step.kind].onEntry) KINDS[step.kind].onEntry(v, step, f, entry);
-      if (completes(step, f, v)) {
+      var completed = completes(step, f, v);
+      if (completed) {
         done[step.id] = { event_id: entry.event_id, kind: f.kind, at: entry.queued_at };
         onTablet[step.id] = entry;
         if (step.kind === "check" && step.power === "removed") {
           powerOff = f.device_time || entry.queued_at;
         }
       }
+      R.OBSERVERS.forEach(function (observe) { observe(v, step, f, entry, completed); });
     });
     var nextId = order.find(function (id) { return !(id in done); }) || null;
     v.next = nextId ? byId[nextId] : null;

@@ -11,6 +11,9 @@
   // tablet_job.js: KINDS[kind] = { completes(step, fields, v), onEntry(v, step, fields,
   // entry), refusal(v, step, form) -> words or null, form(v, step, entryForm) -> nodes }.
   var KINDS = {};
+  // Functions (v, step, fields, entry, completed) told of every entry the tablet's view
+  // applies, whatever its step's kind (e.g. to follow when the lead was last grounded).
+  var OBSERVERS = [];
 
   // The event that completes each kind the tablet may record (as domain/execution.py).
   function completes(step, f, v) {
@@ -119,7 +122,7 @@
   }
 
   window.sparkwardTabletRules = {
-    KINDS: KINDS, stationTime: stationTime,
+    KINDS: KINDS, OBSERVERS: OBSERVERS, stationTime: stationTime,
     MAX_TAG_LENGTH: MAX_TAG_LENGTH, completes: completes, tagRefusal: tagRefusal,
     breakersLeft: breakersLeft, waitLeft: waitLeft, waitRefusal: waitRefusal, mmss: mmss,
   };
