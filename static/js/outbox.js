@@ -189,11 +189,12 @@
       status.loginNeeded = true;
       return "login";
     }
+    var html = await response.text();
     if (response.ok) {
+      await keepStationWord(html);  // first: the tablet's copy never goes back a step
       await store.remove(entry);
       return "sent";
     }
-    var html = await response.text();
     if (response.status === 400 && /security token/.test(html)) {
       // The page's token is older than the session: fetch the current one, once.
       var fresh = token === screen.meta("csrf-token") ? await freshToken() : null;
@@ -202,12 +203,26 @@
       return "login";
     }
     if (!stationTrouble(response.status)) {
+      await keepStationWord(html);
       await store.refuse(entry, reasonFrom(html, response), response.status);
       return "refused";
     }
     status.trouble = "It answered " + response.status +
       (response.statusText ? " " + response.statusText : "") + ".";
     return "trouble";
+  }
+
+  // The station's answer to an entry carries the job as it now stands (its job fragment's
+  // data-job-carry): the tablet's copy of the job (static/js/tablet_job.js) keeps it before
+  // the entry leaves the outbox, so no screen shows the job without both.
+  async function keepStationWord(html) {
+    if (!window.sparkwardTabletJob) return;
+    var doc = new DOMParser().parseFromString(html, "text/html");
+    var job = doc.getElementById("job");
+    if (!job || !job.dataset.jobCarry) return;
+    try {
+      await window.sparkwardTabletJob.keep(JSON.parse(job.dataset.jobCarry));
+    } catch (error) { /* the copy stays as it was; the next page brings it up to date */ }
   }
 
   async function sendInOrder(who) {

@@ -242,6 +242,7 @@
     // The mirrored rules, for the test that holds them to the station's (tests/e2e).
     rules: R,
     state: function (jobId) { return read("states", jobId); },
+    keep: function (state) { return remember(state); },
     steps: function (jobId) { return read("steps", jobId); },
   };
 })();

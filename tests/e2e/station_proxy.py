@@ -3,7 +3,9 @@ switched to the hangar's worst Wi-Fi, one that connects and then never answers.
 
 `hold()`: connections are still accepted and requests read, but nothing reaches the station
 (so nothing comes back) until `release()`, which forwards what was held: a station that
-answers late. Used by the page-timeout browser tests and by bench/shell_bytes.py.
+answers late. `refuse()`: the Wi-Fi is up but the station cannot be reached: every
+connection, open or new, is closed at once, until `release()`. Used by the page-timeout and
+offline property browser tests and by bench/shell_bytes.py.
 """
 
 from __future__ import annotations
@@ -19,6 +21,7 @@ class StationProxy:
         self.port = self._listener.getsockname()[1]
         self._flowing = threading.Event()
         self._flowing.set()
+        self._refusing = False
         self._closed = False
         self._lock = threading.Lock()
         self.bytes_to_tablet = 0  # the station's answers, headers and bodies, as sent
@@ -34,7 +37,17 @@ class StationProxy:
         self._flowing.clear()
 
     def release(self) -> None:
+        self._refusing = False
         self._flowing.set()
+
+    def refuse(self) -> None:
+        self._refusing = True
+        self._flowing.set()
+        for sock in list(self._sockets):
+            try:
+                sock.shutdown(socket.SHUT_RDWR)
+            except OSError:
+                pass
 
     def reset_counts(self) -> None:
         with self._lock:
@@ -56,6 +69,9 @@ class StationProxy:
                 tablet, _ = self._listener.accept()
             except OSError:
                 return
+            if self._refusing:
+                tablet.close()
+                continue
             try:
                 station = socket.create_connection(("127.0.0.1", self.station_port))
             except OSError:
