@@ -43,12 +43,24 @@ self.addEventListener("activate", (event) => {
       .then(() => self.clients.claim()));
 });
 
+// The tablet's copies of its jobs (IndexedDB), shared with the page: self.sparkwardJobCopies.
+/* the station writes static/js/job_copies.js here */
+// The station's answers that carry a job's state: an entry's answer and a job fragment.
+const JOB_ANSWER = /^\/jobs\/\d+(\/events|\/steps\/[^/]+)?$/;
+
 self.addEventListener("fetch", (event) => {
   const request = event.request;
-  // Pages and fragments vary by HX-Request; writes go to the station or to the outbox.
-  if (request.method !== "GET" || request.headers.has("HX-Request")) return;
   const url = new URL(request.url);
   if (url.origin !== self.location.origin) return;
+  if (JOB_ANSWER.test(url.pathname) &&
+      (request.method === "POST" || request.headers.has("HX-Request"))) {
+    // Straight to the station, never from a cache; what it answers about the job is kept
+    // here too, so a page that has gone on before its own write finished loses nothing.
+    event.respondWith(stationAnswerKept(event));
+    return;
+  }
+  // Pages and fragments vary by HX-Request; writes go to the station or to the outbox.
+  if (request.method !== "GET" || request.headers.has("HX-Request")) return;
   if (request.mode === "navigate") {
     event.respondWith(pageFromStation(event, url));
   } else if (SHELL_PATHS.has(url.pathname)) {
@@ -66,7 +78,8 @@ function pageFromStation(event, url) {
       // Someone logged out (or was sent to log in): their saved pages leave the tablet.
       keeping = caches.delete(PAGES_CACHE);
     } else if (isPage(response)) {
-      keeping = keepPage(url.href, response.clone());
+      keeping = Promise.all([keepPage(url.href, response.clone()),
+                             keepJobState(response.clone())]);
     }
     return { response, keeping };
   });
@@ -134,4 +147,17 @@ async function shellFile(request, url) {
     if (current) return current;
     throw error;
   }
+}
+
+function stationAnswerKept(event) {
+  const answered = fetch(event.request);
+  event.waitUntil(answered.then((response) => keepJobState(response.clone()))
+    .catch(() => undefined));
+  return answered;
+}
+
+async function keepJobState(response) {
+  if (!(response.headers.get("Content-Type") || "").startsWith("text/html")) return;
+  const state = self.sparkwardJobCopies.stateInHtml(await response.text());
+  if (state) await self.sparkwardJobCopies.keepState(state);
 }

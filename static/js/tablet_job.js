@@ -8,56 +8,15 @@
 (function () {
   "use strict";
 
-  var DB_NAME = "sparkward-jobs";
   var R = window.sparkwardTabletRules, S = window.sparkwardTabletSteps;
   var completes = R.completes, tagRefusal = R.tagRefusal, breakersLeft = R.breakersLeft;
   var waitLeft = R.waitLeft, waitRefusal = R.waitRefusal, mmss = R.mmss;
   var el = S.el, stepArticle = S.stepArticle, markProgress = S.markProgress;
   var KINDS = R.KINDS;
 
-  // ---- The tablet's store: "states" (the station's latest word per job), "steps" ----
-  var opened = null;
-  function database() {
-    if (!opened) {
-      opened = new Promise(function (resolve, reject) {
-        var request = indexedDB.open(DB_NAME, 1);
-        request.onupgradeneeded = function () {
-          request.result.createObjectStore("states", { keyPath: "job_id" });
-          request.result.createObjectStore("steps", { keyPath: "job_id" });
-        };
-        request.onsuccess = function () { resolve(request.result); };
-        request.onerror = function () { reject(request.error); };
-      });
-    }
-    return opened;
-  }
-  function read(store, key) {
-    return database().then(function (db) {
-      return new Promise(function (resolve, reject) {
-        var request = db.transaction(store).objectStore(store).get(key);
-        request.onsuccess = function () { resolve(request.result || null); };
-        request.onerror = function () { reject(request.error); };
-      });
-    });
-  }
-  function write(store, value) {
-    return database().then(function (db) {
-      return new Promise(function (resolve, reject) {
-        var tx = db.transaction(store, "readwrite");
-        tx.objectStore(store).put(value);
-        tx.oncomplete = function () { resolve(value); };
-        tx.onerror = tx.onabort = function () { reject(tx.error); };
-      });
-    });
-  }
-
-  // The newer of two states of one job: more events, or the same events seen later.
-  function newer(a, b) {
-    if (!a) return b;
-    if (!b) return a;
-    if (a.head.seq !== b.head.seq) return a.head.seq > b.head.seq ? a : b;
-    return a.station_time >= b.station_time ? a : b;
-  }
+  // ---- The tablet's store (static/js/job_copies.js) ----
+  var C = window.sparkwardJobCopies;
+  var read = C.read, write = C.write;
 
   function pageState() {
     var job = document.getElementById("job");
@@ -67,11 +26,8 @@
 
   // Keep the station's word, and the job's steps once.
   function remember(state) {
-    return read("states", state.job_id).then(function (kept) {
-      var best = newer(kept, state);
-      return (best === kept ? Promise.resolve(kept) : write("states", state))
-        .then(function () { return stepsFor(state); })
-        .then(function (steps) { return { state: best, steps: steps }; });
+    return C.keepState(state).then(function (best) {
+      return stepsFor(best).then(function (steps) { return { state: best, steps: steps }; });
     });
   }
   function stepsFor(state) {

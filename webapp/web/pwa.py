@@ -15,6 +15,9 @@ from .common import public
 # What static/js/sw.js says until the station fills it in (fill_in_worker).
 VERSION_PLACEHOLDER = 'const VERSION = "unfilled";'
 SHELL_PLACEHOLDER = "const SHELL_FILES = [];"
+# Where the worker's copy of static/js/job_copies.js goes (the page loads the same file):
+# written into the worker, not imported, so the tablet fetches that file once.
+JOB_COPIES_PLACEHOLDER = "/* the station writes static/js/job_copies.js here */"
 
 bp = Blueprint("pwa", __name__)
 
@@ -32,6 +35,10 @@ def service_worker() -> Any:
 
     no-cache: the browser checks for a new worker on every visit."""
     source = _static("js", "sw.js").read_text(encoding="utf-8")
+    if source.count(JOB_COPIES_PLACEHOLDER) != 1:
+        raise RuntimeError(f"static/js/sw.js must hold exactly one {JOB_COPIES_PLACEHOLDER!r}")
+    source = source.replace(JOB_COPIES_PLACEHOLDER,
+                            _static("js", "job_copies.js").read_text(encoding="utf-8"))
     shell = assets.shell_urls()
     version = hashlib.sha256("\n".join([source, *shell]).encode()).hexdigest()[:16]
     script = fill_in_worker(source, version, shell)
