@@ -90,12 +90,13 @@ class Tablet:
         self.tags = 0
         self.page = None
         self.mode = "online"
+        # Every request the tablet makes, from its pages and from its service worker.
+        self.context.on("request", self._note)
         self.open_page()
 
     def open_page(self) -> None:
         self.page = self.context.new_page()
         self.page.set_default_timeout(15_000)
-        self.page.on("request", self._note)
 
     def _note(self, request) -> None:
         if request.method == "POST" and request.url.split("?")[0].endswith("/events"):
@@ -241,13 +242,22 @@ def test_whatever_the_network_does_the_station_gets_each_entry_once(
             else:
                 tablet.page.wait_for_timeout(rng.randint(200, 900))
         except Exception as error:  # noqa: BLE001 - said with where it happened
-            if "Timeout" not in type(error).__name__ and "net::" not in str(error):
+            # A tap or a look that met a page reloading itself (the outbox reloads a kept
+            # copy once its entries are in), or a load the network cut: part of the game.
+            expected = ("Timeout" in type(error).__name__ or "net::" in str(error)
+                        or "context was destroyed" in str(error))
+            if not expected:
                 raise AssertionError(f"{where}: {error}") from error
         _check_screen(tablet, db_path, job_ids, where)
 
     # The network comes back for good: everything kept goes, once, and nothing is refused.
     tablet.set_mode("online")
-    tablet.goto(f"{station.url}/jobs/{job_ids[0]}")
+    for _ in range(3):  # (a reload the outbox starts can abort this navigation: again)
+        try:
+            tablet.goto(f"{station.url}/jobs/{job_ids[0]}")
+            break
+        except Exception as error:  # noqa: BLE001
+            assert "net::ERR_ABORTED" in str(error), error
     wait_until(tablet.page, OUTBOX_EMPTY, timeout_s=60)
     refused = tablet.page.evaluate("window.sparkwardOutbox.refusals()")
     assert refused == [], refused
