@@ -95,6 +95,7 @@ def register_extensions(app: Flask) -> None:
 
 def register_blueprints(app: Flask) -> None:
     from .web import (
+        account,
         admin,
         api,
         auth,
@@ -107,8 +108,8 @@ def register_blueprints(app: Flask) -> None:
         supervisor,
     )
 
-    for room in (auth, mechanic, carry, fleet, api, procedures, supervisor, admin, pwa,
-                 station):
+    for room in (auth, account, mechanic, carry, fleet, api, procedures, supervisor, admin,
+                 pwa, station):
         app.register_blueprint(room.bp)
 
 

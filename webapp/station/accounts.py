@@ -205,6 +205,26 @@ def end_sessions(db: store.Database, person_id: int, now: datetime, why: str) ->
         return sessions.end_sessions_of(db, person_id, now, why)
 
 
+def end_own_sessions(db: store.Database, person: people.Person, password: str, *,
+                     numbers: list[int], address: str, now: datetime,
+                     policy: ThrottlePolicy) -> int:
+    """A person ends sessions of their own (a tablet left logged in), after giving their
+    password again (OWASP ASVS 4.0.3 V3.3.4): checked and throttled as a log-in is, a wrong
+    one counted as a failed log-in. LoginRefused when it does not match."""
+    _refuse_if_waiting(_attempt(db, person.username, address, now, policy), policy, now)
+    stored = people.password_hash_of(db, person.username)
+    ok = stored is not None and check_password_hash(stored, password)
+    with store.writing(db):
+        attempt = _attempt(db, person.username, address, now, policy)
+        _refuse_if_waiting(attempt, policy, now)
+        if not ok:
+            people.record_login_failure(db, person.username, address, now)
+        else:
+            return sessions.end_numbered(db, person.id, numbers, now, "ended by its owner")
+    raise LoginRefused("That is not your password: nothing was ended."
+                       + _next_wait(attempt, policy, now))
+
+
 def revoke_access(db: store.Database, person_id: int, now: datetime) -> None:
     """No more log-in or signing for this person; their sessions end now."""
     with store.writing(db):

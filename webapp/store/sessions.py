@@ -83,3 +83,26 @@ def open_sessions_by_person(db: Database, *, created_since: datetime,
                 "from sessions where ended_at is null and created_at > ? "
                 "and last_seen_at > ? group by person_id",
                 [created_since.isoformat(), seen_since.isoformat()])}
+
+
+def sessions_of(db: Database, person_id: int, *, created_since: datetime,
+                seen_since: datetime) -> list[dict]:
+    """A person's sessions still open and within both limits, newest first: a number for
+    each (its row), when it began and was last seen, from where and on what."""
+    return list(db.query(
+        "select rowid as number, token_hash, created_at, last_seen_at, client_address, "
+        "user_agent from sessions where person_id = ? and ended_at is null "
+        "and created_at > ? and last_seen_at > ? order by last_seen_at desc",
+        [person_id, created_since.isoformat(), seen_since.isoformat()]))
+
+
+def end_numbered(db: Database, person_id: int, numbers: list[int], now: datetime,
+                 why: str) -> int:
+    """End the person's own open sessions among `numbers` (another's are left alone)."""
+    ended = 0
+    for number in numbers:
+        cursor = db.execute("update sessions set ended_at = ?, ended_why = ? where rowid = ? "
+                            "and person_id = ? and ended_at is null",
+                            [now.isoformat(), why, number, person_id])
+        ended += int(cursor.rowcount)
+    return ended
