@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import threading
 import time
+from contextlib import contextmanager
 from datetime import UTC, datetime
 
 import pytest
@@ -20,16 +21,26 @@ def station_clock():
     return ManualClock(datetime.now(UTC).replace(microsecond=0))
 
 
-@pytest.fixture
-def live_server(db_path, station_clock):
+@contextmanager
+def serving(db_path, station_clock, **settings):
+    """The real station on a free port over `db_path`, with `settings` in its config;
+    yields its port, and stops it afterwards."""
     app = create_app({"DB_PATH": str(db_path), "SECRET_KEY": "e2e-secret",
-                      "CLOCK": station_clock})
+                      "CLOCK": station_clock, **settings})
     server = make_server("127.0.0.1", 0, app, threaded=True)
     thread = threading.Thread(target=server.serve_forever, daemon=True)
     thread.start()
-    yield f"http://127.0.0.1:{server.server_port}"
-    server.shutdown()
-    thread.join(timeout=5)
+    try:
+        yield server.server_port
+    finally:
+        server.shutdown()
+        thread.join(timeout=5)
+
+
+@pytest.fixture
+def live_server(db_path, station_clock):
+    with serving(db_path, station_clock) as port:
+        yield f"http://127.0.0.1:{port}"
 
 
 def log_in(page, base_url: str, username: str, password: str) -> None:

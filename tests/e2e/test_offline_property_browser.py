@@ -13,18 +13,16 @@ from __future__ import annotations
 
 import os
 import random
-import threading
 from urllib.parse import parse_qs
 
 import pytest
-from werkzeug.serving import make_server
 
 from tests.web.jobs import DEMO_101_ENGINE_1
-from webapp import create_app, store
+from webapp import store
 from webapp.domain.execution import COMPLETING_EVENT
 from webapp.store import jobs as job_store
 
-from .conftest import log_in, wait_until
+from .conftest import log_in, serving, wait_until
 from .station_proxy import StationProxy
 from .test_offline import OUTBOX_EMPTY, WORKER_IN_CHARGE, Network
 
@@ -50,16 +48,10 @@ SHOWN = """() => {
 @pytest.fixture
 def station(db_path, station_clock):
     """The station with a short entry timeout, behind a relay the test can cut or silence."""
-    app = create_app({"DB_PATH": str(db_path), "SECRET_KEY": "property-secret",
-                      "CLOCK": station_clock, "ENTRY_TIMEOUT_S": ENTRY_TIMEOUT_S})
-    server = make_server("127.0.0.1", 0, app, threaded=True)
-    thread = threading.Thread(target=server.serve_forever, daemon=True)
-    thread.start()
-    relay = StationProxy(server.server_port)
-    yield relay
-    relay.close()
-    server.shutdown()
-    thread.join(timeout=5)
+    with serving(db_path, station_clock, ENTRY_TIMEOUT_S=ENTRY_TIMEOUT_S) as port:
+        relay = StationProxy(port)
+        yield relay
+        relay.close()
 
 
 def _station_events(db_path, job_ids) -> list[dict]:

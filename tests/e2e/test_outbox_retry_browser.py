@@ -4,16 +4,12 @@ station answers; "Send now"; and two tablets on one job, one late, both told."""
 
 from __future__ import annotations
 
-import threading
 import time
 
 import pytest
 from playwright.sync_api import expect
-from werkzeug.serving import make_server
 
-from webapp import create_app
-
-from .conftest import log_in, open_removal_to_warning, tap, wait_until
+from .conftest import log_in, open_removal_to_warning, serving, tap, wait_until
 from .test_offline import OUTBOX_EMPTY, _job_and_event, _stored
 from .test_tablet_grade import VIEWPORTS
 
@@ -25,14 +21,8 @@ HEALTH = "**/healthz"
 @pytest.fixture
 def station(db_path, station_clock):
     """The real station on a free port, with a short step-entry timeout for the tablets."""
-    app = create_app({"DB_PATH": str(db_path), "SECRET_KEY": "e2e-secret",
-                      "CLOCK": station_clock, "ENTRY_TIMEOUT_S": ENTRY_TIMEOUT_S})
-    server = make_server("127.0.0.1", 0, app, threaded=True)
-    thread = threading.Thread(target=server.serve_forever, daemon=True)
-    thread.start()
-    yield f"http://127.0.0.1:{server.server_port}"
-    server.shutdown()
-    thread.join(timeout=5)
+    with serving(db_path, station_clock, ENTRY_TIMEOUT_S=ENTRY_TIMEOUT_S) as port:
+        yield f"http://127.0.0.1:{port}"
 
 
 def _tablet(browser):
