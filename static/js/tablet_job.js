@@ -113,7 +113,10 @@
     entries.forEach(function (entry) {
       var f = fieldsOf(entry);
       var step = byId[f.step];
-      if (!step) return;
+      if (!step) {  // an anytime entry (e.g. the lead grounded again): observers only
+        R.OBSERVERS.forEach(function (observe) { observe(v, null, f, entry, false); });
+        return;
+      }
       var next = order.find(function (id) { return !(id in done); });
       if (f.kind === "breaker_tagged") {
         var number = String(f.tag || "").trim();
@@ -196,9 +199,13 @@
     var form = event.detail.elt.closest && event.detail.elt.closest("form[data-tablet-form]");
     if (!form || !current) return;
     var kind = form.querySelector("[name=kind]").value;
-    var step = current.byId[form.querySelector("[name=step]").value];
+    var named = form.querySelector("[name=step]");
+    var step = named ? current.byId[named.value] : null;
     var reason = null;
-    if (kind === "breaker_tagged") {
+    R.GUARDS.some(function (guard) { return (reason = guard(current, step, form)); });
+    if (reason || !step) {
+      // a guard refused it, or an anytime entry the guards let through
+    } else if (kind === "breaker_tagged") {
       reason = tagRefusal(current, step, form.querySelector("[name=breaker]").value,
                           form.querySelector("[name=tag]").value);
     } else if (step.kind === "lockout" && breakersLeft(current, step).length) {
