@@ -5,12 +5,14 @@ station says so; back online every entry arrives once, in order."""
 
 from __future__ import annotations
 
+import json
 import re
 
 import pytest
 from playwright.sync_api import expect
 
 from webapp import store
+from webapp.store import engines
 from webapp.store import jobs as job_store
 
 from .conftest import open_removal_to_warning, tap, wait_until
@@ -19,6 +21,18 @@ from .test_tablet_grade import VIEWPORTS, _audit
 
 STEPS_KEPT = "async () => !!(await window.sparkwardTabletJob.steps({job}))"
 OUTBOX_SIZE = "async () => (await window.sparkwardOutbox.entries()).length"
+
+
+def _engine_now(db_path, job_id: int):
+    """The exciter the station has fitted at the job's position (demo data) and the engine's
+    last usage totals, if any (a removal records them; the same figures follow the last
+    entry; invented figures where the engine has none yet)."""
+    db = store.connect(db_path)
+    try:
+        engine = engines.current(db, job_store.job(db, job_id)["engine_id"])
+        return engine.fitted("exciter", "A"), engine.usage
+    finally:
+        db.close()
 
 
 def _events(db_path, job_id: int) -> list[dict]:
@@ -44,6 +58,7 @@ def test_offline_the_tablet_works_on_through_the_lockout_and_the_station_gets_it
     job_id = int(page.get_by_test_id("job").get_attribute("data-job-id"))
     wait_until(page, STEPS_KEPT.format(job=job_id))  # the job's steps are on the tablet
     before = len(_events(db_path, job_id))
+    fitted, usage = _engine_now(db_path, job_id)  # the demo engine's exciter, its totals
     step = page.get_by_test_id("step")
 
     network.cut()
@@ -96,38 +111,92 @@ def test_offline_the_tablet_works_on_through_the_lockout_and_the_station_gets_it
     station_clock.advance(151)  # the station's clock keeps the tablet's time (both real)
     expect(countdown).to_have_text("0:00")
     tap(page, "[data-testid=done]")
-    # The isolation check is a reading: the station judges it, so the tablet waits here.
+    # The isolation check is a reading: judged on the tablet against the carried limits,
+    # with the register's voltmeter, in the station's words.
     expect(step).to_have_attribute("data-step-id", "verify-isolation")
+    expect(page.get_by_test_id("limits")).to_have_text("Limits: at most 0.5 V")
+    page.select_option("[data-testid=instrument-pick]", "VM-004")
+    page.fill("[data-testid=reading-value]", "0,02x")
+    page.click("[data-testid=record-reading]")
+    expect(page.get_by_test_id("tablet-refusal")).to_have_text("✗ '0,02x' is not a number.")
+    page.fill("[data-testid=reading-value]", "0.02")
+    expect(page.get_by_test_id("tablet-verdict")).to_have_text("✓ within")
+    tap(page, "[data-testid=record-reading]")
+    expect(step).to_have_attribute("data-step-id", "disconnect-leads")
+    tap(page, "[data-testid=done]")  # the terminal becomes reachable: no grounding yet
+    expect(step).to_have_attribute("data-step-id", "ground-lead")
+    tap(page, "[data-testid=acknowledge]")
+    tap(page, "[data-testid=acknowledge]")  # cap the connectors (CAUTION)
+    expect(step).to_have_attribute("data-step-id", "ground-terminals")
+    tap(page, "[data-testid=done]")  # grounded: the tablet's clock starts the window
+    expect(step).to_have_attribute("data-step-id", "sealed-unit")
+    tap(page, "[data-testid=acknowledge]")
+    expect(step).to_have_attribute("data-step-id", "remove-unit")
+    expect(page.get_by_test_id("grounded-at")).to_contain_text("Lead last grounded")
+    tap(page, "[data-testid=done]")
+    expect(step).to_have_attribute("data-step-id", "removed-exciter")
+    expect(page.get_by_test_id("fitted-serial")).to_have_text(fitted.serial)
+    page.fill("[data-testid=part-number]", fitted.part_number)
+    page.fill("[data-testid=part-serial]", fitted.serial)
+    page.check("[data-testid=status-unserviceable]")
+    page.check("[data-testid=reason-failed]")
+    page.fill("[data-testid=part-tag]", "U-4471")
+    page.fill("[data-testid=part-engine-hours]", "-5")
+    page.fill("[data-testid=part-starts]", str(usage.starts if usage else 950))
+    page.click("[data-testid=record-part]")  # hours below zero: the station's words, here
+    expect(page.get_by_test_id("tablet-refusal")).to_have_text(
+        "✗ Enter the engine's engine hours (a number from its log).")
+    page.fill("[data-testid=part-engine-hours]", f"{usage.engine_hours if usage else 1200:g}")
+    tap(page, "[data-testid=record-part]")
+    expect(step).to_have_attribute("data-step-id", "tool-count")
+    for index in range(3):
+        page.check(f"[data-testid=item-{index}]")
+    tap(page, "[data-testid=done]")
+    # The performer's signature needs the station: the PIN never stays on the tablet.
+    expect(step).to_have_attribute("data-step-id", "performer")
     expect(page.get_by_test_id("needs-station")).to_contain_text("This step needs the station.")
+    expect(page.get_by_test_id("needs-station")).to_contain_text("A signature needs the station")
     expect(page.locator("[data-testid=step] form")).to_have_count(0)
-    assert page.evaluate(OUTBOX_SIZE) == 7
+    assert page.evaluate(OUTBOX_SIZE) == 16
     assert len(_events(db_path, job_id)) == before  # nothing reached the station yet
 
     page.close()  # the app closed and opened again, still offline
     page = context.new_page()
     page.goto(f"{live_server}/jobs/{job_id}")
     step = page.get_by_test_id("step")
-    expect(step).to_have_attribute("data-step-id", "verify-isolation")
+    expect(step).to_have_attribute("data-step-id", "performer")
     expect(page.get_by_test_id("progress-kept-breakers")).to_be_visible()
-    expect(page.get_by_test_id("progress-kept-discharge")).to_be_visible()
+    expect(page.get_by_test_id("progress-kept-removed-exciter")).to_be_visible()
 
     network.restore()
     # The entries go; the page then reloads from the station (it was the worker's copy).
-    expect(step).to_have_attribute("data-step-id", "verify-isolation", timeout=30_000)
-    expect(page.get_by_test_id("outbox-count")).to_be_hidden()
+    expect(page.get_by_test_id("outbox-count")).to_be_hidden(timeout=30_000)
     wait_until(page, OUTBOX_EMPTY)
+    expect(step).to_have_attribute("data-step-id", "performer", timeout=30_000)
     expect(page.get_by_test_id("tablet-copy")).to_have_count(0)  # the station's own screen
     events = _events(db_path, job_id)[before:]
     assert [(e["kind"], e["step_id"]) for e in events] == [
         ("acknowledged", "lethal-energy-breakers"),
         ("breaker_tagged", "breakers"), ("breaker_tagged", "breakers"),
         ("step_done", "breakers"), ("step_done", "input-first"),
-        ("step_done", "disconnect-input"), ("step_done", "discharge")]
+        ("step_done", "disconnect-input"), ("step_done", "discharge"),
+        ("reading_recorded", "verify-isolation"), ("step_done", "disconnect-leads"),
+        ("acknowledged", "ground-lead"), ("acknowledged", "cap-connectors"),
+        ("step_done", "ground-terminals"), ("acknowledged", "sealed-unit"),
+        ("step_done", "remove-unit"), ("part_recorded", "removed-exciter"),
+        ("step_done", "tool-count")]
     # The wait was placed by the tablet's count: the station's copy of it says so.
-    assert events[-1]["device_sent"] is not None
+    assert events[6]["device_sent"] is not None
     assert [e["data"].get("tag") for e in events if e["kind"] == "breaker_tagged"] == [
         "T-7", "T-8"]
+    reading = events[7]["data"]
+    assert reading["verdict"] == "within" and reading["isolation"] == "verified"
+    assert reading["instrument"]["id"] == "VM-004"
+    assert events[14]["data"]["verdict"] == "matches"
     assert len({e["id"] for e in events}) == len(events)
+    # The station's word equals the tablet's: the performer's signature is next.
+    carried = page.get_by_test_id("job").get_attribute("data-job-carry")
+    assert json.loads(carried)["next"] == "performer"
     context.close()
 
 
