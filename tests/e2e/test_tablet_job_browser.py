@@ -232,3 +232,77 @@ def test_a_countdown_on_the_kept_copy_goes_on_from_when_the_page_was_kept(
     page.wait_for_timeout(300)  # a tick of the page's clock
     assert _seconds(countdown.inner_text()) <= 117  # not 2:00 again
     context.close()
+
+
+@pytest.mark.browser
+def test_offline_a_lapsed_grounding_is_refused_and_grounding_again_is_kept_on_the_tablet(
+        browser, live_server, db_path, station_clock):
+    context = browser.new_context(viewport=VIEWPORTS["tablet-landscape"], has_touch=True)
+    network = Network(context)
+    context.clock.install(time=station_clock())
+    page = context.new_page()
+    open_removal_to_warning(page, live_server)
+    page.wait_for_function(WORKER_IN_CHARGE, polling=50)
+    page.reload()
+    wait_until(page, PAGE_SAVED)
+    job_id = int(page.get_by_test_id("job").get_attribute("data-job-id"))
+    wait_until(page, STEPS_KEPT.format(job=job_id))
+    step = page.get_by_test_id("step")
+    # At the station, online: the lockout, the disconnection, the wait and the isolation.
+    tap(page, "[data-testid=acknowledge]")
+    for breaker, tag in (("IGN-A", "T-31"), ("IGN-B", "T-32")):
+        page.fill(f"[data-testid=tag-number-{breaker}]", tag)
+        tap(page, f"[data-testid=tag-{breaker}]")
+    tap(page, "[data-testid=done]")
+    tap(page, "[data-testid=continue]")
+    tap(page, "[data-testid=done]")
+    station_clock.advance(125)
+    page.clock.fast_forward("02:05")
+    page.reload()
+    tap(page, "[data-testid=done]")
+    expect(step).to_have_attribute("data-step-id", "verify-isolation")
+    page.select_option("[data-testid=instrument-pick]", "VM-004")
+    page.fill("[data-testid=reading-value]", "0.01")
+    tap(page, "[data-testid=record-reading]")
+    expect(step).to_have_attribute("data-step-id", "disconnect-leads")
+    before = len(_events(db_path, job_id))
+
+    network.cut()
+    tap(page, "[data-testid=done]")
+    tap(page, "[data-testid=acknowledge]")
+    tap(page, "[data-testid=acknowledge]")
+    expect(step).to_have_attribute("data-step-id", "ground-terminals")
+    tap(page, "[data-testid=done]")  # grounded, by the tablet's clock
+    tap(page, "[data-testid=acknowledge]")
+    expect(step).to_have_attribute("data-step-id", "remove-unit")
+    expect(page.get_by_test_id("grounded-at")).to_contain_text("Lead last grounded")
+    # A pause longer than the window: a break, a part fetched from stores.
+    page.clock.fast_forward("16:00")
+    station_clock.advance(16 * 60)
+    page.click("[data-testid=done]")
+    refusal = page.get_by_test_id("tablet-refusal")
+    expect(refusal).to_contain_text(re.compile(
+        r"✗ The lead was last grounded at \d\d:\d\d station time, 16:0\d ago; the lead and "
+        r"the exciter are handled within 15 min of grounding\. Ground the lead's terminal and "
+        r"the exciter output again with the insulated probe, record it \('Lead grounded "
+        r"again'\), then do this step\."))
+    kept = page.evaluate(OUTBOX_SIZE)
+    assert kept == 5  # the refused step was not kept
+    tap(page, "[data-testid=lead-grounded]")  # the station's own entry, kept here
+    expect(page.get_by_test_id("grounding-due")).to_have_count(0)
+    expect(page.get_by_test_id("grounded-at")).to_contain_text("0:0")
+    tap(page, "[data-testid=done]")
+    expect(step).to_have_attribute("data-step-id", "removed-exciter")
+    assert page.evaluate(OUTBOX_SIZE) == kept + 2
+
+    network.restore()
+    expect(page.get_by_test_id("outbox-count")).to_be_hidden(timeout=30_000)
+    wait_until(page, OUTBOX_EMPTY)
+    expect(step).to_have_attribute("data-step-id", "removed-exciter", timeout=30_000)
+    events = _events(db_path, job_id)[before:]
+    assert [(e["kind"], e["step_id"]) for e in events] == [
+        ("step_done", "disconnect-leads"), ("acknowledged", "ground-lead"),
+        ("acknowledged", "cap-connectors"), ("step_done", "ground-terminals"),
+        ("acknowledged", "sealed-unit"), ("lead_grounded", None),
+        ("step_done", "remove-unit")]
+    context.close()
