@@ -237,30 +237,9 @@ def test_a_countdown_on_the_kept_copy_goes_on_from_when_the_page_was_kept(
 @pytest.mark.browser
 def test_offline_a_lapsed_grounding_is_refused_and_grounding_again_is_kept_on_the_tablet(
         browser, live_server, db_path, station_clock):
-    context = browser.new_context(viewport=VIEWPORTS["tablet-landscape"], has_touch=True)
-    network = Network(context)
-    context.clock.install(time=station_clock())
-    page = context.new_page()
-    open_removal_to_warning(page, live_server)
-    page.wait_for_function(WORKER_IN_CHARGE, polling=50)
-    page.reload()
-    wait_until(page, PAGE_SAVED)
-    job_id = int(page.get_by_test_id("job").get_attribute("data-job-id"))
-    wait_until(page, STEPS_KEPT.format(job=job_id))
+    context, network, page, job_id = _tablet_in_charge(browser, live_server, station_clock)
     step = page.get_by_test_id("step")
-    # At the station, online: the lockout, the disconnection, the wait and the isolation.
-    tap(page, "[data-testid=acknowledge]")
-    for breaker, tag in (("IGN-A", "T-31"), ("IGN-B", "T-32")):
-        page.fill(f"[data-testid=tag-number-{breaker}]", tag)
-        tap(page, f"[data-testid=tag-{breaker}]")
-    tap(page, "[data-testid=done]")
-    tap(page, "[data-testid=continue]")
-    tap(page, "[data-testid=done]")
-    station_clock.advance(125)
-    page.clock.fast_forward("02:05")
-    page.reload()
-    tap(page, "[data-testid=done]")
-    expect(step).to_have_attribute("data-step-id", "verify-isolation")
+    _online_to_the_isolation_check(page, station_clock)
     page.select_option("[data-testid=instrument-pick]", "VM-004")
     page.fill("[data-testid=reading-value]", "0.01")
     tap(page, "[data-testid=record-reading]")
@@ -305,4 +284,76 @@ def test_offline_a_lapsed_grounding_is_refused_and_grounding_again_is_kept_on_th
         ("acknowledged", "cap-connectors"), ("step_done", "ground-terminals"),
         ("acknowledged", "sealed-unit"), ("lead_grounded", None),
         ("step_done", "remove-unit")]
+    context.close()
+
+
+def _online_to_the_isolation_check(page, station_clock) -> None:
+    """At the station, online: the lockout, the disconnection and the wait, to the isolation
+    check (the station's own screens)."""
+    tap(page, "[data-testid=acknowledge]")
+    for breaker, tag in (("IGN-A", "T-31"), ("IGN-B", "T-32")):
+        page.fill(f"[data-testid=tag-number-{breaker}]", tag)
+        tap(page, f"[data-testid=tag-{breaker}]")
+    tap(page, "[data-testid=done]")
+    tap(page, "[data-testid=continue]")
+    tap(page, "[data-testid=done]")
+    station_clock.advance(125)
+    page.clock.fast_forward("02:05")
+    page.reload()
+    tap(page, "[data-testid=done]")
+    expect(page.get_by_test_id("step")).to_have_attribute("data-step-id", "verify-isolation")
+
+
+def _tablet_in_charge(browser, live_server, station_clock):
+    """A tablet with the worker in charge and the removal's steps kept, its clock installed."""
+    context = browser.new_context(viewport=VIEWPORTS["tablet-landscape"], has_touch=True)
+    network = Network(context)
+    context.clock.install(time=station_clock())
+    page = context.new_page()
+    open_removal_to_warning(page, live_server)
+    page.wait_for_function(WORKER_IN_CHARGE, polling=50)
+    page.reload()
+    wait_until(page, PAGE_SAVED)
+    job_id = int(page.get_by_test_id("job").get_attribute("data-job-id"))
+    wait_until(page, STEPS_KEPT.format(job=job_id))
+    return context, network, page, job_id
+
+
+@pytest.mark.browser
+def test_offline_voltage_present_stops_the_work_and_the_finding_waits_for_the_station(
+        browser, live_server, db_path, station_clock):
+    context, network, page, job_id = _tablet_in_charge(browser, live_server, station_clock)
+    _online_to_the_isolation_check(page, station_clock)
+    step = page.get_by_test_id("step")
+    network.cut()
+    page.reload()  # the worker's copy: the tablet's own reading form
+    page.select_option("[data-testid=instrument-pick]", "VM-004")
+    page.fill("[data-testid=reading-value]", "2")
+    page.select_option("[data-testid=input-unit]", "kV")
+    page.click("[data-testid=record-reading]")  # past the voltmeter's 600 V: refused here
+    expect(page.get_by_test_id("tablet-refusal")).to_have_text(
+        "✗ 2 kV is outside the range of Voltmeter VM-004 (0–600 V): take the reading "
+        "with a voltmeter whose range covers it.")
+    page.select_option("[data-testid=input-unit]", "V")
+    page.fill("[data-testid=reading-value]", "27.6")
+    expect(page.get_by_test_id("tablet-verdict")).to_have_text("✗ out of limits")
+    tap(page, "[data-testid=record-reading]")
+    # The step waits: stop, touch nothing; the finding is recorded once the station has it.
+    expect(step).to_have_attribute("data-step-id", "verify-isolation")
+    stop = page.get_by_test_id("finding-needed")
+    expect(stop).to_contain_text("STOP: voltage present.")
+    expect(stop).to_contain_text("Touch nothing on the ignition system")
+    expect(page.get_by_test_id("finding-waits")).to_contain_text(
+        "recorded when the station has this reading")
+    expect(page.locator("[data-testid=step] form")).to_have_count(0)
+    assert page.evaluate(OUTBOX_SIZE) == 1
+
+    network.restore()
+    expect(page.get_by_test_id("outbox-count")).to_be_hidden(timeout=30_000)
+    wait_until(page, OUTBOX_EMPTY)
+    # The station's own screen asks for the finding on the reading it now has.
+    expect(page.get_by_test_id("record-finding")).to_be_visible(timeout=30_000)
+    reading = _events(db_path, job_id)[-1]
+    assert reading["kind"] == "reading_recorded"
+    assert reading["data"]["verdict"] == "out of limits"
     context.close()
