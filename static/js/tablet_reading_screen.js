@@ -108,9 +108,21 @@
     return box;
   }
 
+  // A reading kept whose value the tablet could not judge (a unit or a number it does not
+  // know): the station judges it on arrival, and the step waits for its word.
+  function judgedOnArrival() {
+    var box = el("div", { "class": "waiting", "data-testid": "judged-on-arrival" });
+    box.append(el("p", {}, "This reading is kept on this tablet; the tablet cannot judge its " +
+      "value, so the station judges it when it arrives. This step waits for the station: do " +
+      "not go on from this screen."));
+    return box;
+  }
+
   function form(v, step, entryForm) {
     var kept = T.awaitingFinding(v, step);
     if (kept) return [stopBox(v, step, kept)];
+    var mine = (v.readings || {})[step.id];
+    if (mine && mine.unknown && !mine.stored) return [judgedOnArrival()];
     var nodes = [];
     var made = entryForm(v, step, "reading_recorded", "record-reading", "Record", function (f) {
       if (step.value === "text") {

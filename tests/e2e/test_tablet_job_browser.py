@@ -121,6 +121,7 @@ def test_offline_the_tablet_works_on_through_the_lockout_and_the_station_gets_it
     expect(page.get_by_test_id("tablet-refusal")).to_have_text("✗ '0,02x' is not a number.")
     page.fill("[data-testid=reading-value]", "0.02")
     expect(page.get_by_test_id("tablet-verdict")).to_have_text("✓ within")
+    _audit(page, "isolation reading from the tablet's copy")
     tap(page, "[data-testid=record-reading]")
     expect(step).to_have_attribute("data-step-id", "disconnect-leads")
     tap(page, "[data-testid=done]")  # the terminal becomes reachable: no grounding yet
@@ -136,6 +137,7 @@ def test_offline_the_tablet_works_on_through_the_lockout_and_the_station_gets_it
     tap(page, "[data-testid=done]")
     expect(step).to_have_attribute("data-step-id", "removed-exciter")
     expect(page.get_by_test_id("fitted-serial")).to_have_text(fitted.serial)
+    _audit(page, "removed part from the tablet's copy")
     page.fill("[data-testid=part-number]", fitted.part_number)
     page.fill("[data-testid=part-serial]", fitted.serial)
     page.check("[data-testid=status-unserviceable]")
