@@ -181,11 +181,6 @@
     },
     refusal: function (v, step, formNode) {
       if (formNode.querySelector("[name=kind]").value !== "part_recorded") return null;
-      var kept = (v.parts || {})[step.id];
-      if (kept && kept.matches === false) {
-        return "The last reading was out of limits: record the finding and what was done " +
-          "before anything else.";
-      }
       return judgeRemoval(v, step, dataOf(formGetter(formNode))).refusal || null;
     },
     form: form,

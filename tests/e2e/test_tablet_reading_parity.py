@@ -2,8 +2,9 @@
 and words (webapp/domain: readings.evaluate_reading, isolation.isolation_verdict,
 instruments.with_instrument), case for case, in real Chromium: generated readings (values as
 typed, units of the right and the wrong dimension, limits with a min, a max or both, near
-margins, instruments of the register) judged by both. And the grounding window
-(domain/isolation.py) by both clocks' reckoning."""
+margins, instruments of the register) judged by both; the grounding window
+(domain/isolation.py); and a part taken off (domain/parts.py), its fields and its plate
+against the serial fitted."""
 
 from __future__ import annotations
 
@@ -16,13 +17,15 @@ from hypothesis import HealthCheck, given, seed, settings
 from hypothesis import strategies as st
 
 from webapp.domain import instruments, isolation
+from webapp.domain.engine import EngineState, FittedPart, Position, position_key
 from webapp.domain.errors import RuleRefusal
 from webapp.domain.execution import JobState
 from webapp.domain.gates import PowerOff
 from webapp.domain.instruments import Instrument
-from webapp.domain.procedures import Check, Reading
+from webapp.domain.parts import Whereabouts, evaluate_part
+from webapp.domain.procedures import Check, PartChange, Reading
 from webapp.domain.readings import InputProblem, evaluate_reading
-from webapp.web.carry_steps import lead_rules, reading_form
+from webapp.web.carry_steps import fitted_parts, lead_rules, reading_form
 
 from .conftest import log_in
 
@@ -133,7 +136,8 @@ def tablet_page(browser, live_server):
     context = browser.new_context()
     page = context.new_page()
     log_in(page, live_server, "mech1", "demo-mech1")
-    page.wait_for_function("() => !!window.sparkwardTabletReading && !!window.sparkwardTabletLead")
+    page.wait_for_function("() => !!window.sparkwardTabletReading && !!window.sparkwardTabletLead"
+                           " && !!window.sparkwardTabletPart")
     yield page
     context.close()
 
@@ -215,3 +219,61 @@ def test_the_grounding_window_is_the_stations_on_the_tablet(tablet_page):
                 [lead_rules(step), grounded.station.isoformat() if grounded else None,
                  NOW.timestamp() * 1000, isolation.GROUNDING_VALID_S])
             assert tablet == station, (step.id, age)
+
+
+FITTED = FittedPart(part_number="XEX-1001-03", serial="EX-40417", type="dc")  # invented
+texts = st.sampled_from(["XEX-1001-03", "EX-40417", " EX-40417 ", "EX-40418", "", "  ",
+                         "Z" * 60, "Z" * 61, "bad\tline"])
+figures = st.sampled_from(["1200", "1200.5", "0", "-1", "200001", "abc", "", "1,5", "1e3",
+                           "nan", "12.5"])
+# Mostly good entries, so that matches and mismatches are met as often as refusals.
+part_numbers = st.one_of(st.just("XEX-1001-03"), st.just("XEX-1001-04"), texts)
+serials = st.one_of(st.just("EX-40417"), st.just(" EX-40417 "), st.just("EX-40418"), texts)
+good = st.sampled_from(["1200", "950", "12.5"])
+part_cases = st.tuples(part_numbers, serials,
+                       st.sampled_from(["unserviceable", "serviceable", "", "broken"]),
+                       st.sampled_from(["failed", "scheduled", "robbed", "", "lost"]),
+                       st.one_of(st.just("U-1"), texts), st.one_of(good, figures),
+                       st.one_of(st.just("950"), figures), st.one_of(st.just(""), figures))
+
+
+@pytest.mark.browser
+def test_a_part_taken_off_is_judged_on_the_tablet_as_the_station_judges_it(tablet_page):
+    generated = []
+
+    @seed(20261206)
+    @settings(max_examples=300, deadline=None, database=None,
+              suppress_health_check=[HealthCheck.function_scoped_fixture])
+    @given(part_cases)
+    def collect(case):
+        generated.append(case)
+
+    collect()
+    step = PartChange(id="off", kind="part", text="Take it off.", action="remove",
+                      part="exciter")
+    engine = EngineState(positions={position_key("exciter", "A"): Position(
+        "exciter", "A", fitted=FITTED)})
+    fields = [dict(zip(("part_number", "serial", "status", "reason", "tag", "engine_hours",
+                        "starts", "continuous_ignition_hours"), case, strict=True))
+              for case in generated]
+    view = {"state": {"fitted": fitted_parts(engine, ["A"])}, "carried": {"channel": "A"}}
+    judged = tablet_page.evaluate(
+        """([view, step, all]) => all.map(f => window.sparkwardTabletPart.judgeRemoval(
+             view, step, Object.assign({}, f, { usage: { engine_hours: f.engine_hours,
+               starts: f.starts, continuous_ignition_hours: f.continuous_ignition_hours } })))""",
+        [view, {"part": "exciter"}, fields])
+    outcomes = set()
+    for case, tablet in zip(fields, judged, strict=True):
+        data = {k: case[k] for k in ("part_number", "serial", "status", "reason", "tag")}
+        data["usage"] = {k: case[k] for k in ("engine_hours", "starts",
+                                              "continuous_ignition_hours")}
+        try:
+            stored = evaluate_part(step, data, "A", engine, (), Whereabouts())
+        except (InputProblem, RuleRefusal) as problem:
+            said = problem.message if isinstance(problem, InputProblem) else problem.reason
+            assert tablet.get("refusal") == said, (case, tablet)
+            outcomes.add("refused")
+            continue
+        assert tablet.get("matches") == (stored["verdict"] == "matches"), (case, tablet)
+        outcomes.add(stored["verdict"])
+    assert outcomes == {"refused", "matches", "mismatch"}
