@@ -76,7 +76,12 @@
   }
   function stepsFor(state) {
     return read("steps", state.job_id).then(function (kept) {
-      if (kept && kept.revision === state.revision) return kept;
+      // Kept for the job's revision; fetched again when the station's word comes from a
+      // later day than the kept register of instruments (web/carry.py, carried_on).
+      var day = String(state.station_time || "").slice(0, 10);
+      if (kept && kept.revision === state.revision && !(day > (kept.carried_on || day))) {
+        return kept;
+      }
       return fetch("/jobs/" + state.job_id + "/carry", { credentials: "same-origin" })
         .then(function (response) {
           if (!response.ok) throw new Error("steps: " + response.status);

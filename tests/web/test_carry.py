@@ -84,7 +84,11 @@ def test_only_people_who_work_jobs_get_them_and_unknown_jobs_are_404(app, login,
 def test_a_reading_step_carries_its_limits_units_and_instruments_worked_out_by_the_station(
         mechanic):
     job_id = _open(mechanic)
-    steps = {s["id"]: s for s in mechanic.get(f"/jobs/{job_id}/carry").get_json()["steps"]}
+    carried = mechanic.get(f"/jobs/{job_id}/carry").get_json()
+    steps = {s["id"]: s for s in carried["steps"]}
+    assert carried["carried_on"] == steps["verify-isolation"]["carried_on"]  # the register's day
+    assert carried["grounding_step"] == "ground-terminals"
+    assert carried["grounding_valid_s"] == 15 * 60  # domain/isolation.py
     check = steps["verify-isolation"]
     assert check["offline"] and check["isolation"] and check["value"] == "number"
     assert check["limits"] == {"min": None, "max": 0.5} and check["unit"] == "V"

@@ -92,6 +92,8 @@ def carried_steps(job_id: int) -> dict[str, Any]:
             **_form_data(step, register, today)})
     return {"job_id": job_id, "revision": job.row["revision_hash"],
             "record_url": url_for("mechanic.record", job_id=job_id),
+            # The register's instruments are as of this day: a later page fetches them again.
+            "carried_on": today.isoformat(),
             "grounding_valid_s": isolation.GROUNDING_VALID_S,
             "grounding_step": next((s.id for s in state.applicable
                                     if isolation.is_grounding(s)), None),
