@@ -179,6 +179,8 @@
     return nodes;
   }
 
+  window.sparkwardTabletReadingScreen = { instrumentFieldset: instrumentFieldset };
+
   R.KINDS.reading = {
     completes: function (step, f, v) {
       if (f.kind !== "reading_recorded") return false;

@@ -19,9 +19,19 @@ from typing import Any
 from flask import Blueprint, jsonify, render_template, url_for
 
 from ..domain import exciter_rows, gates, isolation
+from ..domain import torque as torque_rules
 from ..domain.execution import JobState, StepProgress
 from ..domain.placement import COUNTED_WAIT_MARGIN_S
-from ..domain.procedures import Advisory, Check, DischargeWait, Lockout, PartChange, Reading, Step
+from ..domain.procedures import (
+    Advisory,
+    Check,
+    DischargeWait,
+    Lockout,
+    PartChange,
+    Reading,
+    Step,
+    Torque,
+)
 from ..station import recording
 from ..store import instruments as instrument_store
 from ..store import people
@@ -33,7 +43,6 @@ bp = Blueprint("carry", __name__)
 # Why a step kind waits for the station, in the mechanic's words. Every kind not named in
 # `_offline` is one of these; the screen shows the reason on the tablet.
 NEEDS_STATION = {
-    "torque": "A torque value is judged against its limits by the station.",
     "spark_count": "A spark count is timed and judged by the station.",
     "ignition_run": "Energising is held to the exciter's duty cycle by the station's clock.",
     "sign": "A signature needs the station itself: your PIN is never kept on the tablet.",
@@ -51,6 +60,8 @@ def _offline(step: Step) -> str | None:
         return carry_steps.reading_offline(step)
     if isinstance(step, PartChange):
         return carry_steps.part_offline(step)
+    if isinstance(step, Torque):
+        return None
     if isinstance(step, Lockout):
         return None if step.action == "apply" else NEEDS_STATION["release"]
     if isinstance(step, DischargeWait):
@@ -69,6 +80,8 @@ def _form_data(step: Step, register: list[Any], today: Any) -> dict[str, Any]:
         return {**rules, **carry_steps.reading_form(step, register, today)}
     if isinstance(step, PartChange):
         return {**rules, **carry_steps.part_form(step)}
+    if isinstance(step, Torque):
+        return {**rules, **carry_steps.torque_form(step, register, today)}
     if isinstance(step, Lockout):
         return {"action": step.action, "confirm_existing": step.confirm_existing,
                 "breakers": [{"id": b.id, "label": b.label} for b in step.breakers]}
@@ -171,6 +184,9 @@ def carried_state(job: recording.Job, station_now: datetime, gate: dict[str, Any
                                  if state.lead_grounded and state.lead_grounded.device
                                  else None),
         "isolation_verified": state.isolation_verified,
+        # Each torque step's fasteners whose latest reading stands (domain/torque.py).
+        "fasteners_done": {s.id: sorted(torque_rules.accepted_fasteners(s.step, state.readings))
+                           for s in state.steps if isinstance(s.step, Torque)},
         "fitted": carry_steps.fitted_parts(gate.get("engine"), _channels(state)),
         "tags": _tags(gate, job.row["id"], me.id),
     }

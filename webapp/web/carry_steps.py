@@ -16,7 +16,7 @@ from typing import Any
 from ..domain import instruments, isolation, readings
 from ..domain.engine import EngineState
 from ..domain.instruments import Instrument
-from ..domain.procedures import Check, PartChange, Reading, Step
+from ..domain.procedures import Check, PartChange, Reading, Step, Torque
 from ..domain.units import parse_quantity, parse_unit, registry
 from ..shown import limits_text, unit_choices, unit_label
 
@@ -116,6 +116,18 @@ def reading_form(step: Reading, register: list[Instrument], today: date) -> dict
     if step.value != "text":
         data.update(instrument_register(step, register, today, units))
     return data
+
+
+def torque_form(step: Torque, register: list[Instrument], today: date) -> dict[str, Any]:
+    """A torque step: its unit table, limits, lubricant factor, adapter and fasteners, and
+    the register's torque wrenches (domain/torque.py, instruments.py)."""
+    table = unit_table(step.unit)
+    return {**table, "limits": {"min": step.limits.min, "max": step.limits.max},
+            "near_margin": None, "limits_text": limits_text(step),
+            "lubricant": step.lubricant, "lubricant_factor": step.lubricant_factor,
+            "adapter": step.adapter, "adapter_in_line": step.adapter_in_line,
+            "fasteners": list(step.fasteners),
+            **instrument_register(step, register, today, [u["unit"] for u in table["units"]])}
 
 
 def lead_rules(step: Step) -> dict[str, Any]:
