@@ -112,7 +112,14 @@ def test_a_part_put_on_needs_the_station_and_says_why(mechanic):
     steps = mechanic.get(f"/jobs/{job_id}/carry").get_json()["steps"]
     fitted = [s for s in steps if s["kind"] == "part" and s["action"] == "install"]
     assert fitted and not fitted[0]["offline"]
-    assert "allowed" in fitted[0]["needs_station"] or "may take" in fitted[0]["needs_station"]
+    assert "may take" in fitted[0]["needs_station"]
+    # Torque is carried: its fasteners, and the register's torque wrenches.
+    bolts = next(s for s in steps if s["kind"] == "torque" and s["fasteners"])
+    assert bolts["offline"] and bolts["instrument_kind"] == "torque wrench"
+    assert bolts["unit"] == "lbf*in" and "lbf*in" in [u["unit"] for u in bolts["units"]]
+    assert bolts["limits"] == {"min": 35, "max": 40}
+    state = _carry(mechanic.get(f"/jobs/{job_id}").get_data(as_text=True))
+    assert state["fasteners_done"][bolts["id"]] == []
 
 
 def test_the_page_carries_the_fitted_parts_and_the_lead_as_the_station_knows_them(
