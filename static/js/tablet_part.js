@@ -136,6 +136,13 @@
 
   function form(v, step, entryForm) {
     var kept = (v.parts || {})[step.id];
+    if ((v.state.awaiting_finding || []).indexOf(step.id) >= 0) {
+      var waits = el("div", { "class": "finding", "data-testid": "finding-needed" });
+      waits.append(el("p", { "class": "alert", role: "alert" }, "✗ The data plate does not " +
+        "match the part the station had fitted here. The station asks for a finding: this " +
+        "step waits for the station."));
+      return [positionBox(v, step), waits];
+    }
     if (kept && kept.matches === false) {
       var box = el("div", { "class": "finding", "data-testid": "finding-needed" });
       box.append(el("p", { "class": "alert", role: "alert" }, "✗ The data plate (S/N " +

@@ -277,3 +277,49 @@ def test_a_part_taken_off_is_judged_on_the_tablet_as_the_station_judges_it(table
         assert tablet.get("matches") == (stored["verdict"] == "matches"), (case, tablet)
         outcomes.add(stored["verdict"])
     assert outcomes == {"refused", "matches", "mismatch"}
+
+
+INSULATION = Reading(id="ir", kind="reading", text="Measure it.", value="number", unit="Mohm",
+                     limits={"min": 200}, near_margin=50, instrument="insulation tester",
+                     conditions=["test_voltage", "ambient_temperature", "humidity"],
+                     test_voltage="1000 V")  # demo values, as tasks/ (invented)
+condition_cases = st.tuples(
+    st.sampled_from(["1000", "1", "1.04", "949", "1051", "500", "abc", "", "200000"]),
+    st.sampled_from(["V", "kV", "mm", ""]),
+    st.sampled_from(["21.5", "70", "-100", "x", "300"]),
+    st.sampled_from(["degC", "degF", "V"]),
+    st.sampled_from(["45", "0", "100", "101", "-1", "wet", ""]),
+    st.sampled_from(["250", "240", "190", "600"]), st.sampled_from(["Mohm", "Gohm"]))
+
+
+@pytest.mark.browser
+def test_the_conditions_of_an_insulation_reading_are_judged_as_the_station_does(tablet_page):
+    generated = []
+
+    @seed(20261206)
+    @settings(max_examples=250, deadline=None, database=None,
+              suppress_health_check=[HealthCheck.function_scoped_fixture])
+    @given(condition_cases)
+    def collect(case):
+        generated.append(case)
+
+    collect()
+    datas = [{"value": value, "unit": unit, "instrument_id": "IT-1",
+              "test_voltage": {"value": tv, "unit": tv_unit},
+              "ambient_temperature": {"value": temp, "unit": temp_unit},
+              "humidity": {"value": rh, "unit": "%RH"}}
+             for tv, tv_unit, temp, temp_unit, rh, value, unit in generated]
+    carried = reading_form(INSULATION, REGISTER, TODAY)
+    judged = tablet_page.evaluate(
+        """([step, datas, today]) => datas.map(d =>
+             window.sparkwardTabletReading.judge(step, d, today))""",
+        [carried, datas, TODAY.isoformat()])
+    station = [_station_says(INSULATION, d) for d in datas]
+    differ = [(d, t, s) for d, t, s in zip(datas, judged, station, strict=True)
+              if not _same(s, t)]
+    assert differ == [], json.dumps(differ[:3], indent=1, default=str)
+    words = " ".join(s.get("refusal", "") for s in station)
+    for said in ("the approved data's test voltage", "Relative humidity is between",
+                 "not a plausible temperature", "is a unit of"):
+        assert said in words, said
+    assert any("stored" in s for s in station)  # and readings taken with every condition
