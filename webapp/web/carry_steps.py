@@ -16,7 +16,7 @@ from typing import Any
 from ..domain import instruments, isolation, readings
 from ..domain.engine import EngineState
 from ..domain.instruments import Instrument
-from ..domain.procedures import Check, PartChange, Reading, Step, Torque
+from ..domain.procedures import PartChange, Reading, Step, Torque
 from ..domain.units import parse_quantity, parse_unit, registry
 from ..shown import limits_text, unit_choices, unit_label
 
@@ -28,7 +28,7 @@ INSTALL_NEEDS_STATION = ("A part put on is checked by the station against the pa
                          "fitted in two places).")
 
 
-def _linear(unit: str, target: str, dimension: str) -> list[float]:
+def _linear(unit: str, target: str) -> list[float]:
     """[factor, offset] with value * factor + offset = the value in `target` (pint)."""
     def to(value: float) -> float:
         quantity = registry().Quantity(value, parse_unit(unit))
@@ -40,9 +40,9 @@ def _linear(unit: str, target: str, dimension: str) -> list[float]:
 def _to_base(unit: str, dimension: str) -> list[float]:
     """[factor, offset] to the units `readings.PLAUSIBLE` is given in."""
     if dimension == "temperature":
-        return _linear(unit, "degC", dimension)
+        return _linear(unit, "degC")
     if dimension == "dimensionless":
-        return _linear(unit, "dimensionless", dimension)
+        return _linear(unit, "dimensionless")
     base = registry().Quantity(1.0, parse_unit(unit)).to_base_units()
     return [float(base.magnitude), 0.0]
 
@@ -53,8 +53,7 @@ def unit_table(procedure_unit: str) -> dict[str, Any]:
     the station offers anywhere, the station's own words when it is picked here."""
     dimension = readings.dimension_of(procedure_unit)
     choices = unit_choices(procedure_unit)
-    units = [{"unit": code, "label": label, "to_procedure": _linear(code, procedure_unit,
-                                                                      dimension),
+    units = [{"unit": code, "label": label, "to_procedure": _linear(code, procedure_unit),
               "to_base": _to_base(code, dimension)} for code, label in choices]
     offered = {code for code, _ in choices}
     wrong: dict[str, str] = {}
@@ -80,7 +79,7 @@ def _instrument(entry: Instrument, kind: str | None, units: list[str]) -> dict[s
         "range_text": entry.range_text, "range_label": unit_label(entry.range_unit)}
     if entry.kind == kind:
         # Each unit the form offers, converted to the instrument's own unit (its range check).
-        carried["to_range"] = {u: _linear(u, entry.range_unit, "") for u in units}
+        carried["to_range"] = {u: _linear(u, entry.range_unit) for u in units}
     return carried
 
 
@@ -148,10 +147,6 @@ def part_offline(step: PartChange) -> str | None:
 
 def part_form(step: PartChange) -> dict[str, Any]:
     return {"action": step.action, "part": step.part}
-
-
-def check_lead(step: Check) -> dict[str, Any]:
-    return lead_rules(step)
 
 
 def fitted_parts(engine: EngineState | None, channels: list[str]) -> dict[str, Any]:
