@@ -1,7 +1,9 @@
-"""The tablet carries the job in real Chromium: offline, the mechanic works on through the
-steps the tablet may record (the WARNING, the lockout with its tags), a reload keeps that
-work, a tag the station would refuse is refused on the tablet, and a step that needs the
-station says so; back online every entry arrives once, in order."""
+"""The tablet carries the job in real Chromium: offline, the mechanic works an exciter removal
+from the lockout to the performer's signature (the WARNINGs, the lockout with its tags, the
+discharge wait, the isolation reading, the lead steps with their grounding, the removed
+exciter against the fitted serial, the tool count); a reload keeps that work, what the station
+would refuse is refused on the tablet in its words, and a step that needs the station says
+so; back online every entry arrives once, in order, and the station agrees."""
 
 from __future__ import annotations
 
@@ -44,7 +46,7 @@ def _events(db_path, job_id: int) -> list[dict]:
 
 
 @pytest.mark.browser
-def test_offline_the_tablet_works_on_through_the_lockout_and_the_station_gets_it_all_once(
+def test_offline_the_tablet_works_on_to_the_signature_and_the_station_gets_it_all_once(
         browser, live_server, db_path, station_clock):
     context = browser.new_context(viewport=VIEWPORTS["tablet-landscape"], has_touch=True)
     network = Network(context)
