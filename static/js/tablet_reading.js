@@ -23,18 +23,33 @@
   // judges it on arrival.
   function Unknown(what) { this.unknown = what; }
 
-  // Python's "{:g}": six significant digits, trailing zeros dropped.
+  // Python's "{:g}": six significant digits, trailing zeros dropped, and an exact tie rounded
+  // to even as Python rounds it (JavaScript's toExponential rounds a tie up).
   function formatG(x) {
     if (x === 0) return 1 / x < 0 ? "-0" : "0";
     if (!isFinite(x)) return isNaN(x) ? "nan" : (x > 0 ? "inf" : "-inf");
-    var parts = x.toExponential(5).split("e");
-    var exp = parseInt(parts[1], 10);
-    var strip = function (s) { return s.indexOf(".") < 0 ? s : s.replace(/\.?0+$/, ""); };
-    if (exp < -4 || exp >= 6) {
-      return strip(parts[0]) + "e" + (exp < 0 ? "-" : "+") + (Math.abs(exp) < 10 ? "0" : "") +
-        Math.abs(exp);
+    var a = Math.abs(x);
+    var parts = a.toExponential(5).split("e");
+    var digits = parts[0].replace(".", ""), exp = parseInt(parts[1], 10);
+    var exact = a.toExponential(20).split("e"), all = exact[0].replace(".", "");
+    if (all.slice(6) === "5" + "00000000000000" && parseInt(all.charAt(5), 10) % 2 === 0) {
+      digits = all.slice(0, 6);
+      exp = parseInt(exact[1], 10);
     }
-    return strip(x.toFixed(5 - exp));
+    digits = digits.replace(/0+$/, "") || "0";
+    var out;
+    if (exp < -4 || exp >= 6) {
+      out = digits.charAt(0) + (digits.length > 1 ? "." + digits.slice(1) : "") + "e" +
+        (exp < 0 ? "-" : "+") + (Math.abs(exp) < 10 ? "0" : "") + Math.abs(exp);
+    } else if (exp >= 0) {
+      var whole = digits.slice(0, exp + 1);
+      while (whole.length < exp + 1) whole += "0";
+      var fraction = digits.slice(exp + 1);
+      out = whole + (fraction ? "." + fraction : "");
+    } else {
+      out = "0." + new Array(-exp).join("0") + digits;
+    }
+    return (x < 0 ? "-" : "") + out;
   }
 
   // As readings.read_number, for a value typed into a form.

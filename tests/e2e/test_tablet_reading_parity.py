@@ -323,3 +323,21 @@ def test_the_conditions_of_an_insulation_reading_are_judged_as_the_station_does(
                  "not a plausible temperature", "is a unit of"):
         assert said in words, said
     assert any("stored" in s for s in station)  # and readings taken with every condition
+
+
+@pytest.mark.browser
+def test_numbers_in_the_stations_words_are_written_as_python_writes_them(tablet_page):
+    @seed(20261206)
+    @settings(max_examples=400, deadline=None, database=None,
+              suppress_health_check=[HealthCheck.function_scoped_fixture])
+    @given(st.lists(st.one_of(st.floats(allow_nan=False, allow_infinity=False),
+                              st.integers(-10**9, 10**9).map(float),
+                              st.floats(-1e-3, 1e-3)), min_size=1, max_size=20))
+    def check(values):
+        # Exact ties at the sixth digit (1234565) are rounded to even, as Python does.
+        values = values + [1234565.0, 1234575.0, 0.5, 2.5e-05, 100000.0, 1e16, -0.0, 600.0]
+        tablet = tablet_page.evaluate(
+            "vs => vs.map(v => window.sparkwardTabletReading.formatG(v))", values)
+        assert tablet == [f"{v:g}" for v in values]
+
+    check()
