@@ -32,7 +32,12 @@
   }
   function stepsFor(state) {
     return read("steps", state.job_id).then(function (kept) {
-      if (kept && kept.revision === state.revision) return kept;
+      // Kept for the job's revision; fetched again when the station's word comes from a
+      // later day than the kept register of instruments (web/carry.py, carried_on).
+      var day = String(state.station_time || "").slice(0, 10);
+      if (kept && kept.revision === state.revision && !(day > (kept.carried_on || day))) {
+        return kept;
+      }
       return fetch("/jobs/" + state.job_id + "/carry", { credentials: "same-origin" })
         .then(function (response) {
           if (!response.ok) throw new Error("steps: " + response.status);
@@ -69,7 +74,10 @@
     entries.forEach(function (entry) {
       var f = fieldsOf(entry);
       var step = byId[f.step];
-      if (!step) return;
+      if (!step) {  // an anytime entry (e.g. the lead grounded again): observers only
+        R.OBSERVERS.forEach(function (observe) { observe(v, null, f, entry, false); });
+        return;
+      }
       var next = order.find(function (id) { return !(id in done); });
       if (f.kind === "breaker_tagged") {
         var number = String(f.tag || "").trim();
@@ -152,9 +160,13 @@
     var form = event.detail.elt.closest && event.detail.elt.closest("form[data-tablet-form]");
     if (!form || !current) return;
     var kind = form.querySelector("[name=kind]").value;
-    var step = current.byId[form.querySelector("[name=step]").value];
+    var named = form.querySelector("[name=step]");
+    var step = named ? current.byId[named.value] : null;
     var reason = null;
-    if (kind === "breaker_tagged") {
+    R.GUARDS.some(function (guard) { return (reason = guard(current, step, form)); });
+    if (reason || !step) {
+      // a guard refused it, or an anytime entry the guards let through
+    } else if (kind === "breaker_tagged") {
       reason = tagRefusal(current, step, form.querySelector("[name=breaker]").value,
                           form.querySelector("[name=tag]").value);
     } else if (step.kind === "lockout" && breakersLeft(current, step).length) {

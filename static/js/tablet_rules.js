@@ -14,6 +14,11 @@
   // Functions (v, step, fields, entry, completed) told of every entry the tablet's view
   // applies, whatever its step's kind (e.g. to follow when the lead was last grounded).
   var OBSERVERS = [];
+  // Functions (v, step, form) -> words or null, asked before any entry is kept, whatever its
+  // kind (e.g. isolation verified and the lead grounded); and (v, step, entryForm) -> a node
+  // or null, shown under every step the tablet shows (e.g. "Lead grounded again").
+  var GUARDS = [];
+  var PANELS = [];
 
   // The event that completes each kind the tablet may record (as domain/execution.py).
   function completes(step, f, v) {
@@ -122,7 +127,7 @@
   }
 
   window.sparkwardTabletRules = {
-    KINDS: KINDS, OBSERVERS: OBSERVERS, stationTime: stationTime,
+    KINDS: KINDS, OBSERVERS: OBSERVERS, GUARDS: GUARDS, PANELS: PANELS, stationTime: stationTime,
     MAX_TAG_LENGTH: MAX_TAG_LENGTH, completes: completes, tagRefusal: tagRefusal,
     breakersLeft: breakersLeft, waitLeft: waitLeft, waitRefusal: waitRefusal, mmss: mmss,
   };

@@ -33,6 +33,7 @@
                             "hx-target": "#job", "hx-swap": "outerHTML",
                             "hx-disabled-elt": "find button", "data-tablet-form": "" });
     [["csrf_token", token()], ["event_id", newEventId()], ["kind", kind], ["step", step.id]]
+      .filter(function (pair) { return pair[1]; })  // an anytime entry names no step
       .forEach(function (pair) {
         form.append(el("input", { type: "hidden", name: pair[0], value: pair[1] }));
       });
@@ -151,6 +152,10 @@
     var kind = step.kind === "warning" || step.kind === "caution" ? "advisory" : step.kind;
     var make = FORMS[kind] || (R.KINDS[kind] && R.KINDS[kind].form);
     make(v, step, entryForm).forEach(function (node) { article.append(node); });
+    R.PANELS.forEach(function (panel) {
+      var node = panel(v, step, entryForm);
+      if (node) article.append(node);
+    });
     return article;
   }
 

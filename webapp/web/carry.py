@@ -18,26 +18,34 @@ from typing import Any
 
 from flask import Blueprint, jsonify, render_template, url_for
 
-from ..domain import exciter_rows, gates
+from ..domain import exciter_rows, gates, isolation
+from ..domain import torque as torque_rules
 from ..domain.execution import JobState, StepProgress
 from ..domain.placement import COUNTED_WAIT_MARGIN_S
-from ..domain.procedures import Advisory, Check, DischargeWait, Lockout, Step
+from ..domain.procedures import (
+    Advisory,
+    Check,
+    DischargeWait,
+    Lockout,
+    PartChange,
+    Reading,
+    Step,
+    Torque,
+)
 from ..station import recording
+from ..store import instruments as instrument_store
 from ..store import people
-from .common import db, person, requires
+from . import carry_steps
+from .common import db, now, person, requires
 
 bp = Blueprint("carry", __name__)
 
 # Why a step kind waits for the station, in the mechanic's words. Every kind not named in
 # `_offline` is one of these; the screen shows the reason on the tablet.
 NEEDS_STATION = {
-    "reading": "A reading is judged against its limits, units and instrument by the station.",
-    "torque": "A torque value is judged against its limits by the station.",
     "spark_count": "A spark count is timed and judged by the station.",
     "ignition_run": "Energising is held to the exciter's duty cycle by the station's clock.",
-    "part": "A part is checked against the engine's records by the station.",
     "sign": "A signature needs the station itself: your PIN is never kept on the tablet.",
-    "lead": "Handling the lead needs the station to check when it was last grounded.",
     "release": "Taking tags off is checked against every job on the engine by the station.",
 }
 
@@ -47,7 +55,13 @@ def _offline(step: Step) -> str | None:
     if isinstance(step, Advisory):
         return None
     if isinstance(step, Check):
-        return NEEDS_STATION["lead"] if step.handles_lead else None
+        return None  # lead handling too: its grounding and isolation rules are mirrored
+    if isinstance(step, Reading):
+        return carry_steps.reading_offline(step)
+    if isinstance(step, PartChange):
+        return carry_steps.part_offline(step)
+    if isinstance(step, Torque):
+        return None
     if isinstance(step, Lockout):
         return None if step.action == "apply" else NEEDS_STATION["release"]
     if isinstance(step, DischargeWait):
@@ -55,21 +69,30 @@ def _offline(step: Step) -> str | None:
     return NEEDS_STATION.get(step.kind, "This step needs the station.")
 
 
-def _form_data(step: Step) -> dict[str, Any]:
+def _form_data(step: Step, register: list[Any], today: Any) -> dict[str, Any]:
     """What the tablet's offline form for `step` needs beyond its heading and text."""
+    rules = carry_steps.lead_rules(step)  # domain/isolation.py's reading of every step
     if isinstance(step, Check):
-        return {"items": list(step.items or []), "power": step.power,
-                "grounds_lead": step.grounds_lead, "ignition_off": step.ignition_off,
+        return {**rules, "items": list(step.items or []), "power": step.power,
+                "ignition_off": step.ignition_off,
                 "opens_item": step.opens_item.text if step.opens_item else None}
+    if isinstance(step, Reading):
+        return {**rules, **carry_steps.reading_form(step, register, today)}
+    if isinstance(step, PartChange):
+        return {**rules, **carry_steps.part_form(step)}
+    if isinstance(step, Torque):
+        return {**rules, **carry_steps.torque_form(step, register, today)}
     if isinstance(step, Lockout):
         return {"action": step.action, "confirm_existing": step.confirm_existing,
                 "breakers": [{"id": b.id, "label": b.label} for b in step.breakers]}
-    return {}
+    return rules
 
 
 def carried_steps(job_id: int) -> dict[str, Any]:
     job = recording.load_job(db(), job_id)
     state = job.state
+    register = instrument_store.all_instruments(db())
+    today = now().date()
     steps = []
     for progress in state.steps:
         step = progress.step
@@ -79,9 +102,15 @@ def carried_steps(job_id: int) -> dict[str, Any]:
             "offline": why_not is None, "needs_station": why_not,
             "head": render_template("mechanic/_step_head.html", current=progress,
                                     step=step, state=state),
-            **_form_data(step)})
+            **_form_data(step, register, today)})
     return {"job_id": job_id, "revision": job.row["revision_hash"],
-            "record_url": url_for("mechanic.record", job_id=job_id), "steps": steps}
+            "record_url": url_for("mechanic.record", job_id=job_id),
+            # The register's instruments are as of this day: a later page fetches them again.
+            "carried_on": today.isoformat(),
+            "grounding_valid_s": isolation.GROUNDING_VALID_S,
+            "grounding_step": next((s.id for s in state.applicable
+                                    if isolation.is_grounding(s)), None),
+            "channel": state.configuration.channel, "steps": steps}
 
 
 @bp.get("/jobs/<int:job_id>/carry")
@@ -104,6 +133,10 @@ def _tags(gate: dict[str, Any], job_id: int, me: int) -> list[dict[str, Any]]:
              "applied_by": names.get(v.tag.applied_by, "another person"),
              "applied_by_me": v.tag.applied_by == me, "applied_at": v.tag.applied_at}
             for v in views]
+
+
+def _channels(state: JobState) -> list[str]:
+    return [state.configuration.channel] if state.configuration.channel else ["A", "B"]
 
 
 def _discharge_waits(state: JobState, gate: dict[str, Any]) -> dict[str, float]:
@@ -143,5 +176,17 @@ def carried_state(job: recording.Job, station_now: datetime, gate: dict[str, Any
         # wait counted by the tablet's clock asks on top (domain/placement.py).
         "discharge": _discharge_waits(state, gate),
         "counted_margin_s": COUNTED_WAIT_MARGIN_S,
+        # When the lead was last grounded (domain/isolation.py), by both clocks, and whether
+        # an isolation check stands verified: the tablet's lead rules start from these.
+        "lead_grounded": (state.lead_grounded.station.isoformat()
+                          if state.lead_grounded else None),
+        "lead_grounded_device": (state.lead_grounded.device.isoformat()
+                                 if state.lead_grounded and state.lead_grounded.device
+                                 else None),
+        "isolation_verified": state.isolation_verified,
+        # Each torque step's fasteners whose latest reading stands (domain/torque.py).
+        "fasteners_done": {s.id: sorted(torque_rules.accepted_fasteners(s.step, state.readings))
+                           for s in state.steps if isinstance(s.step, Torque)},
+        "fitted": carry_steps.fitted_parts(gate.get("engine"), _channels(state)),
         "tags": _tags(gate, job.row["id"], me.id),
     }
