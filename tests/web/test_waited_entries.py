@@ -87,3 +87,23 @@ def test_changing_the_chained_count_breaks_the_chain(removal, clock, db):
     stored = job_store.events(db, removal.id)
     stored[-1] = {**stored[-1], "device_sent": (clock() - timedelta(seconds=60)).isoformat()}
     assert first_broken_link(stored) == stored[-1]["seq"]
+
+
+def test_a_claimed_wait_on_the_tablet_never_makes_a_lapsed_instrument_pass(mechanic, db, clock):
+    # TW-100's calibration was due yesterday (invented). An entry claiming it was made then,
+    # and waited on the tablet since, is still judged at its arrival: the station cannot
+    # know when a reading was taken, so the instrument must be in calibration when it decides.
+    from tests.web.jobs import exciter_removed
+    from webapp.station import instruments as keeping
+
+    exciter_removed(mechanic, db, clock)
+    job = Job(mechanic, db, clock, "exciter-installation")
+    job.walk_to("mounting-torque")
+    keeping.add(db, instrument_id="TW-100", kind="torque wrench", range_low=20,
+                range_high=100, range_unit="lbf*in", calibration_due="2026-11-30", by=None,
+                now=clock())
+    body = _event("mounting-torque", "reading_recorded", value="37", unit="lbf*in",
+                  fastener="Bolt 1, upper forward", instrument_id="TW-100")
+    body["device_time"] = (clock() - timedelta(hours=20)).isoformat()  # "yesterday"
+    body["sent_time"] = clock().isoformat()
+    job.refused(body, "instrument_out_of_calibration")

@@ -87,8 +87,8 @@ def _check_energise(state: JobState, step: IgnitionRun, data: Mapping[str, Any],
         raise RuleRefusal("engine_unknown", "The engine's state could not be read: nothing is "
                           "energised without it.")
     check_channels_whole(at.engine, channels)
-    gates.check_energise({c: at.engine.clock_for(c) for c in channels}, channels, at.now,
-                         at.device_now)
+    gates.check_energise({c: at.engine.clock_for(c) for c in channels}, channels,
+                         at.work_time, at.device_now)
     duty = [[p.on_max_s, p.off_min_s] for p in gates.duty_periods(step.duty_cycle)]
     return {**data, "engine": [{"effect": "energise", "channel": c, "duty": duty}
                                for c in channels]}
@@ -176,7 +176,7 @@ def _plug_at_work(state: JobState) -> dict[str, Any]:
 class Circumstances:
     """What a rule needs beyond the job's own events: clocks, the person, the engine's tags."""
 
-    now: datetime      # when the entry was made, by the station's clock (placed: placement.py)
+    now: datetime      # when the entry reached the station
     device_now: datetime | None
     person_id: int
     job_id: int
@@ -189,7 +189,18 @@ class Circumstances:
     whereabouts: Whereabouts = Whereabouts()      # of the serial an install step names
     roles_of: Mapping[int, tuple[str, ...]] = field(default_factory=dict)  # people it names
     instrument: Instrument | None = None  # the register's entry for the ID a reading names
-    counted: bool = False  # `now` was placed by the tablet's count of the entry's wait
+    # When the work was done, by the station's clock: `now`, or earlier for an entry that
+    # waited on a tablet (placed by the tablet's count: placement.py). Only the rules that
+    # time the work between two entries use it (the discharge wait, the grounding window,
+    # an exciter's cooling, a counting window); what must hold when the station decides
+    # (an authorisation, an instrument's calibration, usage totals) is judged at `now`, so
+    # no claim of a device can make a lapsed one pass.
+    made: datetime | None = None
+    counted: bool = False  # `made` was placed by the tablet's count of the entry's wait
+
+    @property
+    def work_time(self) -> datetime:
+        return self.made or self.now
 
 
 def needs_engine_tags(state: JobState, kind: str, step_id: str | None) -> bool:
@@ -277,7 +288,7 @@ def check_event(state: JobState, kind: str, step_id: str | None, data: Mapping[s
         verb = "acknowledged" if wanted == "acknowledged" else "marked done"
         raise RuleRefusal("wrong_event_for_step", f"A {step.kind} step is {verb}, "
                           f"not '{kind}'.")
-    isolation.check_before_step(state, step, at.now, at.device_now)
+    isolation.check_before_step(state, step, at.work_time, at.device_now)
     return _check_completion(state, target, data, at)
 
 
@@ -336,7 +347,7 @@ def _evaluate_reading(state: JobState, step: Reading | Torque | SparkCount,
         if not stored["supply"]["within"]:
             # A count at a supply outside its limits proves nothing about the unit.
             stored["verdict"] = "out of limits"
-        sparks.check_window_served(state.count_windows.get(step.id), stored, at.now,
+        sparks.check_window_served(state.count_windows.get(step.id), stored, at.work_time,
                                    at.device_now)
         return stored
     stored = isolation.isolation_verdict(step, readings.evaluate_reading(step, data))
@@ -368,7 +379,7 @@ def _check_other_completion(state: JobState, target: StepProgress, data: Mapping
         fitted = exciter_rows.fitted_exciters(at.engine, state.configuration.components,
                                               _job_channels(state))
         need = gates.discharge_requirement(step, [f.part_number for f in fitted])
-        gates.check_discharge_served(need, state.power_off, at.now, at.device_now,
+        gates.check_discharge_served(need, state.power_off, at.work_time, at.device_now,
                                      counted=at.counted)
         if need.capacitor_from:
             return {**data, "capacitor_from": need.capacitor_from}

@@ -207,8 +207,8 @@ def _circumstances(db: store.Database, job: Job, kind: str, step_id: str | None,
                    data: dict[str, Any], device_time: str | None, person: Person,
                    now: datetime, device_sent: str | None = None) -> Circumstances:
     """What the rules need to know beyond the job's own log (the engine's state and tags, who
-    is who); the engine's state is read once, from its kept value. The rules' `now` is when
-    the entry was made, placed by the tablet's count for one that waited on it."""
+    is who); the engine's state is read once, from its kept value. `made` is when the work
+    was done, placed by the tablet's count for an entry that waited on it."""
     on_engine = _engine_circumstances(db, job, kind, step_id, data)
     tags = (dict(on_engine["engine"].tags)
             if needs_engine_tags(job.state, kind, step_id) else {})
@@ -220,7 +220,7 @@ def _circumstances(db: store.Database, job: Job, kind: str, step_id: str | None,
              *(s.event["person_id"] for s in job.state.steps if s.event)}
     device_now = _device_time(device_time)
     made = placement.made_at(now, device_now, _device_time(device_sent))
-    return Circumstances(now=made, counted=made != now, device_now=device_now,
+    return Circumstances(now=now, made=made, counted=made != now, device_now=device_now,
                          person_id=person.id,
                          job_id=job.row["id"], tags=tags, names=people.names_by_id(db, named),
                          roles=person.roles, roles_of=roles_of,
