@@ -44,7 +44,13 @@ def _read_whole_file(response: Response) -> Response:
             and response.content_length is not None
             and response.content_length <= WHOLE_FILE_LIMIT):
         response.direct_passthrough = False
+        close = getattr(response.response, "close", None)
         response.make_sequence()
+        if close is not None:
+            # Closed now, not when the answer closes: Flask-Compress may answer a conditional
+            # request with a 304 of its own, and the answer holding the file is then dropped
+            # unclosed (a ResourceWarning seen in the browser tests).
+            close()
     return response
 
 
