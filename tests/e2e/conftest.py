@@ -43,6 +43,18 @@ def live_server(db_path, station_clock):
         yield f"http://127.0.0.1:{port}"
 
 
+def stored_events(db_path, job_id: int) -> list[dict]:
+    """The job's events as the station stored them (its own database file, read directly)."""
+    from webapp import store
+    from webapp.store import jobs as job_store
+
+    db = store.connect(db_path)
+    try:
+        return job_store.events(db, job_id)
+    finally:
+        db.close()
+
+
 def log_in(page, base_url: str, username: str, password: str) -> None:
     page.goto(f"{base_url}/login")
     page.fill("#username", username)

@@ -17,7 +17,7 @@ from webapp import store
 from webapp.store import engines
 from webapp.store import jobs as job_store
 
-from .conftest import open_removal_to_warning, tap, wait_until
+from .conftest import open_removal_to_warning, stored_events, tap, wait_until
 from .test_offline import OUTBOX_EMPTY, PAGE_SAVED, WORKER_IN_CHARGE, Network
 from .test_tablet_grade import VIEWPORTS, _audit
 
@@ -37,14 +37,6 @@ def _engine_now(db_path, job_id: int):
         db.close()
 
 
-def _events(db_path, job_id: int) -> list[dict]:
-    db = store.connect(db_path)
-    try:
-        return job_store.events(db, job_id)
-    finally:
-        db.close()
-
-
 @pytest.mark.browser
 def test_offline_the_tablet_works_on_to_the_signature_and_the_station_gets_it_all_once(
         browser, live_server, db_path, station_clock):
@@ -59,7 +51,7 @@ def test_offline_the_tablet_works_on_to_the_signature_and_the_station_gets_it_al
     wait_until(page, PAGE_SAVED)
     job_id = int(page.get_by_test_id("job").get_attribute("data-job-id"))
     wait_until(page, STEPS_KEPT.format(job=job_id))  # the job's steps are on the tablet
-    before = len(_events(db_path, job_id))
+    before = len(stored_events(db_path, job_id))
     fitted, usage = _engine_now(db_path, job_id)  # the demo engine's exciter, its totals
     step = page.get_by_test_id("step")
 
@@ -162,7 +154,7 @@ def test_offline_the_tablet_works_on_to_the_signature_and_the_station_gets_it_al
     expect(page.get_by_test_id("needs-station")).to_contain_text("A signature needs the station")
     expect(page.locator("[data-testid=step] form")).to_have_count(0)
     assert page.evaluate(OUTBOX_SIZE) == 16
-    assert len(_events(db_path, job_id)) == before  # nothing reached the station yet
+    assert len(stored_events(db_path, job_id)) == before  # nothing reached the station yet
 
     page.close()  # the app closed and opened again, still offline
     page = context.new_page()
@@ -178,7 +170,7 @@ def test_offline_the_tablet_works_on_to_the_signature_and_the_station_gets_it_al
     wait_until(page, OUTBOX_EMPTY)
     expect(step).to_have_attribute("data-step-id", "performer", timeout=30_000)
     expect(page.get_by_test_id("tablet-copy")).to_have_count(0)  # the station's own screen
-    events = _events(db_path, job_id)[before:]
+    events = stored_events(db_path, job_id)[before:]
     assert [(e["kind"], e["step_id"]) for e in events] == [
         ("acknowledged", "lethal-energy-breakers"),
         ("breaker_tagged", "breakers"), ("breaker_tagged", "breakers"),
@@ -248,7 +240,7 @@ def test_offline_a_lapsed_grounding_is_refused_and_grounding_again_is_kept_on_th
     page.fill("[data-testid=reading-value]", "0.01")
     tap(page, "[data-testid=record-reading]")
     expect(step).to_have_attribute("data-step-id", "disconnect-leads")
-    before = len(_events(db_path, job_id))
+    before = len(stored_events(db_path, job_id))
 
     network.cut()
     tap(page, "[data-testid=done]")
@@ -282,7 +274,7 @@ def test_offline_a_lapsed_grounding_is_refused_and_grounding_again_is_kept_on_th
     expect(page.get_by_test_id("outbox-count")).to_be_hidden(timeout=30_000)
     wait_until(page, OUTBOX_EMPTY)
     expect(step).to_have_attribute("data-step-id", "removed-exciter", timeout=30_000)
-    events = _events(db_path, job_id)[before:]
+    events = stored_events(db_path, job_id)[before:]
     assert [(e["kind"], e["step_id"]) for e in events] == [
         ("step_done", "disconnect-leads"), ("acknowledged", "ground-lead"),
         ("acknowledged", "cap-connectors"), ("step_done", "ground-terminals"),
@@ -357,7 +349,7 @@ def test_offline_voltage_present_stops_the_work_and_the_finding_waits_for_the_st
     wait_until(page, OUTBOX_EMPTY)
     # The station's own screen asks for the finding on the reading it now has.
     expect(page.get_by_test_id("record-finding")).to_be_visible(timeout=30_000)
-    reading = _events(db_path, job_id)[-1]
+    reading = stored_events(db_path, job_id)[-1]
     assert reading["kind"] == "reading_recorded"
     assert reading["data"]["verdict"] == "out of limits"
     context.close()

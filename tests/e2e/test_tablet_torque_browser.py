@@ -12,10 +12,8 @@ from playwright.sync_api import expect
 
 from tests.conftest import DEMO_PASSWORDS
 from tests.web.jobs import Job, exciter_removed
-from webapp import store
-from webapp.store import jobs as job_store
 
-from .conftest import log_in, tap, wait_until
+from .conftest import log_in, stored_events, tap, wait_until
 from .test_offline import OUTBOX_EMPTY, PAGE_SAVED, WORKER_IN_CHARGE, Network
 from .test_tablet_grade import VIEWPORTS, _audit
 
@@ -24,14 +22,6 @@ OUTBOX_SIZE = "async () => (await window.sparkwardOutbox.entries()).length"
 # The demo bracket's four bolts, 35-40 lbf·in (tasks/exciter-installation.yaml, invented).
 BOLTS = ["Bolt 1, upper forward", "Bolt 2, lower aft", "Bolt 3, upper aft",
          "Bolt 4, lower forward"]
-
-
-def _events(db_path, job_id: int) -> list[dict]:
-    db = store.connect(db_path)
-    try:
-        return job_store.events(db, job_id)
-    finally:
-        db.close()
 
 
 @pytest.mark.browser
@@ -53,7 +43,7 @@ def test_offline_each_bolt_is_torqued_on_the_tablet_and_the_station_agrees(
     wait_until(page, STEPS_KEPT.format(job=installation.id))
     step = page.get_by_test_id("step")
     expect(step).to_have_attribute("data-step-id", "mounting-torque")
-    before = len(_events(db_path, installation.id))
+    before = len(stored_events(db_path, installation.id))
 
     network.cut()
     page.reload()  # the worker's copy of the station's screen: its form is kept as well
@@ -86,7 +76,7 @@ def test_offline_each_bolt_is_torqued_on_the_tablet_and_the_station_agrees(
     expect(page.get_by_test_id("outbox-count")).to_be_hidden(timeout=30_000)
     wait_until(page, OUTBOX_EMPTY)
     expect(step).to_have_attribute("data-step-id", "bonding-resistance", timeout=30_000)
-    events = _events(db_path, installation.id)[before:]
+    events = stored_events(db_path, installation.id)[before:]
     assert [(e["kind"], e["data"]["fastener"], e["data"]["verdict"]) for e in events] == [
         ("reading_recorded", bolt, "within") for bolt in BOLTS]
     carried = page.get_by_test_id("job").get_attribute("data-job-carry")
