@@ -7,12 +7,11 @@ from __future__ import annotations
 import pytest
 from playwright.sync_api import expect
 
-from .conftest import tap, wait_until
+from .conftest import stored_events, tap, wait_until
 from .test_offline import OUTBOX_EMPTY
 from .test_tablet_job_browser import (
     OUTBOX_SIZE,
     _engine_now,
-    _events,
     _online_to_the_isolation_check,
     _tablet_in_charge,
 )
@@ -60,6 +59,6 @@ def test_offline_a_plate_that_differs_is_kept_and_waits_for_the_stations_finding
     wait_until(page, OUTBOX_EMPTY)
     expect(page.get_by_test_id("record-finding")).to_be_visible(timeout=30_000)
     expect(page.get_by_test_id("finding-needed")).to_contain_text("data plate does not match")
-    part = _events(db_path, job_id)[-1]
+    part = stored_events(db_path, job_id)[-1]
     assert part["kind"] == "part_recorded" and part["data"]["verdict"] == "mismatch"
     context.close()
