@@ -141,3 +141,19 @@ def fill_part(page, part_number: str, serial: str, *, removed: bool, tag_or_rele
     page.fill("[data-testid=part-engine-hours]", hours)
     page.fill("[data-testid=part-starts]", starts)
     tap(page, "[data-testid=record-part]")
+
+
+TABLET_SCRIPTS = ("sparkwardTabletRules", "sparkwardTabletReading", "sparkwardTabletLead",
+                  "sparkwardTabletPart", "sparkwardTabletTorque", "sparkwardTabletJob")
+
+
+@pytest.fixture
+def tablet_page(browser, live_server):
+    """mech1 logged in, every tablet script loaded: the parity tests call their rules."""
+    context = browser.new_context()
+    page = context.new_page()
+    log_in(page, live_server, "mech1", "demo-mech1")
+    page.wait_for_function("() => " + " && ".join(f"!!window.{name}"
+                                                  for name in TABLET_SCRIPTS))
+    yield page
+    context.close()

@@ -27,7 +27,7 @@ from webapp.domain.procedures import Check, PartChange, Reading
 from webapp.domain.readings import InputProblem, evaluate_reading
 from webapp.web.carry_steps import fitted_parts, lead_rules, reading_form
 
-from .conftest import log_in
+from .parity import seeded
 
 TODAY = date(2026, 12, 6)  # the day both judge on (invented)
 # An invented register: one of each state the station refuses, per kind asked for here.
@@ -131,29 +131,9 @@ def _same(station: dict, tablet: dict) -> bool:
     return mine.get("isolation") == theirs.get("isolation")
 
 
-@pytest.fixture
-def tablet_page(browser, live_server):
-    context = browser.new_context()
-    page = context.new_page()
-    log_in(page, live_server, "mech1", "demo-mech1")
-    page.wait_for_function("() => !!window.sparkwardTabletReading && !!window.sparkwardTabletLead"
-                           " && !!window.sparkwardTabletPart")
-    yield page
-    context.close()
-
-
 @pytest.mark.browser
 def test_the_tablets_reading_rules_give_the_stations_verdicts_in_its_words(tablet_page):
-    generated = []
-
-    @seed(20261206)
-    @settings(max_examples=600, deadline=None, database=None,
-              suppress_health_check=[HealthCheck.function_scoped_fixture])
-    @given(cases)
-    def collect(case):
-        generated.append(case)
-
-    collect()
+    generated = seeded(cases, 600)
     steps = [_step(c[0], c[1], c[2], c[3], c[7]) for c in generated]
     carried = [{**reading_form(s, REGISTER, TODAY), "id": s.id} for s in steps]
     datas = [_data(c) for c in generated]
@@ -239,16 +219,7 @@ part_cases = st.tuples(part_numbers, serials,
 
 @pytest.mark.browser
 def test_a_part_taken_off_is_judged_on_the_tablet_as_the_station_judges_it(tablet_page):
-    generated = []
-
-    @seed(20261206)
-    @settings(max_examples=300, deadline=None, database=None,
-              suppress_health_check=[HealthCheck.function_scoped_fixture])
-    @given(part_cases)
-    def collect(case):
-        generated.append(case)
-
-    collect()
+    generated = seeded(part_cases, 300)
     step = PartChange(id="off", kind="part", text="Take it off.", action="remove",
                       part="exciter")
     engine = EngineState(positions={position_key("exciter", "A"): Position(
@@ -294,16 +265,7 @@ condition_cases = st.tuples(
 
 @pytest.mark.browser
 def test_the_conditions_of_an_insulation_reading_are_judged_as_the_station_does(tablet_page):
-    generated = []
-
-    @seed(20261206)
-    @settings(max_examples=250, deadline=None, database=None,
-              suppress_health_check=[HealthCheck.function_scoped_fixture])
-    @given(condition_cases)
-    def collect(case):
-        generated.append(case)
-
-    collect()
+    generated = seeded(condition_cases, 250)
     datas = [{"value": value, "unit": unit, "instrument_id": "IT-1",
               "test_voltage": {"value": tv, "unit": tv_unit},
               "ambient_temperature": {"value": temp, "unit": temp_unit},

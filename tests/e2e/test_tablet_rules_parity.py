@@ -7,14 +7,13 @@ from __future__ import annotations
 import json
 
 import pytest
-from hypothesis import HealthCheck, given, seed, settings
 from hypothesis import strategies as st
 
 from webapp.domain import gates
 from webapp.domain.errors import RuleRefusal
 from webapp.domain.procedures import Lockout
 
-from .conftest import log_in
+from .parity import seeded
 
 JOB, ME = 7, 1
 NAMES = {1: "Aino Varga", 2: "Tomas Reyes"}  # demo names (invented)
@@ -53,28 +52,9 @@ def _as_carried(tags) -> list[dict]:
             for n, b, job, confirmed, owner, hung_by in tags]
 
 
-@pytest.fixture
-def tablet_page(browser, live_server):
-    context = browser.new_context()
-    page = context.new_page()
-    log_in(page, live_server, "mech1", "demo-mech1")
-    page.wait_for_function("() => !!window.sparkwardTabletJob")
-    yield page
-    context.close()
-
-
 @pytest.mark.browser
 def test_the_tablets_tag_rules_give_the_stations_verdicts_in_its_words(tablet_page):
-    generated = []
-
-    @seed(20261206)
-    @settings(max_examples=300, deadline=None, database=None,
-              suppress_health_check=[HealthCheck.function_scoped_fixture])
-    @given(cases)
-    def collect(case):
-        generated.append(case)
-
-    collect()
+    generated = seeded(cases, 300)
     judged = tablet_page.evaluate(
         """cases => cases.map(([tags, breaker, number, confirm]) =>
              window.sparkwardTabletJob.rules.tagRefusal(

@@ -11,7 +11,6 @@ import math
 from datetime import date
 
 import pytest
-from hypothesis import HealthCheck, given, seed, settings
 from hypothesis import strategies as st
 
 from webapp.domain import instruments
@@ -22,7 +21,7 @@ from webapp.domain.readings import InputProblem
 from webapp.domain.torque import evaluate_torque
 from webapp.web.carry_steps import torque_form
 
-from .conftest import log_in
+from .parity import seeded
 
 TODAY = date(2026, 12, 6)  # invented
 REGISTER = [  # invented
@@ -96,28 +95,9 @@ def _same(station: dict, tablet: dict) -> bool:
                     for k in ("applied", "margin", "converted")))
 
 
-@pytest.fixture
-def tablet_page(browser, live_server):
-    context = browser.new_context()
-    page = context.new_page()
-    log_in(page, live_server, "mech1", "demo-mech1")
-    page.wait_for_function("() => !!window.sparkwardTabletTorque")
-    yield page
-    context.close()
-
-
 @pytest.mark.browser
 def test_the_tablets_torque_rules_give_the_stations_verdicts_in_its_words(tablet_page):
-    generated = []
-
-    @seed(20261206)
-    @settings(max_examples=600, deadline=None, database=None,
-              suppress_health_check=[HealthCheck.function_scoped_fixture])
-    @given(cases)
-    def collect(case):
-        generated.append(case)
-
-    collect()
+    generated = seeded(cases, 600)
     # Rare corners, always in: an adapter reaching back over the handle, one square to it.
     generated += [((False, None, "any", (35, 40)), None, [], "30", "lbf*in",
                    ("10", "8", "180"), "TW-1"),
