@@ -40,17 +40,9 @@ def _engine_now(db_path, job_id: int):
 @pytest.mark.browser
 def test_offline_the_tablet_works_on_to_the_signature_and_the_station_gets_it_all_once(
         browser, live_server, db_path, station_clock):
-    context = browser.new_context(viewport=VIEWPORTS["tablet-landscape"], has_touch=True)
-    network = Network(context)
-    # The tablet's clock runs as real time until the test moves it on (Playwright's clock).
-    context.clock.install(time=station_clock())
-    page = context.new_page()
-    open_removal_to_warning(page, live_server)
-    page.wait_for_function(WORKER_IN_CHARGE, polling=50)
-    page.reload()  # through the worker, which keeps a copy of the job page
-    wait_until(page, PAGE_SAVED)
-    job_id = int(page.get_by_test_id("job").get_attribute("data-job-id"))
-    wait_until(page, STEPS_KEPT.format(job=job_id))  # the job's steps are on the tablet
+    # The worker keeps the job page, the job's steps are on the tablet, and the tablet's
+    # clock runs as real time until the test moves it on (Playwright's clock).
+    context, network, page, job_id = _tablet_in_charge(browser, live_server, station_clock)
     before = len(stored_events(db_path, job_id))
     fitted, usage = _engine_now(db_path, job_id)  # the demo engine's exciter, its totals
     step = page.get_by_test_id("step")
