@@ -251,9 +251,14 @@
     return kept && kept.stored && kept.stored.verdict === "out of limits" ? kept : null;
   }
 
+  // An entry on a step whose last reading was out of limits (domain/checks.py,
+  // finding_required): readings and torque alike.
+  var FINDING_FIRST = "The last reading was out of limits: record the finding and what was " +
+    "done before anything else.";
+
   window.sparkwardTabletReading = { judge: judge, evaluate: evaluate, measure: measure,
                                     verdict: verdict, formatG: formatG, readNumber: readNumber,
                                     instrumentRefusal: instrumentRefusal, formData: formData,
                                     fieldsData: fieldsData, awaitingFinding: awaitingFinding,
-                                    SYMBOL: SYMBOL, today: today };
+                                    SYMBOL: SYMBOL, today: today, FINDING_FIRST: FINDING_FIRST };
 })();

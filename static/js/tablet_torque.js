@@ -11,8 +11,7 @@
   var R = window.sparkwardTabletRules, S = window.sparkwardTabletSteps;
   var T = window.sparkwardTabletReading;
   var el = S.el;
-  var FINDING_FIRST = "The last reading was out of limits: record the finding and what was " +
-    "done before anything else.";  // domain/checks.py, finding_required
+  var FINDING_FIRST = T.FINDING_FIRST;
 
   function Problem(message) { this.message = message; }
 
